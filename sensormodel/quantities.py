@@ -1,0 +1,341 @@
+"""Units: the one pint registry and the parser for datasheet typography.
+
+This is the only module that knows about unit strings. Everything past it works in SI floats
+and arrays (rad, rad/s, m/s, m/s², s, Hz).
+
+Two choices differ from pint's defaults, on purpose:
+
+* **Angle is a real dimension.** pint treats ``radian`` as dimensionless, so ``deg/s`` would
+  convert to ``Hz`` without complaint. Here ``radian = [angle]``, so ``0.1 1/sqrt(h)`` is refused
+  where an angle random walk is expected, and ``deg/s`` never becomes ``Hz``.
+* **``g`` is standard gravity in acceleration fields.** Datasheets write ``25 µg`` and
+  ``60 ug/√Hz`` meaning micro-g (g_n = 9.80665 m/s² exactly, 3rd CGPM 1901; NIST SP 330), never
+  micrograms. Where the expected dimension involves length, the tokens ``g``, ``mg``, ``ug``,
+  ``µg`` and ``ng`` are read as multiples of g_n; elsewhere they stay grams (and so fail the
+  dimension check).
+
+The kinds of quantity a datasheet or recording can carry are kept as data in :data:`KINDS`; the
+datasheet field table, the schema, the help texts and the error messages all draw on it.
+"""
+
+from __future__ import annotations
+
+import math
+import pathlib
+import re
+from dataclasses import dataclass
+from functools import lru_cache
+
+import pint
+
+from .errors import UnitError
+
+__all__ = [
+    "UREG",
+    "KINDS",
+    "Kind",
+    "STANDARD_GRAVITY",
+    "parse_quantity",
+    "parse_unit_factor",
+    "convert_from_si",
+    "normalize_unit",
+    "format_value",
+]
+
+#: Standard gravity [m/s²], exact by definition (3rd CGPM 1901, CR 70; NIST SP 330).
+STANDARD_GRAVITY = 9.80665
+
+
+def _build_registry() -> pint.UnitRegistry:
+    base = pathlib.Path(pint.__file__).parent
+    text = base.joinpath("default_en.txt").read_text(encoding="utf-8")
+    if "radian = [] = rad" not in text:  # pragma: no cover - guards a pint format change
+        raise RuntimeError("pint's default definitions changed: cannot make angle a dimension")
+    text = text.replace("radian = [] = rad", "radian = [angle] = rad")
+    constants = base.joinpath("constants_en.txt").read_text(encoding="utf-8")
+    text = text.replace("@import constants_en.txt", constants)
+    reg = pint.UnitRegistry(None)
+    reg.load_definitions(text.splitlines())
+    reg.define(f"gee = {STANDARD_GRAVITY!r} * meter / second ** 2")
+    return reg
+
+
+#: The project's one unit registry (angle is a base dimension; ``gee`` is standard gravity).
+UREG: pint.UnitRegistry = _build_registry()
+
+
+@dataclass(frozen=True)
+class Kind:
+    """A kind of physical quantity: its SI unit and how to describe it in messages.
+
+    Attributes
+    ----------
+    si : str
+        The SI unit every value of this kind is converted to (pint syntax).
+    what : str
+        A description for error messages.
+    example : str
+        A typical datasheet spelling, for error messages and help.
+    acceleration : bool
+        Whether ``g``/``mg``/``µg`` mean standard gravity in this kind (dimension has length).
+    """
+
+    si: str
+    what: str
+    example: str
+    acceleration: bool = False
+
+
+#: Every kind of quantity sensormodel reads, with its SI unit.
+KINDS: dict[str, Kind] = {
+    "angle": Kind("rad", "an angle", "0.5 urad"),
+    "angular_rate": Kind("rad/s", "an angular rate", "10 deg/h"),
+    "angle_random_walk": Kind(
+        "rad/s**0.5", "an angle random walk (angular rate per root hertz)", "0.15 deg/rt-h"
+    ),
+    "rate_random_walk": Kind("rad/s**1.5", "a rate random walk", "2 deg/h/rt-h"),
+    "angular_rate_ramp": Kind("rad/s**2", "an angular-rate ramp", "0.5 deg/h^2"),
+    "velocity": Kind("m/s", "a velocity", "0.1 mm/s", acceleration=True),
+    "acceleration": Kind("m/s**2", "an acceleration", "25 ug", acceleration=True),
+    "velocity_random_walk": Kind(
+        "m/s**1.5",
+        "a velocity random walk (acceleration per root hertz)",
+        "60 ug/rtHz",
+        acceleration=True,
+    ),
+    "acceleration_random_walk": Kind(
+        "m/s**2.5", "an acceleration random walk", "3 ug/s/rt-Hz", acceleration=True
+    ),
+    "acceleration_ramp": Kind("m/s**3", "an acceleration ramp", "1 ug/h", acceleration=True),
+    "time": Kind("s", "a time", "100 s"),
+    "frequency": Kind("Hz", "a frequency", "400 Hz"),
+    "dimensionless": Kind("", "a plain ratio", "100 ppm"),
+}
+
+_NUMBER = re.compile(
+    r"""^\s*
+    (?P<mant>[+-]?(?:\d+(?:\.\d*)?|\.\d+)(?:[eE][+-]?\d+)?)
+    (?:\s*(?:[x×·*]|\*)\s*10\s*(?:\^|\*\*)?\s*(?P<exp>[+-]?\d+))?
+    \s*(?P<unit>.*?)\s*$""",
+    re.VERBOSE,
+)
+
+_SUPERSCRIPTS = str.maketrans("⁰¹²³⁴⁵⁶⁷⁸⁹⁺⁻", "0123456789+-")
+_SUPER_RUN = re.compile(r"[⁺⁻]?[⁰¹²³⁴⁵⁶⁷⁸⁹]+")
+_TEN_POWER = re.compile(r"(?<=10)([⁺⁻]?[⁰¹²³⁴⁵⁶⁷⁸⁹]+)")
+_ROOT_PAREN = re.compile(r"(?:√|(?<![A-Za-z_])(?:sqrt|root|rt))\s*[-_ ]?\s*\(\s*([A-Za-z_]+)\s*\)")
+_ROOT_WORD = re.compile(r"(?:√|(?<![A-Za-z_])(?:sqrt|root|rt))\s*[-_ ]?\s*([A-Za-z_]+)")
+_WORD_ALIASES = {
+    "dps": "(deg/s)",
+    "mdps": "(millideg/s)",
+    "udps": "(microdeg/s)",
+    "dph": "(deg/hr)",
+    "hrs": "hr",
+    "secs": "s",
+    "deg": "deg",
+}
+_WORD = re.compile(r"(?<![A-Za-z_])([A-Za-z_]+)(?![A-Za-z_0-9])")
+_GEE = re.compile(r"(?<![A-Za-z_])([mun]?)g(?![A-Za-z_0-9])")
+_GEE_PREFIX = {"": "gee", "m": "milligee", "u": "microgee", "n": "nanogee"}
+
+
+def normalize_unit(text: str, *, acceleration: bool = False) -> str:
+    """Rewrite datasheet unit typography into pint syntax.
+
+    Parameters
+    ----------
+    text : str
+        A unit as printed, e.g. ``"°/√h"``, ``"deg/rt-hr"``, ``"mdps/√Hz"``, ``"µg/rtHz"``.
+    acceleration : bool
+        Read ``g``, ``mg``, ``ug`` and ``ng`` as multiples of standard gravity.
+
+    Returns
+    -------
+    str
+        The same unit in pint syntax, e.g. ``"deg/(hr)**0.5"``.
+    """
+    s = text.strip().replace("−", "-").replace("–", "-")
+    s = s.replace("°", " deg ").replace("º", " deg ").replace("µ", "u").replace("μ", "u")
+    s = s.replace("½", "**0.5")
+    s = _SUPER_RUN.sub(lambda m: "**" + m.group(0).translate(_SUPERSCRIPTS), s)
+    s = _ROOT_PAREN.sub(r"(\1)**0.5", s)
+    s = _ROOT_WORD.sub(r"(\1)**0.5", s)
+    s = s.replace("^", "**")
+    s = _WORD.sub(lambda m: _WORD_ALIASES.get(m.group(1), m.group(1)), s)
+    if acceleration:
+        s = _GEE.sub(lambda m: _GEE_PREFIX[m.group(1)], s)
+    s = re.sub(r"\s*/\s*", "/", s)
+    s = re.sub(r"\s+", " ", s).strip()
+    s = re.sub(r"(?<=[A-Za-z_)0-9]) (?=[A-Za-z_(])", "*", s)
+    return s
+
+
+def _dimension_text(unit: pint.Unit | pint.Quantity) -> str:
+    dim = str(unit.dimensionality)
+    return "dimensionless" if dim in ("", "dimensionless") else dim
+
+
+@lru_cache(maxsize=1024)
+def _parse_unit_cached(unit_text: str, acceleration: bool) -> tuple[float, str, str]:
+    """Return (factor to the base units, pint text, dimensionality) for a unit string."""
+    expr = normalize_unit(unit_text, acceleration=acceleration)
+    q = UREG.parse_expression(expr) if expr else UREG.Quantity(1.0)
+    if not isinstance(q, pint.Quantity):  # a bare number such as "1"
+        q = UREG.Quantity(float(q))
+    base = q.to_base_units()
+    return float(base.magnitude), str(q.units), str(base.dimensionality)
+
+
+def _unit_factor(unit_text: str, kind: str, *, field: str | None, source: str | None) -> float:
+    """Factor that takes a value in ``unit_text`` to the SI unit of ``kind``."""
+    info = _kind(kind)
+    try:
+        factor, pretty, dim = _parse_unit_cached(unit_text, info.acceleration)
+    except (pint.errors.PintError, AttributeError, TypeError, ValueError, SyntaxError) as exc:
+        raise UnitError(
+            f"cannot read the unit '{unit_text}' ({exc.__class__.__name__})",
+            f"{info.what} such as '{info.example}'",
+            field=field,
+            source=source,
+        ) from None
+    si_factor, _, si_dim = _parse_unit_cached(info.si, False) if info.si else (1.0, "", "")
+    if dim != si_dim and not (dim in ("", "dimensionless") and si_dim in ("", "dimensionless")):
+        shown = dim if dim not in ("", "dimensionless") else "dimensionless"
+        hint = ""
+        if "[mass]" in dim and not info.acceleration:
+            hint = " ('g' is read as grams outside acceleration fields)"
+        raise UnitError(
+            f"got '{unit_text}' ({shown}){hint}",
+            f"{info.what} convertible to '{info.si or '1'}', such as '{info.example}'",
+            field=field,
+            source=source,
+        )
+    return factor / si_factor
+
+
+def _kind(kind: str) -> Kind:
+    try:
+        return KINDS[kind]
+    except KeyError:
+        raise ValueError(f"unknown quantity kind {kind!r}; known: {sorted(KINDS)}") from None
+
+
+def parse_quantity(
+    value: object,
+    kind: str,
+    *,
+    field: str | None = None,
+    source: str | None = None,
+    allow_negative: bool = False,
+    allow_zero: bool = True,
+) -> float:
+    """Parse a datasheet value such as ``"0.15 °/√h"`` into an SI float.
+
+    Parameters
+    ----------
+    value : str or pint.Quantity
+        The value as printed, number first, then the unit. ``×10^-3``, ``x10^-3`` and ``1e-3``
+        forms of the number are accepted. A bare number is refused (every value carries its
+        unit), except for the ``dimensionless`` kind.
+    kind : str
+        One of :data:`KINDS`; decides the SI unit of the result and the dimension check.
+    field, source : str, optional
+        Where the value came from, for the error message.
+    allow_negative, allow_zero : bool
+        Noise magnitudes are non-negative; a zero is allowed unless ``allow_zero`` is False.
+
+    Returns
+    -------
+    float
+        The value in the SI unit ``KINDS[kind].si``.
+
+    Raises
+    ------
+    UnitError
+        Missing, unknown or wrong-dimension unit; negative, zero or non-finite value.
+    """
+    info = _kind(kind)
+    if isinstance(value, pint.Quantity):
+        value = f"{value.magnitude!r} {value.units:~}"
+    if isinstance(value, bool) or not isinstance(value, (str, int, float)):
+        raise UnitError(
+            f"got {type(value).__name__} {value!r}",
+            f"a text such as '{info.example}'",
+            field=field,
+            source=source,
+        )
+    if isinstance(value, (int, float)):
+        if info.si:
+            raise UnitError(
+                f"got the bare number {value!r} with no unit",
+                f"{info.what} with its unit, such as '{info.example}'",
+                field=field,
+                source=source,
+            )
+        number, unit_text = float(value), ""
+    else:
+        text = value.replace("−", "-")
+        text = _TEN_POWER.sub(lambda t: "^" + t.group(1).translate(_SUPERSCRIPTS), text)
+        m = _NUMBER.match(text)
+        if m is None:
+            raise UnitError(
+                f"cannot read '{value}' as a number followed by a unit",
+                f"{info.what} such as '{info.example}'",
+                field=field,
+                source=source,
+            )
+        number = float(m.group("mant"))
+        if m.group("exp"):
+            number *= 10.0 ** int(m.group("exp"))
+        unit_text = m.group("unit")
+        if not unit_text and info.si:
+            raise UnitError(
+                f"'{value}' has no unit",
+                f"{info.what} with its unit, such as '{info.example}'",
+                field=field,
+                source=source,
+            )
+    si = number * _unit_factor(unit_text, kind, field=field, source=source)
+    if not math.isfinite(si):
+        raise UnitError(f"'{value}' is not finite", "a finite value", field=field, source=source)
+    if si < 0 and not allow_negative:
+        raise UnitError(
+            f"'{value}' is negative", "a non-negative magnitude", field=field, source=source
+        )
+    if si == 0 and not allow_zero:
+        raise UnitError(f"'{value}' is zero", "a positive value", field=field, source=source)
+    return si
+
+
+def parse_unit_factor(
+    unit_text: str, kind: str, *, field: str | None = None, source: str | None = None
+) -> float:
+    """Return the factor that converts values in ``unit_text`` into the SI unit of ``kind``.
+
+    Parameters
+    ----------
+    unit_text : str
+        A unit as printed (``"deg/s"``, ``"mg"``, ``"°/h"``).
+    kind : str
+        One of :data:`KINDS`.
+
+    Returns
+    -------
+    float
+        Multiply a value in ``unit_text`` by this to get SI.
+    """
+    return _unit_factor(unit_text, kind, field=field, source=source)
+
+
+def convert_from_si(value: float, kind: str, unit_text: str) -> float:
+    """Express an SI value of ``kind`` in ``unit_text`` (for display and output files only)."""
+    return value / _unit_factor(unit_text, kind, field=None, source=None)
+
+
+def format_value(value: float, unit_text: str = "") -> str:
+    """Format a number with four significant figures and its unit, for tables."""
+    if value == 0:
+        num = "0"
+    else:
+        num = f"{value:.4g}"
+    return f"{num} {unit_text}".strip()
