@@ -40,6 +40,9 @@ __all__ = [
     "convert_from_si",
     "normalize_unit",
     "format_value",
+    "DISPLAY_UNITS",
+    "split_value",
+    "kind_of",
 ]
 
 #: Standard gravity [m/s²], exact by definition (3rd CGPM 1901, CR 70; NIST SP 330).
@@ -339,3 +342,48 @@ def format_value(value: float, unit_text: str = "") -> str:
     else:
         num = f"{value:.4g}"
     return f"{num} {unit_text}".strip()
+
+
+#: A readable display unit per kind: (unit in datasheet typography, pretty label).
+DISPLAY_UNITS: dict[str, tuple[str, str]] = {
+    "angle": ("urad", "µrad"),
+    "angular_rate": ("deg/h", "°/h"),
+    "angle_random_walk": ("deg/h^0.5", "°/√h"),
+    "rate_random_walk": ("deg/h^1.5", "°/h/√h"),
+    "angular_rate_ramp": ("deg/h^2", "°/h²"),
+    "velocity": ("mm/s", "mm/s"),
+    "acceleration": ("ug", "µg"),
+    "velocity_random_walk": ("m/s/h^0.5", "m/s/√h"),
+    "acceleration_random_walk": ("m/s/h^1.5", "m/s/h^1.5"),
+    "acceleration_ramp": ("ug/h", "µg/h"),
+    "time": ("s", "s"),
+    "frequency": ("Hz", "Hz"),
+    "dimensionless": ("", ""),
+}
+
+
+def split_value(text: str) -> tuple[float, str]:
+    """Split a datasheet value such as ``"0.15 °/√h"`` into (number, unit text)."""
+    t = text.replace("−", "-")
+    t = _TEN_POWER.sub(lambda m: "^" + m.group(1).translate(_SUPERSCRIPTS), t)
+    m = _NUMBER.match(t)
+    if m is None:
+        raise UnitError(f"cannot read '{text}' as a number followed by a unit")
+    number = float(m.group("mant")) * (10.0 ** int(m.group("exp")) if m.group("exp") else 1.0)
+    return number, m.group("unit")
+
+
+@lru_cache(maxsize=256)
+def kind_of(unit_text: str) -> str:
+    """The kind (key of :data:`KINDS`) whose SI unit has the dimension of ``unit_text``.
+
+    Parameters
+    ----------
+    unit_text : str
+        An SI unit expression, e.g. ``"(rad/s)*s**0.5"``.
+    """
+    _, _, dim = _parse_unit_cached(unit_text, False)
+    for name, info in KINDS.items():
+        if _parse_unit_cached(info.si, False)[2] == dim:
+            return name
+    raise UnitError(f"no known kind of quantity has the unit '{unit_text}'")

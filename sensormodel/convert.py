@@ -1,0 +1,269 @@
+"""Datasheet → noise model: where the conventions live.
+
+Each datasheet key becomes one term of DESIGN §4 (see ``datasheet.FIELDS``):
+
+=========================================  ===================================================
+datasheet                                  term
+=========================================  ===================================================
+angle / velocity random walk N             ``white(density=N)``
+noise density ND                           ``white(density=ND)`` (two-sided, default) or
+                                           ``white(density=ND/√2)`` (``density_is="one-sided"``)
+bias instability (floor F or coefficient)  ``flicker(coefficient=F/√(2 ln2/π))``, or with a
+                                           correlation time T: ``gauss_markov`` whose Allan
+                                           peak equals F (:func:`terms.gauss_markov_from_floor`)
+rate / acceleration random walk K          ``random_walk(density=K)``
+quantization Q (or step s: Q = s/√12)      ``quantization(coefficient=Q)``
+rate ramp R                                ``ramp(slope=R)``
+bias repeatability σ                       ``random_constant(sigma=σ)``
+=========================================  ===================================================
+
+References: IEEE Std 952-1997 Annex C (Allan-variance forms of the terms; the floor factor
+√(2 ln2/π) ≈ 0.6643); ARW = density for a two-sided density is common practice ("ARW [°/√h] =
+60 × density [°/s/√Hz]").
+"""
+
+from __future__ import annotations
+
+import math
+
+from .datasheet import FIELDS, AxisSpec, Datasheet
+from .errors import DatasheetError
+from .terms import (
+    Flicker,
+    Quantization,
+    RandomConstant,
+    RandomWalk,
+    Ramp,
+    Term,
+    White,
+)
+
+__all__ = [
+    "FLOOR_FACTOR",
+    "QUANTITY",
+    "noise_bandwidth",
+    "white_sample_std",
+    "axis_terms",
+    "datasheet_to_model",
+]
+
+#: Allan-deviation floor of flicker noise per unit coefficient, √(2 ln2/π) (IEEE Std 952 Annex C).
+FLOOR_FACTOR = math.sqrt(2.0 * math.log(2.0) / math.pi)
+
+#: instrument -> (channel quantity, SI unit of the channel)
+QUANTITY = {"gyro": ("angular_rate", "rad/s"), "accelerometer": ("acceleration", "m/s^2")}
+
+
+def noise_bandwidth(bandwidth: float, order: int = 1) -> float:
+    """Equivalent noise bandwidth of an n-th order Butterworth low-pass [Hz].
+
+    Parameters
+    ----------
+    bandwidth : float
+        The -3 dB frequency f_3dB [Hz].
+    order : int
+        Filter order n ≥ 1 (a single pole / RC is n = 1).
+
+    Returns
+    -------
+    float
+        ENBW = f_3dB · (π/(2n)) / sin(π/(2n)) [Hz], one-sided (positive frequencies):
+        π/2 · f_3dB for n = 1, π/(2√2) · f_3dB ≈ 1.1107 · f_3dB for n = 2.
+
+    References
+    ----------
+    S. Winder, "Analog and Digital Filter Design", 2nd ed., Newnes, Appendix A, Table A.3
+    ("Butterworth noise bandwidth", formula credited to A. B. Carlson).
+    """
+    if bandwidth <= 0 or not math.isfinite(bandwidth):
+        raise ValueError(f"{bandwidth=} must be a positive frequency in Hz")
+    if order < 1:
+        raise ValueError(f"{order=} must be >= 1")
+    x = math.pi / (2 * order)
+    return bandwidth * x / math.sin(x)
+
+
+def white_sample_std(
+    density: float,
+    sample_rate: float,
+    *,
+    bandwidth: float | None = None,
+    filter_order: int | None = None,
+) -> float:
+    """Standard deviation of one output sample of white noise of IEEE density ``density``.
+
+    Parameters
+    ----------
+    density : float
+        N [u·√s], two-sided PSD N² (IEEE Std 952 convention).
+    sample_rate : float
+        Output data rate [Hz].
+    bandwidth : float, optional
+        -3 dB bandwidth of the sensor's output filter [Hz]. Without it each sample is taken as
+        the average over its sample period (ENBW = rate/2).
+    filter_order : int, optional
+        Butterworth order of that filter (default 1).
+
+    Returns
+    -------
+    float
+        σ = N·√(2·ENBW) [u]; with no bandwidth, σ = N·√rate.
+
+    Notes
+    -----
+    The one-sided PSD is 2N², and noise through a filter of equivalent noise bandwidth B_e has
+    variance (one-sided PSD)·B_e = 2N²B_e (REFERENCES §0/§8; Winder, Table A.3). Sampling does
+    not change a variance, so B_e may exceed rate/2 (the excess aliases but still counts).
+    """
+    if bandwidth is None:
+        enbw = sample_rate / 2.0
+    else:
+        enbw = noise_bandwidth(bandwidth, filter_order or 1)
+    return density * math.sqrt(2.0 * enbw)
+
+
+def _meta(ax: AxisSpec, key: str, basis: str, text: str, used: str) -> dict:
+    meta = {"datasheet": {"field": ax.origin.get(key, key), "text": text, "column": used}}
+    return meta
+
+
+def axis_terms(ax: AxisSpec, *, basis: str = "typ") -> tuple[list[Term], list[str]]:
+    """The noise terms of one axis, and notes on the choices made.
+
+    Parameters
+    ----------
+    ax : AxisSpec
+        The resolved spec of one channel.
+    basis : {"typ", "max"}
+        Which datasheet column to use; a missing one falls back to the other (noted).
+    """
+    fields = FIELDS[ax.instrument]
+    values = ax.values
+    conv = ax.conventions
+    terms: list[Term] = []
+    notes: list[str] = []
+
+    def pick(key: str) -> tuple[float, str, str]:
+        value, text, used = values[key].pick(basis)
+        if used != basis:
+            notes.append(f"{ax.channel_id}: {ax.origin.get(key, key)} has no '{basis}' value; "
+                         f"'{used}' ({text}) used")
+        return value, text, used
+
+    walk = "angle_random_walk" if ax.instrument == "gyro" else "velocity_random_walk"
+    if walk in values:
+        n, text, used = pick(walk)
+        terms.append(White(density=n, meta=_meta(ax, walk, basis, text, used)))
+    elif "noise_density" in values:
+        n, text, used = pick("noise_density")
+        if conv["density_is"] == "one-sided":
+            n /= math.sqrt(2.0)
+        terms.append(White(density=n, meta=_meta(ax, "noise_density", basis, text, used)))
+    if "bias_instability" in values:
+        b, text, used = pick("bias_instability")
+        floor = b if conv["bias_instability_is"] == "floor" else b * FLOOR_FACTOR
+        meta = _meta(ax, "bias_instability", basis, text, used)
+        if "correlation_time" in values:
+            from .terms import gauss_markov_from_floor  # the peak constant is theory
+
+            t, t_text, _ = pick("correlation_time")
+            if t <= 0:
+                raise DatasheetError("correlation_time is zero", "a positive time such as '300 s'",
+                                     field=ax.origin["correlation_time"])
+            meta["datasheet"]["correlation_time"] = t_text
+            terms.append(gauss_markov_from_floor(floor, t, meta=meta))
+        else:
+            terms.append(Flicker(coefficient=floor / FLOOR_FACTOR, meta=meta))
+    elif "correlation_time" in values:
+        raise DatasheetError(
+            "correlation_time without bias_instability",
+            "a bias_instability to go with the correlation time (together they make a "
+            "Gauss-Markov bias)",
+            field=ax.origin["correlation_time"],
+        )
+    simple = {
+        "rate_random_walk": RandomWalk,
+        "acceleration_random_walk": RandomWalk,
+        "rate_ramp": Ramp,
+        "bias_repeatability": RandomConstant,
+    }
+    for key, cls in simple.items():
+        if key in values and key in fields:
+            v, text, used = pick(key)
+            name = cls.parameter_names()[0]
+            terms.append(cls(**{name: v}, meta=_meta(ax, key, basis, text, used)))
+    if "quantization" in values:
+        q, text, used = pick("quantization")
+        if conv["quantization_is"] == "step":
+            q /= math.sqrt(12.0)
+        terms.append(Quantization(coefficient=q, meta=_meta(ax, "quantization", basis, text, used)))
+    kept = []
+    for term in terms:
+        if all(v == 0 for v in term.parameters().values() if v is not None):
+            notes.append(f"{ax.channel_id}: {term.meta['datasheet']['field']} is zero; no term")
+        else:
+            kept.append(term)
+    return kept, notes
+
+
+def datasheet_to_model(ds: Datasheet, *, worst_case: bool = False):
+    """Convert a :class:`~sensormodel.datasheet.Datasheet` to a :class:`~sensormodel.model.NoiseModel`.
+
+    Parameters
+    ----------
+    ds : Datasheet
+        From :func:`sensormodel.load_datasheet`.
+    worst_case : bool
+        Use the datasheet's ``max`` column instead of ``typ`` (missing values fall back).
+
+    Returns
+    -------
+    NoiseModel
+        One channel per instrument axis (``gyro.x`` … ``accelerometer.z``), all values SI.
+    """
+    import datetime
+    import pathlib
+
+    from . import __version__
+    from .model import Channel, NoiseModel
+
+    basis = "max" if worst_case else "typ"
+    channels = []
+    notes: list[str] = []
+    for ax in ds.channels():
+        try:
+            terms, ax_notes = axis_terms(ax, basis=basis)
+        except DatasheetError as exc:
+            raise exc.located(source=ds.source) from None
+        notes.extend(ax_notes)
+        quantity, unit = QUANTITY[ax.instrument]
+        rate, _, _ = ax.values["sample_rate"].pick(basis)
+        bw = ax.values["bandwidth"].pick(basis)[0] if "bandwidth" in ax.values else None
+        channels.append(
+            Channel(
+                id=ax.channel_id,
+                quantity=quantity,
+                unit=unit,
+                sample_rate=rate,
+                bandwidth=bw,
+                filter_order=ax.filter_order if bw is not None else None,
+                terms=tuple(terms),
+            )
+        )
+    conventions = {
+        "psd": "IEEE Std 952 coefficients: white density N has two-sided PSD N^2 and one-sided "
+        "PSD 2 N^2; Allan variance N^2/tau",
+        "density_is": sorted({ax.conventions["density_is"] for ax in ds.channels()}),
+        "bias_instability_is": sorted({ax.conventions["bias_instability_is"] for ax in ds.channels()}),
+        "quantization_is": sorted({ax.conventions["quantization_is"] for ax in ds.channels()}),
+        "basis": basis,
+    }
+    provenance = {
+        "created_by": f"sensormodel {__version__}",
+        "created": datetime.datetime.now(datetime.UTC).isoformat(timespec="seconds"),
+        "from": "datasheet",
+        "datasheet": {"file": pathlib.Path(ds.source).name, "sha256": ds.sha256},
+        "notes": notes,
+    }
+    return NoiseModel(sensor=dict(ds.sensor), channels=tuple(channels), provenance=provenance,
+                      conventions=conventions)

@@ -1,0 +1,302 @@
+"""NoiseModel: sensor → channels → terms, and the noise-model JSON file (DESIGN §5).
+
+A :class:`NoiseModel` is immutable. Its channels carry their SI unit (``rad/s`` for gyros,
+``m/s^2`` for accelerometers), output rate and terms (:mod:`sensormodel.terms`). Files are
+validated against ``schemas/noise-model.schema.json`` on load and on save; unknown schema
+versions are refused.
+"""
+
+from __future__ import annotations
+
+import os
+from dataclasses import dataclass, field, replace
+from typing import Any
+
+from .errors import ModelFileError
+from .terms import TERM_TYPES, Term, term_from_dict
+
+__all__ = ["SCHEMA_ID", "Channel", "NoiseModel", "noise_model_schema"]
+
+#: The schema id written into, and required of, every noise-model file.
+SCHEMA_ID = "sensormodel/noise-model/1"
+
+@dataclass(frozen=True)
+class Channel:
+    """One sensor axis: its id, SI unit, output rate and noise terms.
+
+    Attributes
+    ----------
+    id : str
+        ``gyro.x`` … ``accelerometer.z`` (DESIGN §10), or another id for recorded channels.
+    quantity : str
+        ``angular_rate``, ``acceleration`` or ``as_recorded``.
+    unit : str
+        The SI unit of the channel's output (``rad/s``, ``m/s^2``) or ``1`` (as recorded).
+    sample_rate : float
+        Output data rate [Hz].
+    terms : tuple of Term
+        The noise terms; the channel's noise is their sum.
+    bandwidth : float, optional
+        -3 dB bandwidth of the output filter [Hz].
+    filter_order : int, optional
+        Butterworth order of that filter.
+    """
+
+    id: str
+    quantity: str
+    unit: str
+    sample_rate: float
+    terms: tuple[Term, ...] = ()
+    bandwidth: float | None = None
+    filter_order: int | None = None
+
+    @property
+    def instrument(self) -> str:
+        """``gyro``, ``accelerometer`` or the part of the id before the dot."""
+        return self.id.split(".", 1)[0]
+
+    def term(self, type_: str) -> Term | None:
+        """The first term of the given type, or ``None``."""
+        for t in self.terms:
+            if t.type == type_:
+                return t
+        return None
+
+    def white_sample_std(self, rate: float | None = None) -> float:
+        """Per-sample standard deviation of the white term at ``rate`` [Hz] (default: the
+        channel's), following the output-filter rule of :func:`convert.white_sample_std` [unit]."""
+        from .convert import white_sample_std
+
+        white = self.term("white")
+        if white is None:
+            return 0.0
+        return white_sample_std(
+            white.density,  # type: ignore[attr-defined]
+            rate or self.sample_rate,
+            bandwidth=self.bandwidth,
+            filter_order=self.filter_order,
+        )
+
+    def to_dict(self) -> dict[str, Any]:
+        """The channel entry of the noise-model JSON."""
+        out: dict[str, Any] = {
+            "id": self.id,
+            "quantity": self.quantity,
+            "unit": self.unit,
+            "sample_rate": self.sample_rate,
+        }
+        if self.bandwidth is not None:
+            out["bandwidth"] = self.bandwidth
+        if self.filter_order is not None:
+            out["filter_order"] = self.filter_order
+        out["terms"] = [t.to_dict() for t in self.terms]
+        return out
+
+    @classmethod
+    def from_dict(cls, data: dict[str, Any], *, where: str = "channel") -> Channel:
+        """Build a channel from its JSON entry (already schema-validated)."""
+        terms = tuple(
+            term_from_dict(t, where=f"{where}.terms[{i}]") for i, t in enumerate(data["terms"])
+        )
+        return cls(
+            id=data["id"],
+            quantity=data["quantity"],
+            unit=data["unit"],
+            sample_rate=float(data["sample_rate"]),
+            terms=terms,
+            bandwidth=data.get("bandwidth"),
+            filter_order=data.get("filter_order"),
+        )
+
+
+@dataclass(frozen=True)
+class NoiseModel:
+    """A sensor's noise model: channels of summed noise terms, all in SI.
+
+    Build one with :meth:`from_datasheet` or :meth:`load`; write it with :meth:`save`.
+    """
+
+    sensor: dict[str, Any]
+    channels: tuple[Channel, ...]
+    provenance: dict[str, Any] = field(default_factory=dict)
+    conventions: dict[str, Any] = field(default_factory=dict)
+
+    def __post_init__(self) -> None:
+        ids = [c.id for c in self.channels]
+        dup = sorted({i for i in ids if ids.count(i) > 1})
+        if dup:
+            raise ModelFileError(f"duplicate channel ids {dup}", "one entry per channel")
+
+    # -- construction and files ------------------------------------------------------------
+
+    @classmethod
+    def from_datasheet(cls, datasheet: Any, *, worst_case: bool = False) -> NoiseModel:
+        """Build the model of a datasheet (a path or a :class:`~sensormodel.datasheet.Datasheet`).
+
+        Parameters
+        ----------
+        datasheet : path-like or Datasheet
+            The datasheet TOML file or an already loaded datasheet.
+        worst_case : bool
+            Use the ``max`` values instead of ``typ``.
+        """
+        from .convert import datasheet_to_model
+        from .datasheet import Datasheet, load_datasheet
+
+        ds = datasheet if isinstance(datasheet, Datasheet) else load_datasheet(datasheet)
+        return datasheet_to_model(ds, worst_case=worst_case)
+
+    def to_dict(self) -> dict[str, Any]:
+        """The JSON document of DESIGN §5."""
+        return {
+            "schema": SCHEMA_ID,
+            "sensor": self.sensor,
+            "provenance": self.provenance,
+            "conventions": self.conventions,
+            "channels": [c.to_dict() for c in self.channels],
+        }
+
+    @classmethod
+    def from_dict(cls, data: Any, *, source: str | None = None) -> NoiseModel:
+        """Validate a JSON document and build the model; refuse unknown schema versions."""
+        from ._io import validate
+
+        if not isinstance(data, dict):
+            raise ModelFileError("not a JSON object", "a noise-model document", source=source)
+        schema = data.get("schema")
+        if schema != SCHEMA_ID:
+            raise ModelFileError(
+                f"schema is {schema!r}",
+                f"'{SCHEMA_ID}' (a noise-model file written by this version of sensormodel)",
+                source=source,
+                field="schema",
+            )
+        validate(data, "noise-model.schema.json", source=source)
+        try:
+            channels = tuple(
+                Channel.from_dict(c, where=f"channels[{i}]") for i, c in enumerate(data["channels"])
+            )
+            return cls(
+                sensor=data["sensor"],
+                channels=channels,
+                provenance=data.get("provenance", {}),
+                conventions=data.get("conventions", {}),
+            )
+        except ModelFileError as exc:
+            raise exc.located(source=source) from None
+
+    @classmethod
+    def load(cls, path: str | os.PathLike[str]) -> NoiseModel:
+        """Read and validate a noise-model JSON file."""
+        from ._io import read_json
+
+        return cls.from_dict(read_json(path), source=str(path))
+
+    def save(self, path: str | os.PathLike[str], *, force: bool = False) -> None:
+        """Validate and write the model atomically; refuse to overwrite unless ``force``."""
+        from ._io import write_json
+
+        write_json(path, self.to_dict(), force=force, schema="noise-model.schema.json")
+
+    # -- access ----------------------------------------------------------------------------
+
+    @property
+    def channel_ids(self) -> list[str]:
+        """The channel ids in file order."""
+        return [c.id for c in self.channels]
+
+    def channel(self, channel_id: str) -> Channel:
+        """The channel with this id (``.`` and ``_`` interchangeable, case ignored)."""
+        key = channel_id.replace("_", ".").lower()
+        for c in self.channels:
+            if c.id.replace("_", ".").lower() == key:
+                return c
+        raise ModelFileError(
+            f"no channel '{channel_id}'", f"one of {', '.join(self.channel_ids)}", field="channel"
+        )
+
+    def select(self, channel_ids: list[str] | None) -> NoiseModel:
+        """A model with only the given channels (all when ``None``)."""
+        if not channel_ids:
+            return self
+        return replace(self, channels=tuple(self.channel(c) for c in channel_ids))
+
+    def with_channel(self, channel: Channel) -> NoiseModel:
+        """A model with ``channel`` replacing the channel of the same id (or appended)."""
+        chans = [channel if c.id == channel.id else c for c in self.channels]
+        if channel.id not in self.channel_ids:
+            chans.append(channel)
+        return replace(self, channels=tuple(chans))
+
+    # --- theory (linear.py) ---------------------------------------------------------------
+    # (Allan deviation, PSD and discretization of the model: see sensormodel.linear)
+
+
+def _term_schema(cls: type[Term]) -> dict[str, Any]:
+    names = cls.parameter_names()
+    optional = set(cls.optional_parameters())
+    props: dict[str, Any] = {"type": {"const": cls.type}}
+    for n in names:
+        if n in optional:
+            props[n] = {"type": ["number", "null"], "minimum": 0}
+        else:
+            props[n] = {"type": "number", "minimum": 0}
+    return {
+        "type": "object",
+        "properties": props,
+        "required": ["type", *[n for n in names if n not in optional]],
+    }
+
+
+def noise_model_schema() -> dict[str, Any]:
+    """The JSON Schema of noise-model files, generated from :data:`terms.TERM_TYPES`."""
+    term_variants = [_term_schema(cls) for cls in TERM_TYPES.values()]
+    return {
+        "$schema": "https://json-schema.org/draft/2020-12/schema",
+        "$id": SCHEMA_ID,
+        "title": "sensormodel noise model",
+        "description": "A sensor noise model; all values SI. Generated from sensormodel.terms; "
+        "do not edit by hand.",
+        "type": "object",
+        "required": ["schema", "sensor", "channels"],
+        "properties": {
+            "schema": {"const": SCHEMA_ID},
+            "sensor": {
+                "type": "object",
+                "properties": {
+                    "name": {"type": "string"},
+                    "model": {"type": "string"},
+                    "axes": {"type": "array", "items": {"type": "string"}},
+                },
+            },
+            "provenance": {"type": "object"},
+            "conventions": {"type": "object"},
+            "channels": {
+                "type": "array",
+                "minItems": 1,
+                "items": {
+                    "type": "object",
+                    "required": ["id", "quantity", "unit", "sample_rate", "terms"],
+                    "properties": {
+                        "id": {"type": "string", "minLength": 1},
+                        "quantity": {"enum": ["angular_rate", "acceleration", "as_recorded"]},
+                        "unit": {"type": "string"},
+                        "sample_rate": {"type": "number", "exclusiveMinimum": 0},
+                        "bandwidth": {"type": "number", "exclusiveMinimum": 0},
+                        "filter_order": {"type": "integer", "minimum": 1, "maximum": 8},
+                        "terms": {
+                            "type": "array",
+                            "items": {
+                                "type": "object",
+                                "required": ["type"],
+                                "properties": {"type": {"enum": sorted(TERM_TYPES)}},
+                                "oneOf": term_variants,
+                            },
+                        },
+                    },
+                    "additionalProperties": False,
+                },
+            },
+        },
+        "additionalProperties": False,
+    }
