@@ -460,34 +460,42 @@ def load_datasheet(path: str | os.PathLike[str]) -> Datasheet:
 
 def datasheet_schema() -> dict[str, Any]:
     """The JSON Schema of datasheet files, generated from :data:`FIELDS` and :data:`CONVENTIONS`."""
-    quantity = {"type": "string", "minLength": 1, "description": "a number followed by its unit"}
-    spec = {
-        "oneOf": [
-            quantity,
-            {
-                "type": "object",
-                "properties": {"typ": quantity, "max": quantity},
-                "additionalProperties": False,
-                "minProperties": 1,
-            },
-        ]
-    }
+    ref = {"$ref": "#/$defs/spec"}
     conv = {
         key: {"enum": list(allowed), "default": default}
         for key, (allowed, default) in CONVENTIONS.items()
     }
-    order = {"type": "integer", "minimum": 1, "maximum": _MAX_FILTER_ORDER}
+    order = {"$ref": "#/$defs/filter_order"}
     axes = {"type": "array", "items": {"enum": list(_AXES)}, "minItems": 1, "uniqueItems": True}
 
     def term_props(name: str) -> dict[str, Any]:
         return {
-            key: {**spec, "description": f"{f.what}, {KINDS[f.kind].what} (e.g. '{KINDS[f.kind].example}')"}
+            key: {
+                **ref,
+                "description": f"{f.what}: {KINDS[f.kind].what}, e.g. '{KINDS[f.kind].example}'",
+            }
             for key, f in FIELDS[name].items()
         }
 
+    defs: dict[str, Any] = {
+        "quantity": {"type": "string", "minLength": 1, "description": "a number, then its unit"},
+        "spec": {
+            "oneOf": [
+                {"$ref": "#/$defs/quantity"},
+                {
+                    "type": "object",
+                    "properties": {"typ": {"$ref": "#/$defs/quantity"},
+                                   "max": {"$ref": "#/$defs/quantity"}},
+                    "additionalProperties": False,
+                    "minProperties": 1,
+                },
+            ]
+        },
+        "filter_order": {"type": "integer", "minimum": 1, "maximum": _MAX_FILTER_ORDER},
+    }
     instruments = {}
     for name in INSTRUMENTS:
-        axis_table = {
+        defs[f"{name}_axis"] = {
             "type": "object",
             "properties": {**term_props(name), **conv, "filter_order": order},
             "additionalProperties": False,
@@ -499,7 +507,7 @@ def datasheet_schema() -> dict[str, Any]:
                 **conv,
                 "filter_order": order,
                 "axes": axes,
-                **{a: axis_table for a in _AXES},
+                **{a: {"$ref": f"#/$defs/{name}_axis"} for a in _AXES},
             },
             "additionalProperties": False,
         }
@@ -508,8 +516,8 @@ def datasheet_schema() -> dict[str, Any]:
         "properties": {
             **{k: {"type": "string"} for k in _SENSOR_TEXT_KEYS},
             "axes": axes,
-            "sample_rate": {**spec, "description": "output data rate, e.g. '400 Hz'"},
-            "bandwidth": {**spec, "description": "output filter -3 dB bandwidth, e.g. '100 Hz'"},
+            "sample_rate": {**ref, "description": "output data rate, e.g. '400 Hz'"},
+            "bandwidth": {**ref, "description": "output filter -3 dB bandwidth, e.g. '100 Hz'"},
             "filter_order": order,
             **conv,
         },
@@ -525,4 +533,5 @@ def datasheet_schema() -> dict[str, Any]:
         "properties": {"sensor": sensor, **instruments},
         "required": ["sensor"],
         "additionalProperties": False,
+        "$defs": defs,
     }
