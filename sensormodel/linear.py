@@ -1,0 +1,575 @@
+"""State-space algebra of the noise models: stacking, exact discretization, covariance.
+
+Every noise term of :mod:`sensormodel.terms` has a finite linear realization driven by white
+noise (DESIGN §4)::
+
+    dx/dt = F x + G w,     E[w(t) w(s)ᵀ] = Qc δ(t − s)
+    y(t)  = H x + v(t),    E[v(t) v(s)]  = N² δ(t − s)      (the white term)
+
+plus, for quantization, a component that exists only in discrete time (see :class:`StateSpace`).
+``Qc`` is the *two-sided* spectral density of ``w`` (IEEE Std 952 convention, DESIGN §3), so the
+output's two-sided PSD per hertz is ``S(f) = T(jω) Qc T(jω)ᴴ + N²`` with ``T(s) = H (sI − F)⁻¹ G``
+and ω = 2πf (the classical result for the output of a linear system driven by white noise,
+``S_out(ω) = H(−jω) W H(jω)ᵀ``).
+
+This module provides
+
+* :func:`stack` — a channel's terms as one block-diagonal system;
+* :func:`van_loan` — exact Φ = e^{F dt} and Qd = ∫₀^dt e^{Fs} G Qc Gᵀ e^{Fᵀs} ds (C. F. Van Loan,
+  "Computing integrals involving the matrix exponential", IEEE Trans. Automatic Control
+  AC-23(3):395-404, 1978);
+* :func:`steady_state_covariance` — the solution of F P + P Fᵀ + G Qc Gᵀ = 0;
+* :func:`propagate` — P(t) of the variance equation dP/dt = F P + P Fᵀ + G Qc Gᵀ, integrated
+  exactly through the discrete form P ← Φ P Φᵀ + Qd;
+* :func:`discretize` — Φ, Qd, H, R, P0 of a channel at a filter step dt (:class:`DiscreteModel`);
+* the PSD and exact Allan variance of a realization (:meth:`StateSpace.psd`,
+  :meth:`StateSpace.allan_variance`), used to check each realization against its term.
+
+All arrays are SI: states in the channel unit u (rad/s, m/s²) or its integrals, times in s.
+"""
+
+from __future__ import annotations
+
+import math
+from collections.abc import Sequence
+from dataclasses import dataclass
+from typing import TYPE_CHECKING, Any
+
+import numpy as np
+import numpy.typing as npt
+
+from .errors import AnalysisError
+
+if TYPE_CHECKING:  # pragma: no cover
+    from .terms import Term
+
+__all__ = [
+    "StateSpace",
+    "DiscreteModel",
+    "R_CONVENTION",
+    "R_CONVENTION_QUANTIZATION_IN_R",
+    "stack",
+    "van_loan",
+    "steady_state_covariance",
+    "propagate",
+    "discretize",
+]
+
+#: The meaning of R written into every exported discrete model (DESIGN §10).
+R_CONVENTION = (
+    "y_k = H x_k + v_k with var(v_k) = R [unit^2]: R = N^2/dt, the variance of the channel's white "
+    "term (IEEE Std 952 density N, two-sided PSD N^2) averaged over one step dt, i.e. the "
+    "measurement is the sensor output averaged over the step (for a single raw sample use "
+    "dt = 1/sample_rate). Quantization (Q) is not in R: it is carried exactly by two discrete "
+    "states [e_k, e_(k-1)] (white angle/velocity error of variance Q^2) seen through "
+    "H = [1/dt, -1/dt]."
+)
+
+#: R convention when quantization is folded into R (``discretize(..., quantization="r")``).
+R_CONVENTION_QUANTIZATION_IN_R = (
+    "y_k = H x_k + v_k with var(v_k) = R [unit^2]: R = N^2/dt + 2 Q^2/dt^2, the variance of the "
+    "white term (IEEE Std 952 density N, two-sided PSD N^2) averaged over one step dt plus the "
+    "variance of the quantization term (Q) seen over one step; the lag-one correlation -1/2 of the "
+    "quantization part is neglected, which overstates the integrated error (conservative)."
+)
+
+_FloatArray = npt.NDArray[np.float64]
+
+
+def _matrix(value: Any, name: str, shape: tuple[int | None, int | None]) -> _FloatArray:
+    a = np.asarray(value, dtype=float)
+    if a.ndim == 0 and shape == (1, 1):
+        a = a.reshape(1, 1)
+    if a.ndim != 2:
+        raise AnalysisError(f"{name} has {a.ndim} dimensions", f"a 2-D matrix for {name}")
+    for got, want, what in zip(a.shape, shape, ("rows", "columns"), strict=True):
+        if want is not None and got != want:
+            raise AnalysisError(f"{name} has {got} {what}", f"{want} {what} for {name}")
+    if not np.all(np.isfinite(a)):
+        raise AnalysisError(f"{name} has non-finite entries", f"finite numbers in {name}")
+    return a
+
+
+def _system(F: Any, G: Any, Qc: Any) -> tuple[_FloatArray, _FloatArray, _FloatArray]:
+    F = _matrix(F, "F", (None, None))
+    n = F.shape[0]
+    if F.shape[1] != n:
+        raise AnalysisError(f"F is {F.shape[0]}x{F.shape[1]}", "a square F")
+    G = _matrix(G, "G", (n, None))
+    m = G.shape[1]
+    Qc = _matrix(Qc, "Qc", (m, m))
+    if not np.allclose(Qc, Qc.T, rtol=1e-12, atol=0.0):
+        raise AnalysisError("Qc is not symmetric", "a symmetric noise intensity Qc")
+    return F, G, Qc
+
+
+def _block_diag(blocks: Sequence[_FloatArray]) -> _FloatArray:
+    rows = sum(b.shape[0] for b in blocks)
+    cols = sum(b.shape[1] for b in blocks)
+    out = np.zeros((rows, cols))
+    r = c = 0
+    for b in blocks:
+        out[r : r + b.shape[0], c : c + b.shape[1]] = b
+        r += b.shape[0]
+        c += b.shape[1]
+    return out
+
+
+@dataclass(frozen=True)
+class StateSpace:
+    """A finite realization of one term or of a channel's sum of terms.
+
+    Attributes
+    ----------
+    F : ndarray, shape (n, n)
+        Dynamics matrix [1/s].
+    G : ndarray, shape (n, m)
+        Noise input matrix.
+    Qc : ndarray, shape (m, m)
+        Two-sided spectral density of the driving white noise w (E[w(t) w(s)ᵀ] = Qc δ(t − s)).
+    H : ndarray, shape (1, n)
+        Output matrix: the channel's noise is y = H x (+ white + quantization).
+    P0 : ndarray, shape (n, n)
+        Covariance of x at t = 0 (turn-on): the stationary covariance for Gauss-Markov states,
+        0 for random walks (they start at zero), σ² for random constants, R² for a ramp slope.
+    states : tuple of str
+        One name per state, e.g. ``("random_walk", "gauss_markov")``.
+    white : float
+        Two-sided PSD N² of white noise added to the output [u²·s] (the ``white`` term). It has
+        no state; in discrete time it becomes R = N²/dt.
+    quantization : float
+        Q² [u²·s²] of the ``quantization`` term. Quantization is white noise on the *integral*
+        of the output (angle, velocity), so its rate-domain PSD grows as f² and it has no finite
+        continuous realization. It is realized exactly in discrete time (:func:`discretize`) and
+        handled in closed form by :meth:`allan_variance`, :meth:`psd` and the drift module.
+    sample_rate : float, optional
+        The channel's output rate [Hz]; needed for the quantization PSD.
+    """
+
+    F: _FloatArray
+    G: _FloatArray
+    Qc: _FloatArray
+    H: _FloatArray
+    P0: _FloatArray
+    states: tuple[str, ...] = ()
+    white: float = 0.0
+    quantization: float = 0.0
+    sample_rate: float | None = None
+
+    def __post_init__(self) -> None:
+        F, G, Qc = _system(self.F, self.G, self.Qc)
+        n = F.shape[0]
+        H = _matrix(self.H, "H", (1, n)) if n else np.zeros((1, 0))
+        P0 = _matrix(self.P0, "P0", (n, n)) if n else np.zeros((0, 0))
+        for name, v in (("F", F), ("G", G), ("Qc", Qc), ("H", H), ("P0", P0)):
+            object.__setattr__(self, name, v)
+        if len(self.states) != n:
+            raise AnalysisError(f"{len(self.states)} state names for {n} states", "one per state")
+        object.__setattr__(self, "states", tuple(self.states))
+        for name in ("white", "quantization"):
+            v = float(getattr(self, name))
+            if not (math.isfinite(v) and v >= 0):
+                raise AnalysisError(f"{name} = {v!r}", "a finite, non-negative intensity")
+            object.__setattr__(self, name, v)
+
+    @property
+    def n(self) -> int:
+        """Number of continuous states."""
+        return int(self.F.shape[0])
+
+    def psd(self, f: npt.ArrayLike, *, sided: str = "two-sided") -> _FloatArray:
+        """PSD of the realization's output, S(f) = T(j2πf) Qc T(j2πf)ᴴ + N² (+ quantization).
+
+        Parameters
+        ----------
+        f : array_like
+            Frequencies [Hz], positive.
+        sided : {"two-sided", "one-sided"}
+            Two-sided (IEEE Std 952 convention, default) or one-sided (= 2 × two-sided).
+
+        Returns
+        -------
+        ndarray
+            PSD [u²/Hz]. Random-constant and ramp states, driven by no noise, add nothing (they
+            act through P0 only). Quantization adds (4Q²/τ0)·sin²(πfτ0) with τ0 = 1/sample_rate
+            (IEEE Std 952 Annex C), for f below the Nyquist frequency.
+        """
+        f = _positive_array(f, "f")
+        factor = _sided_factor(sided)
+        s = np.full(f.shape, self.white)
+        if self.n:
+            w = 2.0 * np.pi * f.ravel()
+            eye = np.eye(self.n)
+            A = 1j * w[:, None, None] * eye[None] - self.F[None]
+            X = np.linalg.solve(A, np.broadcast_to(self.G, (w.size, *self.G.shape)))
+            T = np.einsum("ij,kjl->kil", self.H, X)  # (k, 1, m)
+            S = np.einsum("kil,lm,kim->k", T, self.Qc, T.conj()).real
+            s = s + S.reshape(f.shape)
+        if self.quantization:
+            if not self.sample_rate:
+                raise AnalysisError(
+                    "the quantization PSD needs the sample period", "a sample_rate [Hz]"
+                )
+            tau0 = 1.0 / self.sample_rate
+            s = s + 4.0 * self.quantization / tau0 * np.sin(np.pi * f * tau0) ** 2
+        return factor * s
+
+    def allan_variance(self, tau: npt.ArrayLike) -> _FloatArray:
+        """Exact Allan variance of the realization, from its covariance.
+
+        The Allan variance is σ²(τ) = ½ E[(ȳ₂ − ȳ₁)²] with ȳ₁, ȳ₂ the means of y over
+        [0, τ] and [τ, 2τ] (IEEE Std 952 Annex C definition). With an accumulator state c,
+        dc/dt = −y on [0, τ] and +y on [τ, 2τ], c(2τ) = τ (ȳ₂ − ȳ₁); its variance follows
+        exactly from two Van Loan steps starting from ``P0`` (stationary for Gauss-Markov
+        states). Quantization adds 3Q²/τ² (discrete-only component).
+
+        Parameters
+        ----------
+        tau : array_like
+            Averaging times [s], positive.
+
+        Returns
+        -------
+        ndarray
+            Allan variance [u²].
+        """
+        tau = _positive_array(tau, "tau")
+        n = self.n
+        Fa_minus = np.zeros((n + 1, n + 1))
+        Fa_minus[:n, :n] = self.F
+        Fa_minus[n, :n] = -self.H[0]
+        Fa_plus = Fa_minus.copy()
+        Fa_plus[n, :n] = self.H[0]
+        Ga = _block_diag([self.G, np.ones((1, 1))])
+        Qa = _block_diag([self.Qc, np.full((1, 1), self.white)])
+        Pa = _block_diag([self.P0, np.zeros((1, 1))])
+        out = np.empty(tau.size)
+        for i, t in enumerate(tau.ravel()):
+            phi, qd = van_loan(Fa_minus, Ga, Qa, float(t))
+            p1 = phi @ Pa @ phi.T + qd
+            phi, qd = van_loan(Fa_plus, Ga, Qa, float(t))
+            p2 = phi @ p1 @ phi.T + qd
+            out[i] = 0.5 * p2[n, n] / t**2
+        out = out.reshape(tau.shape)
+        if self.quantization:
+            out = out + 3.0 * self.quantization / tau**2
+        return out
+
+
+def _positive_array(x: npt.ArrayLike, name: str) -> _FloatArray:
+    a = np.asarray(x, dtype=float)
+    if a.size == 0:
+        raise AnalysisError(f"{name} is empty", f"at least one {name} value")
+    if not np.all(np.isfinite(a)) or np.any(a <= 0):
+        bad = a[~(np.isfinite(a) & (a > 0))].ravel()[0]
+        raise AnalysisError(f"{name} contains {bad!r}", f"positive, finite values of {name}")
+    return a
+
+
+def _sided_factor(sided: str) -> float:
+    if sided == "two-sided":
+        return 1.0
+    if sided == "one-sided":
+        return 2.0
+    raise AnalysisError(f"sided = {sided!r}", "'two-sided' or 'one-sided'")
+
+
+def stack(terms: Sequence[Term], *, sample_rate: float | None = None) -> StateSpace:
+    """Stack a channel's terms into one block-diagonal system (their outputs add).
+
+    Parameters
+    ----------
+    terms : sequence of Term
+        The channel's noise terms (:mod:`sensormodel.terms`).
+    sample_rate : float, optional
+        The channel's output rate [Hz]; needed by flicker (realization band) and quantization.
+
+    Returns
+    -------
+    StateSpace
+        F, G, Qc, P0 block-diagonal (the terms are independent), H the concatenation, white and
+        quantization intensities summed. Repeated state names get a ``#2``, ``#3`` suffix.
+    """
+    parts = [t.state_space(sample_rate=sample_rate) for t in terms]
+    names: list[str] = []
+    for p in parts:
+        for s in p.states:
+            name, k = s, 2
+            while name in names:
+                name, k = f"{s}#{k}", k + 1
+            names.append(name)
+    n = sum(p.n for p in parts)
+    return StateSpace(
+        F=_block_diag([p.F for p in parts]) if parts else np.zeros((0, 0)),
+        G=_block_diag([p.G for p in parts]) if parts else np.zeros((0, 0)),
+        Qc=_block_diag([p.Qc for p in parts]) if parts else np.zeros((0, 0)),
+        H=np.concatenate([p.H for p in parts], axis=1) if n else np.zeros((1, 0)),
+        P0=_block_diag([p.P0 for p in parts]) if parts else np.zeros((0, 0)),
+        states=tuple(names),
+        white=sum(p.white for p in parts),
+        quantization=sum(p.quantization for p in parts),
+        sample_rate=sample_rate,
+    )
+
+
+def van_loan(
+    F: npt.ArrayLike, G: npt.ArrayLike, Qc: npt.ArrayLike, dt: float
+) -> tuple[_FloatArray, _FloatArray]:
+    """Exact discretization of dx/dt = F x + G w, E[w wᵀ] = Qc δ, over a step dt.
+
+    Van Loan's method (C. F. Van Loan, IEEE Trans. Automatic Control AC-23(3):395-404, 1978):
+    with A = [[−F, G Qc Gᵀ], [0, Fᵀ]]·h and B = expm(A), Φ(h) = B₂₂ᵀ and Qd(h) = Φ(h) B₁₂.
+    To keep e^{−F h} from overflowing for stiff systems (time constants far below dt) the step
+    is split into 2^k equal parts with ‖F‖₁ h ≤ 1 and doubled back exactly:
+    Qd(2h) = Φ(h) Qd(h) Φ(h)ᵀ + Qd(h), Φ(2h) = Φ(h)².
+
+    Parameters
+    ----------
+    F : array_like, shape (n, n)
+        Dynamics [1/s].
+    G : array_like, shape (n, m)
+        Noise input matrix.
+    Qc : array_like, shape (m, m)
+        Two-sided spectral density of w.
+    dt : float
+        Step [s], non-negative.
+
+    Returns
+    -------
+    Phi : ndarray, shape (n, n)
+        State transition matrix e^{F dt}.
+    Qd : ndarray, shape (n, n)
+        Covariance of the noise accumulated over the step, ∫₀^dt e^{Fs} G Qc Gᵀ e^{Fᵀs} ds.
+    """
+    from scipy.linalg import expm
+
+    F, G, Qc = _system(F, G, Qc)
+    dt = float(dt)
+    if not (math.isfinite(dt) and dt >= 0):
+        raise AnalysisError(f"dt = {dt!r}", "a non-negative, finite step in s")
+    n = F.shape[0]
+    if n == 0:
+        return np.zeros((0, 0)), np.zeros((0, 0))
+    W = G @ Qc @ G.T
+    norm = float(np.linalg.norm(F, 1)) * dt
+    k = 0 if norm <= 1.0 else int(math.ceil(math.log2(norm)))
+    h = dt / 2.0**k
+    A = np.zeros((2 * n, 2 * n))
+    A[:n, :n] = -F * h
+    A[:n, n:] = W * h
+    A[n:, n:] = F.T * h
+    B = expm(A)
+    phi = B[n:, n:].T.copy()
+    qd = phi @ B[:n, n:]
+    for _ in range(k):
+        qd = phi @ qd @ phi.T + qd
+        phi = phi @ phi
+    return phi, 0.5 * (qd + qd.T)
+
+
+def steady_state_covariance(
+    F: npt.ArrayLike,
+    G: npt.ArrayLike,
+    Qc: npt.ArrayLike,
+    *,
+    states: Sequence[str] | None = None,
+) -> _FloatArray:
+    """Stationary covariance P of dx/dt = F x + G w: the solution of F P + P Fᵀ + G Qc Gᵀ = 0.
+
+    Solved as the limit P = lim Qd(t), t → ∞, by squaring the exact discrete form
+    (Qd(2t) = Φ(t) Qd(t) Φ(t)ᵀ + Qd(t), Φ(2t) = Φ(t)²; the "squared Smith" iteration of the
+    discrete Lyapunov equation P = Φ P Φᵀ + Qd), which converges quadratically for stable F.
+
+    Parameters
+    ----------
+    F, G, Qc : array_like
+        As in :func:`van_loan`.
+    states : sequence of str, optional
+        State names, for the error message.
+
+    Returns
+    -------
+    ndarray, shape (n, n)
+        The stationary covariance [state units²].
+
+    Raises
+    ------
+    AnalysisError
+        If F has an eigenvalue with non-negative real part: random walks, integrators, ramps and
+        random constants have no (unique) steady state.
+    """
+    F, G, Qc = _system(F, G, Qc)
+    n = F.shape[0]
+    if n == 0:
+        return np.zeros((0, 0))
+    eig = np.linalg.eigvals(F)
+    if np.max(eig.real) >= 0:
+        names = list(states) if states is not None else [f"x{i}" for i in range(n)]
+        # States whose own dynamics are not damped (exact for the block-diagonal stacks here).
+        bad = [names[i] for i in range(n) if F[i, i] >= 0] or names
+        raise AnalysisError(
+            f"no steady state: states {', '.join(bad)} are not stationary "
+            f"(F has an eigenvalue with real part {np.max(eig.real):.3g} >= 0)",
+            "a stable system (only Gauss-Markov-type states) for a steady-state covariance",
+        )
+    h = 1.0 / float(np.linalg.norm(F, 1))
+    phi, qd = van_loan(F, G, Qc, h)
+    for _ in range(400):
+        qd = phi @ qd @ phi.T + qd
+        phi = phi @ phi
+        if np.max(np.abs(phi)) < 1e-18:
+            break
+    else:  # pragma: no cover - a stable F always converges well before this
+        raise AnalysisError("the steady-state iteration did not converge", "a stable system")
+    return 0.5 * (qd + qd.T)
+
+
+def propagate(
+    F: npt.ArrayLike,
+    G: npt.ArrayLike,
+    Qc: npt.ArrayLike,
+    P0: npt.ArrayLike,
+    times: npt.ArrayLike,
+) -> _FloatArray:
+    """Covariance P(t) of the variance equation dP/dt = F P + P Fᵀ + G Qc Gᵀ, P(0) = P0.
+
+    Integrated exactly through the discrete form: P(t_{i+1}) = Φ P(t_i) Φᵀ + Qd with Φ, Qd of
+    the step t_{i+1} − t_i from :func:`van_loan`. Steps equal to 12 significant digits share
+    one discretization.
+
+    Parameters
+    ----------
+    F, G, Qc : array_like
+        As in :func:`van_loan`.
+    P0 : array_like, shape (n, n)
+        Covariance at t = 0.
+    times : array_like
+        Non-decreasing, non-negative times [s].
+
+    Returns
+    -------
+    ndarray, shape (len(times), n, n)
+        P at each time.
+    """
+    F, G, Qc = _system(F, G, Qc)
+    n = F.shape[0]
+    P = _matrix(P0, "P0", (n, n)) if n else np.zeros((0, 0))
+    t = np.asarray(times, dtype=float).ravel()
+    if t.size == 0 or not np.all(np.isfinite(t)) or np.any(t < 0) or np.any(np.diff(t) < 0):
+        raise AnalysisError("times are empty, negative or decreasing", "non-decreasing times >= 0")
+    out = np.empty((t.size, n, n))
+    cache: dict[str, tuple[_FloatArray, _FloatArray]] = {}
+    prev = 0.0
+    for i, ti in enumerate(t):
+        step = float(ti - prev)
+        if step > 0:
+            key = f"{step:.12g}"
+            if key not in cache:
+                cache[key] = van_loan(F, G, Qc, step)
+            phi, qd = cache[key]
+            P = phi @ P @ phi.T + qd
+            P = 0.5 * (P + P.T)
+        out[i] = P
+        prev = float(ti)
+    return out
+
+
+@dataclass(frozen=True)
+class DiscreteModel:
+    """A channel's noise model in discrete time at a filter step dt.
+
+    ``x_{k+1} = Φ x_k + w_k``, ``cov(w_k) = Qd``; ``y_k = H x_k + v_k``, ``var(v_k) = R``
+    (see :attr:`r_convention`); ``cov(x_0) = P0``.
+
+    Attributes
+    ----------
+    dt : float
+        Step [s].
+    states : tuple of str
+        State names.
+    phi, qd, p0 : ndarray, shape (n, n)
+        Transition matrix, process-noise covariance [state units²], initial covariance.
+    h : ndarray, shape (1, n)
+        Measurement matrix.
+    r : float
+        Measurement-noise variance [u²].
+    r_convention : str
+        What R means (written into export files).
+    """
+
+    dt: float
+    states: tuple[str, ...]
+    phi: _FloatArray
+    qd: _FloatArray
+    h: _FloatArray
+    r: float
+    p0: _FloatArray
+    r_convention: str = R_CONVENTION
+
+    def to_dict(self) -> dict[str, Any]:
+        """JSON-ready entry (without the channel id): states, phi, qd, h, r, p0."""
+        return {
+            "states": list(self.states),
+            "phi": self.phi.tolist(),
+            "qd": self.qd.tolist(),
+            "h": self.h.tolist(),
+            "r": float(self.r),
+            "p0": self.p0.tolist(),
+        }
+
+
+def discretize(source: Any, dt: float, *, quantization: str = "states") -> DiscreteModel:
+    """Exact discrete model of a channel (or of a :class:`StateSpace`) at step dt.
+
+    Parameters
+    ----------
+    source : Channel or StateSpace
+        A channel (anything with ``terms`` and ``sample_rate``) or an already stacked system.
+    dt : float
+        Filter step [s], positive.
+    quantization : {"states", "r"}
+        How the quantization term (if any) is carried. ``"states"`` (default, exact): two
+        discrete states [e_k, e_(k−1)] of the integrated-output error, Φ block [[0, 0], [1, 0]],
+        Qd block diag(Q², 0), H entries [1/dt, −1/dt], P0 diag(Q², Q²), so the measurement
+        sees (e_k − e_(k−1))/dt. ``"r"``: no states; 2Q²/dt² is added to R (its lag-one
+        correlation of −½ neglected; conservative).
+
+    Returns
+    -------
+    DiscreteModel
+        Φ, Qd from :func:`van_loan`; H; R = N²/dt (+ quantization with ``"r"``); P0.
+    """
+    dt = float(dt)
+    if not (math.isfinite(dt) and dt > 0):
+        raise AnalysisError(f"dt = {dt!r}", "a positive step in s")
+    if quantization not in ("states", "r"):
+        raise AnalysisError(f"quantization = {quantization!r}", "'states' or 'r'")
+    ss = (
+        source
+        if isinstance(source, StateSpace)
+        else stack(source.terms, sample_rate=source.sample_rate)
+    )
+    phi, qd = van_loan(ss.F, ss.G, ss.Qc, dt)
+    h, p0, states = ss.H, ss.P0, list(ss.states)
+    r = ss.white / dt
+    convention = R_CONVENTION
+    if ss.quantization and quantization == "states":
+        q2 = ss.quantization
+        phi = _block_diag([phi, np.array([[0.0, 0.0], [1.0, 0.0]])])
+        qd = _block_diag([qd, np.diag([q2, 0.0])])
+        p0 = _block_diag([p0, np.diag([q2, q2])])
+        h = np.concatenate([h, [[1.0 / dt, -1.0 / dt]]], axis=1)
+        states += ["quantization.e[k]", "quantization.e[k-1]"]
+    elif ss.quantization:
+        r += 2.0 * ss.quantization / dt**2
+        convention = R_CONVENTION_QUANTIZATION_IN_R
+    return DiscreteModel(
+        dt=dt,
+        states=tuple(states),
+        phi=phi,
+        qd=qd,
+        h=np.asarray(h, dtype=float).reshape(1, -1),
+        r=float(r),
+        p0=p0,
+        r_convention=convention,
+    )
