@@ -77,6 +77,66 @@ class Channel:
             filter_order=self.filter_order,
         )
 
+    # --- theory (linear.py) -----------------------------------------------------------------
+
+    def allan_variance(self, tau: Any) -> Any:
+        """Allan variance of the channel's noise, the sum of its terms' exact forms [unit²].
+
+        Parameters
+        ----------
+        tau : array_like
+            Averaging times [s], positive.
+        """
+        import numpy as np
+
+        from .linear import _positive_array
+
+        tau = _positive_array(tau, "tau")
+        total = np.zeros(tau.shape)
+        for t in self.terms:
+            total = total + t.allan_variance(tau, sample_rate=self.sample_rate)
+        return total
+
+    def allan_deviation(self, tau: Any) -> Any:
+        """Allan deviation of the channel's noise [unit] (see :meth:`allan_variance`)."""
+        import numpy as np
+
+        return np.sqrt(self.allan_variance(tau))
+
+    def psd(self, f: Any, *, sided: str = "two-sided") -> Any:
+        """PSD of the channel's noise, the sum of its terms' PSDs [unit²/Hz].
+
+        Parameters
+        ----------
+        f : array_like
+            Frequencies [Hz], positive.
+        sided : {"two-sided", "one-sided"}
+            Two-sided (IEEE Std 952 convention, default) or one-sided (= 2 × two-sided).
+        """
+        import numpy as np
+
+        from .linear import _positive_array, _sided_factor
+
+        f = _positive_array(f, "f")
+        factor = _sided_factor(sided)
+        total = np.zeros(f.shape)
+        for t in self.terms:
+            total = total + t.psd(f, sample_rate=self.sample_rate)
+        return factor * total
+
+    def state_space(self) -> Any:
+        """The channel's terms stacked into one :class:`~sensormodel.linear.StateSpace`."""
+        from .linear import stack
+
+        return stack(self.terms, sample_rate=self.sample_rate)
+
+    def discretize(self, dt: float, *, quantization: str = "states") -> Any:
+        """Exact discrete Φ, Qd, H, R, P0 at step ``dt`` [s]
+        (:func:`sensormodel.linear.discretize`)."""
+        from .linear import discretize
+
+        return discretize(self, dt, quantization=quantization)
+
     def to_dict(self) -> dict[str, Any]:
         """The channel entry of the noise-model JSON."""
         out: dict[str, Any] = {
@@ -231,6 +291,41 @@ class NoiseModel:
     # --- theory (linear.py) ---------------------------------------------------------------
     # (Allan deviation, PSD and discretization of the model: see sensormodel.linear)
 
+    def allan_deviation(self, tau: Any) -> dict[str, Any]:
+        """Allan deviation each channel's model predicts, {channel id: array [unit]}.
+
+        Parameters
+        ----------
+        tau : array_like
+            Averaging times [s], positive.
+        """
+        return {c.id: c.allan_deviation(tau) for c in self.channels}
+
+    def psd(self, f: Any, *, sided: str = "two-sided") -> dict[str, Any]:
+        """PSD of each channel's model, {channel id: array [unit²/Hz]}.
+
+        Parameters
+        ----------
+        f : array_like
+            Frequencies [Hz], positive.
+        sided : {"two-sided", "one-sided"}
+            Two-sided (IEEE Std 952 convention, default) or one-sided (= 2 × two-sided).
+        """
+        return {c.id: c.psd(f, sided=sided) for c in self.channels}
+
+    def discretize(self, dt: float, *, quantization: str = "states") -> dict[str, Any]:
+        """Exact discrete model of every channel at step ``dt`` [s],
+        {channel id: :class:`~sensormodel.linear.DiscreteModel`}.
+
+        Parameters
+        ----------
+        dt : float
+            Filter step [s].
+        quantization : {"states", "r"}
+            How quantization is carried (:func:`sensormodel.linear.discretize`).
+        """
+        return {c.id: c.discretize(dt, quantization=quantization) for c in self.channels}
+
 
 def _term_schema(cls: type[Term]) -> dict[str, Any]:
     names = cls.parameter_names()
@@ -241,10 +336,14 @@ def _term_schema(cls: type[Term]) -> dict[str, Any]:
             props[n] = {"type": ["number", "null"], "minimum": 0}
         else:
             props[n] = {"type": "number", "minimum": 0}
+    # if/then rather than oneOf: a bad term is then reported at the offending parameter
+    # ("-1 is less than the minimum of 0") instead of "not valid under any of the given schemas"
     return {
-        "type": "object",
-        "properties": props,
-        "required": ["type", *[n for n in names if n not in optional]],
+        "if": {"properties": {"type": {"const": cls.type}}, "required": ["type"]},
+        "then": {
+            "properties": props,
+            "required": ["type", *[n for n in names if n not in optional]],
+        },
     }
 
 
@@ -290,7 +389,7 @@ def noise_model_schema() -> dict[str, Any]:
                                 "type": "object",
                                 "required": ["type"],
                                 "properties": {"type": {"enum": sorted(TERM_TYPES)}},
-                                "oneOf": term_variants,
+                                "allOf": term_variants,
                             },
                         },
                     },
