@@ -9,6 +9,7 @@ from __future__ import annotations
 
 import contextlib
 import json
+import math
 import os
 import pathlib
 import tempfile
@@ -135,6 +136,21 @@ def write_json(
         fh.write(text + "\n")
 
 
+class _NonFiniteNumber(ValueError):
+    pass
+
+
+def _refuse_number(text: str) -> float:
+    raise _NonFiniteNumber(text)
+
+
+def _finite_float(text: str) -> float:
+    value = float(text)
+    if not math.isfinite(value):  # e.g. 1e400
+        raise _NonFiniteNumber(text)
+    return value
+
+
 def read_json(path: str | os.PathLike[str], *, schema: str | None = None) -> Any:
     """Read a JSON file; with ``schema``, validate it and name the failing field."""
     p = pathlib.Path(path)
@@ -145,10 +161,18 @@ def read_json(path: str | os.PathLike[str], *, schema: str | None = None) -> Any
     except (OSError, UnicodeDecodeError) as exc:
         raise ModelFileError(f"cannot read ({exc})", "a UTF-8 JSON file", source=str(p)) from None
     try:
-        data = json.loads(text)
+        data = json.loads(text, parse_constant=_refuse_number, parse_float=_finite_float)
     except json.JSONDecodeError as exc:
         raise ModelFileError(
             f"not valid JSON ({exc.msg})", "a JSON document", source=str(p), field=f"line {exc.lineno}"
+        ) from None
+    except _NonFiniteNumber as exc:
+        line = text.count("\n", 0, max(text.find(exc.args[0]), 0)) + 1
+        raise ModelFileError(
+            f"the number {exc.args[0]} is not finite",
+            "finite numbers (JSON has no NaN or Infinity)",
+            source=str(p),
+            field=f"line {line}",
         ) from None
     if schema is not None:
         validate(data, schema, source=str(p))

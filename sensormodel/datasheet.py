@@ -41,7 +41,7 @@ import tomllib
 from dataclasses import dataclass, field
 from typing import Any
 
-from .errors import DatasheetError, UnitError
+from .errors import DatasheetError, ModelFileError, UnitError
 from .quantities import KINDS, parse_quantity
 
 __all__ = [
@@ -180,17 +180,19 @@ class Datasheet:
 
 
 def _suggest(key: str, known: list[str]) -> str:
+    """`` (did you mean 'x'?)`` for the nearest known name, or nothing."""
     close = difflib.get_close_matches(key, known, n=1, cutoff=0.5)
-    if close:
-        return f"did you mean '{close[0]}'? (known keys: {', '.join(known)})"
-    return f"one of {', '.join(known)}"
+    return f" (did you mean '{close[0]}'?)" if close else ""
 
 
 def _check_keys(table: dict[str, Any], known: list[str], where: str, source: str) -> None:
     for key in table:
         if key not in known:
             raise DatasheetError(
-                f"unknown key '{key}'", _suggest(key, known), source=source, field=f"{where}.{key}"
+                f"unknown key '{key}'{_suggest(key, known)}",
+                f"one of {', '.join(known)}",
+                source=source,
+                field=f"{where}.{key}",
             )
 
 
@@ -258,7 +260,7 @@ def _axes(value: Any, where: str, source: str) -> tuple[str, ...]:
 
 
 def _check_equivalent(values: dict[str, SpecValue], conv: dict[str, str], instrument: str,
-                      where: str, source: str) -> None:
+                      origin: dict[str, str], source: str) -> None:
     """Refuse a random-walk coefficient and a density that disagree by more than 1 %."""
     walk = "angle_random_walk" if instrument == "gyro" else "velocity_random_walk"
     if walk not in values or "noise_density" not in values:
@@ -277,7 +279,7 @@ def _check_equivalent(values: dict[str, SpecValue], conv: dict[str, str], instru
                 f"{abs(va - vb) / max(va, vb):.1%} ({col})",
                 "equivalent values (within 1 %) or only one of the two",
                 source=source,
-                field=f"{where}.{walk} / {where}.noise_density",
+                field=f"{origin[walk]} / {origin['noise_density']}",
             )
 
 
@@ -303,7 +305,8 @@ def parse_datasheet(data: dict[str, Any], *, source: str = "<datasheet>", sha256
     for key in data:
         if key not in ("sensor", *INSTRUMENTS):
             raise DatasheetError(
-                f"unknown table '[{key}]'", _suggest(key, ["sensor", *INSTRUMENTS]),
+                f"unknown table '[{key}]'{_suggest(key, ['sensor', *INSTRUMENTS])}",
+                f"tables {', '.join(['sensor', *INSTRUMENTS])}",
                 source=source, field=key,
             )
     sensor = data.get("sensor")
@@ -379,7 +382,7 @@ def parse_datasheet(data: dict[str, Any], *, source: str = "<datasheet>", sha256
                         f"overrides only for axes {', '.join(inst_axes)}",
                         source=source, field=f"{name}.{axis_extra}",
                     )
-            _check_equivalent(ax_values, ax_conv, name, f"{name}", source)
+            _check_equivalent(ax_values, ax_conv, name, ax_origin, source)
             if "sample_rate" not in ax_values:
                 raise DatasheetError(
                     "no sample_rate", "sample_rate in [sensor] or in the instrument table, e.g. '400 Hz'",
@@ -453,8 +456,9 @@ def load_datasheet(path: str | os.PathLike[str]) -> Datasheet:
     ds = parse_datasheet(data, source=str(p), sha256=hashlib.sha256(raw).hexdigest())
     try:
         validate(data, "datasheet.schema.json", source=str(p))
-    except Exception as exc:  # structure already checked above; the schema is the contract
-        raise DatasheetError(str(exc), "a datasheet as in schemas/datasheet.schema.json") from None
+    except ModelFileError as exc:  # structure already checked above; the schema is the contract
+        raise DatasheetError(exc.problem, "a datasheet as in schemas/datasheet.schema.json",
+                             source=str(p), field=exc.field) from None
     return ds
 
 

@@ -117,11 +117,17 @@ KINDS: dict[str, Kind] = {
 
 _NUMBER = re.compile(
     r"""^\s*
-    (?P<mant>[+-]?(?:\d+(?:\.\d*)?|\.\d+)(?:[eE][+-]?\d+)?)
+    (?P<mant>[+-]?(?:(?:\d+(?:\.\d*)?|\.\d+)(?:[eE][+-]?\d+)?|nan|inf(?:inity)?))
     (?:\s*(?:[x×·*]|\*)\s*10\s*(?:\^|\*\*)?\s*(?P<exp>[+-]?\d+))?
     \s*(?P<unit>.*?)\s*$""",
-    re.VERBOSE,
+    re.VERBOSE | re.IGNORECASE,
 )
+# What may remain of a normalized unit once its powers ("**0.5", "**(1/2)", "**-3") and a
+# leading "1/" are taken out: unit names, "*", "/", parentheses, "%". Anything else (a stray
+# number, "=", "+", "#", a control character) would make pint compute something silently.
+_POWER = re.compile(r"\*\*\s*(?:\(\s*[+-]?\d+(?:\.\d+)?(?:\s*/\s*\d+)?\s*\)|[+-]?\d+(?:\.\d+)?)")
+_LEADING_ONE = re.compile(r"(?:^|(?<=\())\s*1\s*(?=/)")
+_UNIT_REST = re.compile(r"[A-Za-z_*/()% ]*")
 
 _SUPERSCRIPTS = str.maketrans("⁰¹²³⁴⁵⁶⁷⁸⁹⁺⁻", "0123456789+-")
 _SUPER_RUN = re.compile(r"[⁺⁻]?[⁰¹²³⁴⁵⁶⁷⁸⁹]+")
@@ -159,7 +165,7 @@ def normalize_unit(text: str, *, acceleration: bool = False) -> str:
     """
     s = text.strip().replace("−", "-").replace("–", "-")
     s = s.replace("°", " deg ").replace("º", " deg ").replace("µ", "u").replace("μ", "u")
-    s = s.replace("½", "**0.5")
+    s = s.replace("^½", "**0.5").replace("½", "**0.5").replace("·", "*").replace("⋅", "*")
     s = _SUPER_RUN.sub(lambda m: "**" + m.group(0).translate(_SUPERSCRIPTS), s)
     s = _ROOT_PAREN.sub(r"(\1)**0.5", s)
     s = _ROOT_WORD.sub(r"(\1)**0.5", s)
@@ -192,11 +198,24 @@ def _parse_unit_cached(unit_text: str, acceleration: bool) -> tuple[float, str, 
 def _unit_factor(unit_text: str, kind: str, *, field: str | None, source: str | None) -> float:
     """Factor that takes a value in ``unit_text`` to the SI unit of ``kind``."""
     info = _kind(kind)
+    rest = _LEADING_ONE.sub("", _POWER.sub("", normalize_unit(unit_text)))
+    if not _UNIT_REST.fullmatch(rest):
+        bad = next(c for c in rest if not _UNIT_REST.fullmatch(c))
+        raise UnitError(
+            f"cannot read the unit '{unit_text}' (unexpected {bad!r})",
+            f"{info.what} such as '{info.example}' (unit names, '/', powers and roots only)",
+            field=field,
+            source=source,
+        )
     try:
         factor, pretty, dim = _parse_unit_cached(unit_text, info.acceleration)
-    except (pint.errors.PintError, AttributeError, TypeError, ValueError, SyntaxError) as exc:
+    except Exception as exc:  # pint's parser raises many types (AssertionError, TokenError, ...)
+        if isinstance(exc, pint.errors.UndefinedUnitError):
+            detail = "unknown unit " + ", ".join(f"'{n}'" for n in exc.unit_names)
+        else:
+            detail = "not a unit expression"
         raise UnitError(
-            f"cannot read the unit '{unit_text}' ({exc.__class__.__name__})",
+            f"cannot read the unit '{unit_text}' ({detail})",
             f"{info.what} such as '{info.example}'",
             field=field,
             source=source,
@@ -259,7 +278,14 @@ def parse_quantity(
     """
     info = _kind(kind)
     if isinstance(value, pint.Quantity):
-        value = f"{value.magnitude!r} {value.units:~}"
+        if "[mass]" in str(value.dimensionality):  # e.g. a plain pint "25 ug" (micrograms)
+            raise UnitError(
+                f"got the quantity {value:~} ({_dimension_text(value)})",
+                f"{info.what} such as '{info.example}'",
+                field=field,
+                source=source,
+            )
+        value = f"{float(value.magnitude)!r} {value.units:~}"
     if isinstance(value, bool) or not isinstance(value, (str, int, float)):
         raise UnitError(
             f"got {type(value).__name__} {value!r}",
