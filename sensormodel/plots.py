@@ -1,0 +1,160 @@
+"""Figures (matplotlib, no display needed): model Allan deviation and PSD, error growth.
+
+Figures are built on :class:`matplotlib.figure.Figure` directly (no pyplot state, the Agg
+canvas), so they work in scripts, tests and servers alike. Values arrive in SI; an optional
+``display`` mapping gives a label and a factor per curve family for display units (the command
+line builds it with :mod:`sensormodel.quantities`).
+"""
+
+from __future__ import annotations
+
+import os
+from collections.abc import Mapping, Sequence
+from typing import Any
+
+import numpy as np
+
+__all__ = ["model_figure", "drift_figure", "save_figure"]
+
+#: Display spec: label of the unit, factor that multiplies the SI value.
+Display = Mapping[str, tuple[str, float]]
+
+
+def _figure(rows: int, cols: int, *, width: float = 10.0, row_height: float = 3.0) -> Any:
+    import matplotlib
+
+    matplotlib.use("Agg")
+    from matplotlib.figure import Figure
+
+    fig = Figure(figsize=(width, max(row_height * rows, 3.0)), layout="constrained")
+    axes = fig.subplots(rows, cols, squeeze=False)
+    return fig, axes
+
+
+def model_figure(
+    model: Any,
+    *,
+    channels: Sequence[str] | None = None,
+    display: Display | None = None,
+    longest_time: float | None = None,
+) -> Any:
+    """Log-log Allan deviation of each term and of the sum, and the one-sided PSD, per channel.
+
+    Parameters
+    ----------
+    model : NoiseModel
+        The model.
+    channels : sequence of str, optional
+        Channel ids to show (default all).
+    display : mapping, optional
+        {channel id: (unit label, factor)}: ADEV is multiplied by factor, PSD by factor².
+        Default: the channel's SI unit.
+    longest_time : float, optional
+        Largest τ shown [s] (default 10⁴ s or the longest flicker time of interest).
+
+    Returns
+    -------
+    matplotlib.figure.Figure
+        One row per channel: Allan deviation (left, τ from one sample period), one-sided PSD
+        (right, up to the Nyquist frequency); terms dashed, their sum solid black. A flicker
+        term's legend states its realization's worst Allan-deviation error.
+    """
+    from .errors import AnalysisError
+    from .terms import DEFAULT_LONGEST_TIME
+
+    chans = [model.channel(c) for c in channels] if channels else list(model.channels)
+    fig, axes = _figure(len(chans), 2)
+    for row, ch in enumerate(chans):
+        label, factor = (display or {}).get(ch.id, (ch.unit, 1.0))
+        t_max = longest_time or max(
+            [DEFAULT_LONGEST_TIME]
+            + [t.longest_time for t in ch.terms if getattr(t, "longest_time", None)]
+        )
+        tau = np.geomspace(1.0 / ch.sample_rate, t_max, 200)
+        f = np.geomspace(min(1e-4, 0.1 / t_max), 0.5 * ch.sample_rate, 300)
+        ax_a, ax_p = axes[row]
+        for term in ch.terms:
+            name = term.type
+            if term.type == "flicker":
+                try:
+                    err = term.realization_error(ch.sample_rate)
+                    name = f"flicker (realization {100 * err:.1f} %)"
+                except AnalysisError:  # no band: the legend just says flicker
+                    name = "flicker"
+            adev = term.allan_deviation(tau, sample_rate=ch.sample_rate) * factor
+            if np.any(adev > 0):
+                ax_a.loglog(tau, adev, "--", lw=1.2, label=name)
+            psd = term.psd(f, sided="one-sided", sample_rate=ch.sample_rate) * factor**2
+            if np.any(psd > 0):
+                nominal = " (nominal)" if term.type == "ramp" else ""
+                ax_p.loglog(f, np.where(psd > 0, psd, np.nan), "--", lw=1.2, label=name + nominal)
+        total = ch.allan_deviation(tau) * factor
+        if np.any(total > 0):
+            ax_a.loglog(tau, total, "k-", lw=2.0, label="sum")
+        total_p = ch.psd(f, sided="one-sided") * factor**2
+        if np.any(total_p > 0):
+            ax_p.loglog(f, np.where(total_p > 0, total_p, np.nan), "k-", lw=2.0, label="sum")
+        ax_a.set_title(f"{ch.id}: Allan deviation")
+        ax_a.set_xlabel("averaging time τ [s]")
+        ax_a.set_ylabel(f"σ(τ) [{label}]")
+        ax_p.set_title(f"{ch.id}: PSD (one-sided)")
+        ax_p.set_xlabel("frequency [Hz]")
+        ax_p.set_ylabel(f"S(f) [({label})²/Hz]")
+        for ax in (ax_a, ax_p):
+            ax.grid(True, which="both", alpha=0.3)
+            if ax.lines:
+                ax.legend(fontsize="small")
+    return fig
+
+
+def drift_figure(result: Any, *, display: Display | None = None) -> Any:
+    """1σ error growth per channel: angle (gyros), velocity and position (accelerometers).
+
+    Parameters
+    ----------
+    result : DriftResult
+        From :func:`sensormodel.drift.drift`.
+    display : mapping, optional
+        {"angle" | "velocity" | "position": (unit label, factor)}; default SI (rad, m/s, m).
+
+    Returns
+    -------
+    matplotlib.figure.Figure
+        One row per channel, log-log; the propagated 1σ solid black, each term's closed-form
+        contribution dashed.
+    """
+    si = {"angle": ("rad", 1.0), "velocity": ("m/s", 1.0), "position": ("m", 1.0)}
+    fig, axes = _figure(len(result.channels), 2)
+    for row, ch in enumerate(result.channels):
+        kinds = list(ch.values)
+        for col in range(2):
+            ax = axes[row][col]
+            if col >= len(kinds):
+                ax.set_axis_off()
+                continue
+            kind = kinds[col]
+            label, factor = (display or {}).get(kind, si[kind])
+            t = ch.time
+            for term, d in ch.contributions.items():
+                y = d[kind] * factor
+                if np.any(y > 0):
+                    ax.loglog(t, np.where(y > 0, y, np.nan), "--", lw=1.1, label=term)
+            y = ch.values[kind] * factor
+            ax.loglog(t, np.where(y > 0, y, np.nan), "k-", lw=2.0, label="total (1σ)")
+            ax.set_title(f"{ch.id}: {kind} error")
+            ax.set_xlabel("time since turn-on [s]")
+            ax.set_ylabel(f"{kind} 1σ [{label}]")
+            ax.grid(True, which="both", alpha=0.3)
+            ax.legend(fontsize="small")
+    return fig
+
+
+def save_figure(fig: Any, path: str | os.PathLike[str], *, force: bool = False) -> None:
+    """Write a figure atomically (format from the suffix: .png, .pdf, .svg)."""
+    import pathlib
+
+    from ._io import atomic_path
+
+    suffix = pathlib.Path(path).suffix.lstrip(".").lower() or "png"
+    with atomic_path(path, force=force) as tmp:
+        fig.savefig(tmp, format=suffix, dpi=120)
