@@ -1,0 +1,327 @@
+"""sensormodel.convert: the conventions that turn datasheet values into noise terms."""
+
+from __future__ import annotations
+
+import hashlib
+import math
+import re
+import tomllib
+
+import numpy as np
+import pytest
+from reference import units as ref
+from scipy import integrate, optimize, signal
+
+from sensormodel.convert import (
+    FLOOR_FACTOR,
+    QUANTITY,
+    axis_terms,
+    datasheet_to_model,
+    noise_bandwidth,
+    white_sample_std,
+)
+from sensormodel.datasheet import load_datasheet, parse_datasheet
+from sensormodel.errors import DatasheetError
+from sensormodel.model import NoiseModel
+
+BASE = '[sensor]\nsample_rate = "100 Hz"\n'
+
+
+def terms_of(text: str, *, basis: str = "typ", instrument: str = "gyro", axis: str = "x"):
+    ds = parse_datasheet(tomllib.loads(text), source="sheet.toml")
+    terms, notes = axis_terms(ds.instruments[instrument].axes[axis], basis=basis)
+    return {t.type: t for t in terms}, notes
+
+
+# ---- constants and filter rules -------------------------------------------------------------
+
+
+def test_floor_factor_is_ieee_952():
+    # IEEE Std 952-1997 Annex C: flicker Allan-variance floor (2 ln2/pi) B², so the ADEV floor
+    # is sqrt(2 ln2/pi) B = 0.6642824703 B (10 digits, REFERENCES §3).
+    assert FLOOR_FACTOR == pytest.approx(ref.FLOOR_FACTOR, rel=1e-10)
+    assert FLOOR_FACTOR**2 == pytest.approx(ref.FLOOR_FACTOR_SQUARED, rel=1e-9)
+
+
+@pytest.mark.parametrize("order", sorted(ref.BUTTERWORTH_ENBW))
+def test_butterworth_enbw_against_winder_table(order):
+    # S. Winder, Analog and Digital Filter Design, App. A, Table A.3 (7 digits printed).
+    assert noise_bandwidth(1.0, order) == pytest.approx(
+        ref.BUTTERWORTH_ENBW[order], rel=ref.digits_rtol(ref.BUTTERWORTH_ENBW[order])
+    )
+    assert noise_bandwidth(50.0, order) == pytest.approx(
+        50.0 * noise_bandwidth(1.0, order), rel=1e-14
+    )
+
+
+def test_butterworth_enbw_closed_values():
+    # n = 1: pi/2 (one pole / RC); n = 2: pi/(2 sqrt 2) (Winder Table A.3).
+    assert noise_bandwidth(1.0, 1) == pytest.approx(math.pi / 2, rel=1e-15)
+    assert noise_bandwidth(1.0, 2) == pytest.approx(math.pi / (2 * math.sqrt(2)), rel=1e-15)
+
+
+@pytest.mark.parametrize("order", [1, 2, 3, 5, 8])
+def test_butterworth_enbw_against_scipy_filter(order):
+    # scipy as the reference library: integrate |H(j 2 pi f)|² of scipy's analog Butterworth
+    # (-3 dB at f_c) over f >= 0, divided by |H(0)|² = 1.
+    fc = 10.0
+    b, a = signal.butter(order, 2 * np.pi * fc, analog=True)
+
+    def gain2(f: float) -> float:
+        _, h = signal.freqs(b, a, worN=[2 * np.pi * f])
+        return float(abs(h[0]) ** 2)
+
+    head, _ = integrate.quad(gain2, 0, 10 * fc, limit=200, epsabs=0, epsrel=1e-12)
+    tail, _ = integrate.quad(gain2, 10 * fc, np.inf, limit=200, epsabs=0, epsrel=1e-12)
+    assert noise_bandwidth(fc, order) == pytest.approx(head + tail, rel=1e-8)
+
+
+@pytest.mark.parametrize(
+    ("bandwidth", "order"), [(0.0, 1), (-1.0, 1), (math.nan, 1), (math.inf, 1), (1.0, 0)]
+)
+def test_noise_bandwidth_refuses_bad_arguments(bandwidth, order):
+    with pytest.raises(ValueError, match="must be"):
+        noise_bandwidth(bandwidth, order)
+
+
+def test_white_sample_std_plain_average():
+    # Each sample the average over its period (ENBW = rate/2): sigma = N sqrt(rate), i.e.
+    # ADEV(tau0) = N/sqrt(tau0) (REFERENCES §0, IEEE Std 952 white-noise AVAR N²/tau).
+    n = 0.15 * ref.DEG_PER_RT_H
+    assert white_sample_std(n, 400.0) == pytest.approx(n * 20.0, rel=1e-15)
+
+
+@pytest.mark.parametrize("order", [1, 2, 4])
+def test_white_sample_std_through_a_butterworth(order):
+    # var = (one-sided PSD 2 N²) x ENBW (REFERENCES §0/§8), ENBW from Winder Table A.3.
+    n, bw = 60e-6 * ref.STANDARD_GRAVITY, 50.0
+    expected = n * math.sqrt(2.0 * ref.BUTTERWORTH_ENBW[order] * bw)
+    got = white_sample_std(n, 200.0, bandwidth=bw, filter_order=order)
+    assert got == pytest.approx(expected, rel=ref.digits_rtol(ref.BUTTERWORTH_ENBW[order]))
+    # the output rate does not enter once the filter is named
+    assert white_sample_std(n, 1000.0, bandwidth=bw, filter_order=order) == got
+    # no order given: one pole
+    if order == 1:
+        assert white_sample_std(n, 200.0, bandwidth=bw) == got
+
+
+# ---- datasheet key -> term ------------------------------------------------------------------
+
+
+def test_arw_is_the_white_density():
+    terms, _ = terms_of(BASE + '[gyro]\nangle_random_walk = "0.15 deg/rt-h"\n')
+    assert terms["white"].density == pytest.approx(0.15 * ref.DEG_PER_RT_H, rel=5e-7)
+
+
+def test_two_sided_density_is_the_white_density():
+    # default density_is = "two-sided": ARW [°/√h] = 60 x density [°/s/√Hz] (common practice)
+    terms, _ = terms_of(BASE + '[gyro]\nnoise_density = "0.0025 deg/s/rtHz"\n')
+    assert terms["white"].density == pytest.approx(0.15 * ref.DEG_PER_RT_H, rel=5e-7)
+
+
+def test_one_sided_density_is_divided_by_root_two():
+    # A density read off a one-sided PSD (2 N²) is sqrt(2) larger (REFERENCES §0): D = value/√2.
+    text = 'density_is = "one-sided"\n[gyro]\nnoise_density = "0.0025 deg/s/rtHz"\n'
+    terms, _ = terms_of(BASE + text)
+    assert terms["white"].density == pytest.approx(0.15 * ref.DEG_PER_RT_H / math.sqrt(2), rel=5e-7)
+    # density_is does not touch a random-walk coefficient (defined by its Allan variance)
+    terms, _ = terms_of(
+        BASE + 'density_is = "one-sided"\n[gyro]\nangle_random_walk = "0.15 deg/rt-h"\n'
+    )
+    assert terms["white"].density == pytest.approx(0.15 * ref.DEG_PER_RT_H, rel=5e-7)
+
+
+def test_accelerometer_density_in_micro_g():
+    text = (
+        BASE
+        + '[accelerometer]\nnoise_density = "60 µg/√Hz"\n'
+        + 'acceleration_random_walk = "3 ug/s/rt-Hz"\n'
+    )
+    terms, _ = terms_of(text, instrument="accelerometer")
+    # 60 µg/√Hz = 60 x 5.88399e-4 m/s/√h = 0.0353 m/s/√h (REFERENCES §10)
+    assert terms["white"].density * 60 == pytest.approx(
+        60 * ref.UG_PER_RT_HZ_IN_M_S_PER_RT_H, rel=ref.digits_rtol(5.88399e-4)
+    )
+    assert terms["random_walk"].density == pytest.approx(3e-6 * ref.STANDARD_GRAVITY, rel=1e-12)
+
+
+def test_bias_instability_floor_gives_the_ieee_coefficient():
+    # default bias_instability_is = "floor" (common practice): B = floor / 0.6642824703
+    # (IEEE Std 952 Annex C)
+    terms, _ = terms_of(BASE + '[gyro]\nbias_instability = "1 deg/h"\n')
+    assert terms["flicker"].coefficient == pytest.approx(ref.DEG_PER_H / ref.FLOOR_FACTOR, rel=5e-7)
+
+
+def test_bias_instability_coefficient_is_taken_as_is():
+    terms, _ = terms_of(
+        BASE + 'bias_instability_is = "coefficient"\n[gyro]\nbias_instability = "1 deg/h"\n'
+    )
+    assert terms["flicker"].coefficient == pytest.approx(ref.DEG_PER_H, rel=5e-7)
+
+
+def _gm_avar(tau, sigma, T):
+    # IEEE Std 952-1997 Annex C, exponentially correlated noise, written in sigma and T
+    # (REFERENCES §2): 2 sigma² T / tau [1 - T/(2 tau) (3 - 4 e^(-tau/T) + e^(-2 tau/T))]
+    u = tau / T
+    return 2 * sigma**2 * T / tau * (1 - (3 - 4 * np.exp(-u) + np.exp(-2 * u)) / (2 * u))
+
+
+def test_gm_closed_form_regression_values():
+    # Our transcription of the closed form against REFERENCES §2 regression values (sigma = T = 1).
+    for tau, value in [(0.1, 0.0618919066), (1.0, 0.3361824814), (5.0, 0.2810762555)]:
+        assert _gm_avar(tau, 1.0, 1.0) == pytest.approx(value, rel=1e-9)
+
+
+def test_bias_instability_with_correlation_time_is_gauss_markov():
+    # bias_instability + correlation_time -> a Gauss-Markov bias whose Allan-deviation peak
+    # equals the datasheet floor (common practice). Reference: the IEEE 952 closed form above,
+    # maximized here with scipy; the peak sits at 1.8926 T with 0.6173643 sigma (REFERENCES §2).
+    floor = 10e-6 * ref.STANDARD_GRAVITY
+    terms, _ = terms_of(
+        BASE + '[accelerometer]\nbias_instability = "10 ug"\ncorrelation_time = "600 s"\n',
+        instrument="accelerometer",
+    )
+    gm = terms["gauss_markov"]
+    assert "flicker" not in terms
+    assert gm.time_constant == 600.0
+    res = optimize.minimize_scalar(
+        lambda t: -_gm_avar(t, gm.sigma, gm.time_constant),
+        bounds=(0.5 * 600, 10 * 600),
+        method="bounded",
+        options={"xatol": 1e-6},
+    )
+    assert math.sqrt(-res.fun) == pytest.approx(floor, rel=1e-6)
+    assert res.x / 600 == pytest.approx(ref.GM_PEAK_TAU_OVER_T, rel=1e-5)
+    assert gm.sigma == pytest.approx(floor / ref.GM_PEAK_ADEV_OVER_SIGMA, rel=1e-6)
+    assert gm.meta["datasheet"]["correlation_time"] == "600 s"
+
+
+def test_coefficient_with_correlation_time_uses_the_floor():
+    terms, _ = terms_of(
+        BASE + '[gyro]\nbias_instability = "1 deg/h"\nbias_instability_is = "coefficient"\n'
+        'correlation_time = "100 s"\n'
+    )
+    assert terms["gauss_markov"].sigma == pytest.approx(
+        ref.DEG_PER_H * ref.FLOOR_FACTOR / ref.GM_PEAK_ADEV_OVER_SIGMA, rel=1e-6
+    )
+
+
+def test_quantization_coefficient_and_step():
+    terms, _ = terms_of(BASE + '[gyro]\nquantization = "0.3 urad"\n')
+    assert terms["quantization"].coefficient == pytest.approx(0.3e-6, rel=1e-12)
+    # a quantum s of uniform error gives Q = s/sqrt(12) (IEEE Std 952 Annex C, from memory;
+    # REFERENCES §1 derives it: AVAR = 3 var(e)/tau²)
+    terms, _ = terms_of(BASE + '[gyro]\nquantization = "0.3 urad"\nquantization_is = "step"\n')
+    assert terms["quantization"].coefficient == pytest.approx(0.3e-6 / math.sqrt(12), rel=1e-12)
+
+
+def test_other_terms():
+    terms, _ = terms_of(
+        BASE + '[gyro]\nrate_random_walk = "2 °/h/√h"\nrate_ramp = "0.5 °/h²"\n'
+        'bias_repeatability = "10 dph"\n'
+    )
+    assert terms["random_walk"].density == pytest.approx(2 * ref.DEG_PER_H_PER_RT_H, rel=5e-7)
+    assert terms["ramp"].slope == pytest.approx(0.5 * ref.DEG_PER_H / 3600, rel=5e-7)
+    assert terms["random_constant"].sigma == pytest.approx(10 * ref.DEG_PER_H, rel=5e-7)
+
+
+def test_zero_term_is_left_out_with_a_note():
+    terms, notes = terms_of(
+        BASE + '[gyro]\nangle_random_walk = "0 deg/rt-h"\nbias_instability = "1 deg/h"\n'
+    )
+    assert set(terms) == {"flicker"}
+    assert notes == ["gyro.x: gyro.angle_random_walk is zero; no term"]
+
+
+def test_worst_case_uses_max_and_notes_fallbacks():
+    text = (
+        BASE
+        + '[gyro]\nbias_instability = { typ = "1 deg/h", max = "2 deg/h" }\n'
+        + 'angle_random_walk = "0.1 deg/rt-h"\n'
+    )
+    typ, notes_typ = terms_of(text)
+    worst, notes_max = terms_of(text, basis="max")
+    assert worst["flicker"].coefficient == pytest.approx(2 * typ["flicker"].coefficient, rel=1e-12)
+    assert worst["white"].density == typ["white"].density
+    assert notes_typ == []
+    assert notes_max == [
+        "gyro.x: gyro.angle_random_walk has no 'max' value; 'typ' (0.1 deg/rt-h) used"
+    ]
+    assert worst["flicker"].meta["datasheet"] == {
+        "field": "gyro.bias_instability",
+        "text": "2 deg/h",
+        "column": "max",
+    }
+
+
+def test_correlation_time_without_bias_instability(write_datasheet):
+    path = write_datasheet(
+        BASE + '[gyro]\nangle_random_walk = "0.1 deg/rt-h"\ncorrelation_time = "100 s"\n'
+    )
+    ds = load_datasheet(path)
+    with pytest.raises(
+        DatasheetError,
+        match=rf"^{re.escape(str(path))}:gyro\.correlation_time: correlation_time without "
+        r"bias_instability; expected a bias_instability",
+    ):
+        datasheet_to_model(ds)
+
+
+# ---- the whole model ------------------------------------------------------------------------
+
+
+def test_model_channels_from_m200(examples_dir):
+    path = examples_dir / "bw-m200.toml"
+    model = datasheet_to_model(load_datasheet(path))
+    assert model.channel_ids == [
+        "gyro.x",
+        "gyro.y",
+        "gyro.z",
+        "accelerometer.x",
+        "accelerometer.y",
+        "accelerometer.z",
+    ]
+    for ch in model.channels:
+        assert (ch.quantity, ch.unit) == QUANTITY[ch.instrument]
+        assert (ch.sample_rate, ch.bandwidth, ch.filter_order) == (200.0, 50.0, 1)
+        assert [t.type for t in ch.terms] == ["white", "flicker", "random_walk", "random_constant"]
+    assert model.conventions["basis"] == "typ"
+    assert model.conventions["density_is"] == ["two-sided"]
+    assert model.provenance["datasheet"] == {
+        "file": "bw-m200.toml",
+        "sha256": hashlib.sha256(path.read_bytes()).hexdigest(),
+    }
+    assert model.sensor["name"] == "BW-M200"
+
+
+def test_model_of_g30_one_sided_coefficient(examples_dir):
+    model = NoiseModel.from_datasheet(examples_dir / "bw-g30.toml")
+    (ch,) = model.channels
+    assert ch.id == "gyro.z"
+    assert (ch.bandwidth, ch.filter_order) == (None, None)
+    # 5e-3 °/s/√Hz one-sided -> D = 5e-3/√2 °/s/√Hz; 3 °/h is the coefficient B itself
+    assert ch.term("white").density == pytest.approx(math.radians(5e-3) / math.sqrt(2), rel=1e-12)
+    assert ch.term("flicker").coefficient == pytest.approx(3 * ref.DEG_PER_H, rel=5e-7)
+    assert model.conventions["density_is"] == ["one-sided"]
+    assert model.conventions["bias_instability_is"] == ["coefficient"]
+
+
+def test_model_of_t900_worst_case(examples_dir):
+    typ = NoiseModel.from_datasheet(examples_dir / "bw-t900.toml")
+    worst = NoiseModel.from_datasheet(examples_dir / "bw-t900.toml", worst_case=True)
+    assert worst.conventions["basis"] == "max"
+    assert worst.channel("gyro.x").term("white").density == pytest.approx(
+        0.02 * ref.DEG_PER_RT_H, rel=5e-7
+    )
+    assert typ.channel("gyro.x").term("white").density == pytest.approx(
+        0.012 * ref.DEG_PER_RT_H, rel=5e-7
+    )
+    # per-axis override: gyro.z has its own, larger bias instability
+    bx = typ.channel("gyro.x").term("flicker").coefficient
+    bz = typ.channel("gyro.z").term("flicker").coefficient
+    assert bz / bx == pytest.approx(0.08 / 0.05, rel=1e-12)
+    gm = worst.channel("accelerometer.y").term("gauss_markov")
+    assert gm.time_constant == 600.0
+    assert gm.sigma == pytest.approx(
+        20e-6 * ref.STANDARD_GRAVITY / ref.GM_PEAK_ADEV_OVER_SIGMA, rel=1e-6
+    )
