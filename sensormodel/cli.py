@@ -125,14 +125,20 @@ def build(datasheet: str, output: str, worst_case: bool, force: bool) -> None:
               help="Output rate [Hz] for the per-sample standard deviation (default: the channel's).")
 @click.option("--channel", "channels", multiple=True,
               help="Show only this channel (repeatable), e.g. --channel gyro.z.")
+@click.option("--plot", "plot_file", type=click.Path(dir_okay=False), default=None,
+              help="Write a figure: log-log Allan deviation of each term and the sum, and the "
+                   "one-sided PSD, per channel (.png, .pdf or .svg).")
+@_force_option
 @guarded
-def inspect(model_file: str, rate: float | None, channels: tuple[str, ...]) -> None:
+def inspect(model_file: str, rate: float | None, channels: tuple[str, ...],
+            plot_file: str | None, force: bool) -> None:
     """Show a noise model's terms in SI and in datasheet units, and the per-sample std.
 
     \b
     Example:
       sensormodel inspect t900.json
       sensormodel inspect t900.json --rate 100 --channel gyro.z
+      sensormodel inspect t900.json --plot t900.png
     """
     from .errors import AnalysisError
     from .model import NoiseModel
@@ -140,5 +146,221 @@ def inspect(model_file: str, rate: float | None, channels: tuple[str, ...]) -> N
 
     if rate is not None and not rate > 0:
         raise AnalysisError(f"--rate {rate}", "a positive rate in Hz")
+    if plot_file:
+        from ._io import check_writable
+
+        check_writable(plot_file, force=force)
     model = NoiseModel.load(model_file).select(list(channels))
-    click.echo(inspect_text(model, rate=rate))
+    click.echo(inspect_text(model, rate=rate, extra=_realization_lines(model)))
+    if plot_file:
+        from .plots import model_figure, save_figure
+
+        save_figure(model_figure(model, display=_model_display(model)), plot_file, force=force)
+        click.echo(f"wrote {plot_file}")
+
+
+# --- export and drift (theory: linear.py, drift.py) -------------------------------------------
+
+_CAUTION_HELP = (
+    "Caution: navigation-integrity use of these numbers follows the applicable standards and "
+    "the customer's contract."
+)
+
+
+def _seconds(value: str, option: str) -> float:
+    """A time option: a bare number is seconds; otherwise a time with its unit ('10 ms')."""
+    from .errors import AnalysisError
+    from .quantities import parse_quantity
+
+    text = value.strip()
+    try:
+        seconds = float(text)
+    except ValueError:
+        seconds = parse_quantity(text, "time", field=option)
+    if not (seconds > 0 and seconds < float("inf")):
+        raise AnalysisError(f"{option} {value}", "a positive time, e.g. 0.01 or '10 ms'")
+    return seconds
+
+
+def _realization_lines(model: Any) -> dict[str, list[str]]:
+    """Per channel, one line per flicker term on its Gauss-Markov realization (for inspect)."""
+    from .errors import AnalysisError
+    from .quantities import format_value
+
+    out: dict[str, list[str]] = {}
+    for ch in model.channels:
+        for term in ch.terms:
+            if term.type != "flicker":
+                continue
+            try:
+                real = term.realization(sample_rate=ch.sample_rate)
+            except AnalysisError as exc:
+                out.setdefault(ch.id, []).append(f"flicker realization: none ({exc.problem})")
+                continue
+            T = real.time_constants
+            lo, hi = real.tau_band
+            out.setdefault(ch.id, []).append(
+                f"flicker realization: {T.size} Gauss-Markov states, T = {format_value(T[0], 's')}"
+                f" … {format_value(T[-1], 's')}; worst Allan-deviation error "
+                f"{100 * real.worst_error:.2f} % for τ = {format_value(lo, 's')} … "
+                f"{format_value(hi, 's')}"
+            )
+    return out
+
+
+def _model_display(model: Any) -> dict[str, tuple[str, float]]:
+    """Display units of the inspect figure: °/h for gyros, µg for accelerometers."""
+    from .quantities import DISPLAY_UNITS, convert_from_si
+
+    out = {}
+    for ch in model.channels:
+        if ch.quantity in ("angular_rate", "acceleration"):
+            unit, label = DISPLAY_UNITS[ch.quantity]
+            out[ch.id] = (label, convert_from_si(1.0, ch.quantity, unit))
+    return out
+
+
+def _format_time(seconds: float) -> str:
+    from .quantities import convert_from_si, format_value
+
+    for unit, limit in (("d", 86400.0), ("h", 3600.0), ("min", 60.0)):
+        if seconds >= limit:
+            return format_value(convert_from_si(seconds, "time", unit), unit)
+    return format_value(seconds, "s")
+
+
+@cli.command("export", context_settings=_CONTEXT, epilog=_CAUTION_HELP)
+@click.argument("model_file", metavar="MODEL", type=click.Path(dir_okay=False))
+@click.option("--dt", "dt_text", required=True, metavar="DT",
+              help="Filter step: seconds, or a time with its unit ('10 ms').")
+@click.option("--format", "formats", default=None, metavar="FMT[,FMT...]",
+              help="json, npz, csv, or a comma list of them (default: from the -o suffix). With "
+                   "several, -o names the base and each form gets its suffix.")
+@click.option("-o", "--output", "output", required=True, type=click.Path(dir_okay=False),
+              help="The file to write (.json, .npz or .csv).")
+@click.option("--channel", "channels", multiple=True,
+              help="Export only this channel (repeatable).")
+@click.option("--quantization-in", "quantization", type=click.Choice(["states", "r"]),
+              default="states", show_default=True,
+              help="Carry quantization as two exact discrete states, or fold it into R.")
+@_force_option
+@guarded
+def export_command(model_file: str, dt_text: str, formats: str | None, output: str,
+                   channels: tuple[str, ...], quantization: str, force: bool) -> None:
+    """Exact discrete Φ, Qd, H, R, P0 per channel at a filter step (Van Loan), with the state
+    names and the meaning of R written in the file.
+
+    R is the variance of the white term averaged over one step (N²/dt, IEEE Std 952 density);
+    quantization is carried by two discrete states unless --quantization-in r.
+
+    \b
+    Example:
+      sensormodel export t900.json --dt 0.01 -o t900-100hz.json
+      sensormodel export t900.json --dt "5 ms" --format json,npz,csv -o t900-200hz
+    """
+    import pathlib
+
+    from ._io import check_writable
+    from .errors import AnalysisError
+    from .export import FORMATS, discrete_document, write_discrete
+    from .model import NoiseModel
+
+    dt = _seconds(dt_text, "--dt")
+    out = pathlib.Path(output)
+    if formats:
+        wanted = [f.strip().lower() for f in formats.split(",") if f.strip()]
+        bad = [f for f in wanted if f not in FORMATS]
+        if bad or not wanted:
+            raise AnalysisError(f"--format {formats}", f"a comma list of {', '.join(FORMATS)}")
+    else:
+        wanted = [out.suffix.lstrip(".").lower()]
+        if wanted[0] not in FORMATS:
+            raise AnalysisError(f"cannot tell the form of '{output}' from its suffix",
+                                "a name ending in .json, .npz or .csv, or --format")
+    if len(wanted) == 1:
+        targets = [(wanted[0], out)]
+    else:
+        base = out.with_suffix("") if out.suffix.lstrip(".").lower() in FORMATS else out
+        targets = [(f, base.with_name(f"{base.name}.{f}")) for f in dict.fromkeys(wanted)]
+    for _, path in targets:
+        check_writable(path, force=force)
+    model = NoiseModel.load(model_file).select(list(channels))
+    doc = discrete_document(model.discretize(dt, quantization=quantization),
+                            units={c.id: c.unit for c in model.channels}, sensor=model.sensor)
+    for fmt, path in targets:
+        write_discrete(path, doc, fmt=fmt, force=force)
+        click.echo(f"wrote {path}")
+    for c in doc["channels"]:
+        unit = f" ({c['unit']})²" if c.get("unit") else ""
+        click.echo(f"  {c['id']}: {len(c['states'])} states, R = {c['r']:.4g}{unit}")
+    click.echo(f"dt = {dt:g} s; {doc['r_convention'].split(':', 1)[0]}")
+
+
+@cli.command("drift", context_settings=_CONTEXT, epilog=_CAUTION_HELP)
+@click.argument("model_file", metavar="MODEL", type=click.Path(dir_okay=False))
+@click.option("--horizon", "horizon_text", required=True, metavar="T",
+              help="Last time since turn-on: seconds, or a time with its unit ('1 h').")
+@click.option("--channel", "channels", multiple=True,
+              help="Only this channel (repeatable).")
+@click.option("--points", type=click.IntRange(min=2), default=121, show_default=True,
+              help="Log-spaced times of the curve (JSON, plot).")
+@click.option("--json", "json_file", type=click.Path(dir_okay=False), default=None,
+              help="Write the curves as JSON (schema sensormodel/drift/1, SI, 1σ).")
+@click.option("--plot", "plot_file", type=click.Path(dir_okay=False), default=None,
+              help="Write a log-log figure (.png, .pdf or .svg).")
+@_force_option
+@guarded
+def drift_command(model_file: str, horizon_text: str, channels: tuple[str, ...], points: int,
+                  json_file: str | None, plot_file: str | None, force: bool) -> None:
+    """Open-loop 1σ error growth over a horizon: angle from each gyro channel, velocity and
+    position from each accelerometer channel (variance equation, integrated exactly).
+
+    No Schuler feedback and no tilt coupling: each channel's own noise, integrated once
+    (angle, velocity) or twice (position).
+
+    \b
+    Example:
+      sensormodel drift t900.json --horizon 1h
+      sensormodel drift t900.json --horizon 600 --channel gyro.z --json drift.json --plot drift.png
+    """
+    from ._io import check_writable, write_json
+    from .drift import drift, table_times
+    from .model import NoiseModel
+    from .quantities import convert_from_si, format_value
+
+    horizon = _seconds(horizon_text, "--horizon")
+    for path in (json_file, plot_file):
+        if path:
+            check_writable(path, force=force)
+    model = NoiseModel.load(model_file).select(list(channels))
+    result = drift(model, horizon, points=points)
+    # display units: angle in degrees; velocity and position stay SI (m/s, m)
+    display = {"angle": ("°", convert_from_si(1.0, "angle", "deg")), "velocity": ("m/s", 1.0),
+               "position": ("m", 1.0)}
+    rows_t = table_times(horizon)
+    for ch in result.channels:
+        kinds = list(ch.values)
+        heads = ["time"] + [f"{k} 1σ [{display[k][0]}]" for k in kinds] + ["largest term"]
+        at = ch.at(rows_t)
+        main = ch.largest_term(rows_t)
+        table = [
+            [_format_time(t)]
+            + [format_value(float(at[k][i]) * display[k][1]) for k in kinds]
+            + [main[i]]
+            for i, t in enumerate(rows_t)
+        ]
+        widths = [max(len(r[j]) for r in [heads, *table]) for j in range(len(heads))]
+        click.echo(f"{ch.id}")
+        for r in [heads, *table]:
+            cells = (c.ljust(w) for c, w in zip(r, widths, strict=True))
+            click.echo(("  " + "  ".join(cells)).rstrip())
+    for cid in result.skipped:
+        click.echo(f"note: {cid} is not a gyro or accelerometer channel; not integrated", err=True)
+    if json_file:
+        write_json(json_file, result.to_dict(), force=force, schema="drift.schema.json")
+        click.echo(f"wrote {json_file}")
+    if plot_file:
+        from .plots import drift_figure, save_figure
+
+        save_figure(drift_figure(result, display=display), plot_file, force=force)
+        click.echo(f"wrote {plot_file}")

@@ -114,6 +114,19 @@ class ChannelDrift:
             out[k] = np.exp(np.interp(np.log(t), lt, lv))
         return out
 
+    def largest_term(self, times: Iterable[float]) -> list[str]:
+        """The term with the largest closed-form contribution to the last quantity (angle, or
+        position) at each of ``times`` (nearest grid time)."""
+        key = list(self.values)[-1]
+        out = []
+        for t in times:
+            i = int(np.argmin(np.abs(self.time - t)))
+            best = max(
+                self.contributions, key=lambda lab: self.contributions[lab][key][i], default=""
+            )
+            out.append(best)
+        return out
+
     def to_dict(self) -> dict[str, Any]:
         """Entry of the drift JSON (DESIGN §10): ``{"id", "time", "angle"}`` or
         ``{"id", "time", "velocity", "position"}``, 1σ, SI."""
