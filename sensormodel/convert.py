@@ -115,6 +115,8 @@ def white_sample_std(
     variance (one-sided PSD)·B_e = 2N²B_e (REFERENCES §0/§8; Winder, Table A.3). Sampling does
     not change a variance, so B_e may exceed rate/2 (the excess aliases but still counts).
     """
+    if not (sample_rate > 0 and math.isfinite(sample_rate)):
+        raise ValueError(f"{sample_rate=} must be a positive, finite rate in Hz")
     if bandwidth is None:
         enbw = sample_rate / 2.0
     else:

@@ -61,7 +61,7 @@ class SensorModelError(Exception):
         text = f"{where}{self.problem}"
         if self.expected:
             text += f"; expected {self.expected}"
-        return text
+        return " ".join(text.splitlines())  # one line, even when a value held a line break
 
     def __reduce__(self):  # keep pickling (multiprocessing) faithful
         return (

@@ -8,11 +8,12 @@ versions are refused.
 
 from __future__ import annotations
 
+import math
 import os
 from dataclasses import dataclass, field, replace
 from typing import Any
 
-from .errors import ModelFileError
+from .errors import AnalysisError, ModelFileError
 from .terms import TERM_TYPES, Term, term_from_dict
 
 __all__ = ["SCHEMA_ID", "Channel", "NoiseModel", "noise_model_schema"]
@@ -67,12 +68,14 @@ class Channel:
         channel's), following the output-filter rule of :func:`convert.white_sample_std` [unit]."""
         from .convert import white_sample_std
 
+        if rate is not None and not (rate > 0 and math.isfinite(rate)):
+            raise AnalysisError(f"got {rate!r}", "a positive, finite rate in Hz", field="rate")
         white = self.term("white")
         if white is None:
             return 0.0
         return white_sample_std(
             white.density,  # type: ignore[attr-defined]
-            rate or self.sample_rate,
+            self.sample_rate if rate is None else rate,
             bandwidth=self.bandwidth,
             filter_order=self.filter_order,
         )

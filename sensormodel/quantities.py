@@ -122,18 +122,24 @@ _NUMBER = re.compile(
     \s*(?P<unit>.*?)\s*$""",
     re.VERBOSE | re.IGNORECASE,
 )
-# What may remain of a normalized unit once its powers ("**0.5", "**(1/2)", "**-3") and a
-# leading "1/" are taken out: unit names, "*", "/", parentheses, "%". Anything else (a stray
-# number, "=", "+", "#", a control character) would make pint compute something silently.
+# What may remain of a normalized unit once its unit names ("g0" included), powers ("**0.5",
+# "**(1/2)", "**-3") and a leading "1/" are taken out: "*", "/", parentheses, "%". Anything
+# else (a stray number, "=", "+", "#", a control character) would make pint compute something
+# silently.
 _POWER = re.compile(r"\*\*\s*(?:\(\s*[+-]?\d+(?:\.\d+)?(?:\s*/\s*\d+)?\s*\)|[+-]?\d+(?:\.\d+)?)")
+_NAME = re.compile(r"[A-Za-z_][A-Za-z_0-9]*")
 _LEADING_ONE = re.compile(r"(?:^|(?<=\())\s*1\s*(?=/)")
-_UNIT_REST = re.compile(r"[A-Za-z_*/()% ]*")
+_UNIT_REST = re.compile(r"[*/()% ]*")
 
 _SUPERSCRIPTS = str.maketrans("⁰¹²³⁴⁵⁶⁷⁸⁹⁺⁻", "0123456789+-")
 _SUPER_RUN = re.compile(r"[⁺⁻]?[⁰¹²³⁴⁵⁶⁷⁸⁹]+")
 _TEN_POWER = re.compile(r"(?<=10)([⁺⁻]?[⁰¹²³⁴⁵⁶⁷⁸⁹]+)")
-_ROOT_PAREN = re.compile(r"(?:√|(?<![A-Za-z_])(?:sqrt|root|rt))\s*[-_ ]?\s*\(\s*([A-Za-z_]+)\s*\)")
-_ROOT_WORD = re.compile(r"(?:√|(?<![A-Za-z_])(?:sqrt|root|rt))\s*[-_ ]?\s*([A-Za-z_]+)")
+# A root takes one whole unit name ("√h3" is the unknown unit h3, not h**0.53) and is wrapped
+# in parentheses so a power after it applies to the root ("√h²" is h, not h**0.25).
+_ROOT_PAREN = re.compile(
+    r"(?:√|(?<![A-Za-z_])(?:sqrt|root|rt))\s*[-_ ]?\s*\(\s*([A-Za-z_][A-Za-z_0-9]*)\s*\)"
+)
+_ROOT_WORD = re.compile(r"(?:√|(?<![A-Za-z_])(?:sqrt|root|rt))\s*[-_ ]?\s*([A-Za-z_][A-Za-z_0-9]*)")
 _WORD_ALIASES = {
     "dps": "(deg/s)",
     "mdps": "(millideg/s)",
@@ -161,14 +167,14 @@ def normalize_unit(text: str, *, acceleration: bool = False) -> str:
     Returns
     -------
     str
-        The same unit in pint syntax, e.g. ``"deg/(hr)**0.5"``.
+        The same unit in pint syntax, e.g. ``"deg/((hr)**0.5)"``.
     """
     s = text.strip().replace("−", "-").replace("–", "-")
     s = s.replace("°", " deg ").replace("º", " deg ").replace("µ", "u").replace("μ", "u")
     s = s.replace("^½", "**0.5").replace("½", "**0.5").replace("·", "*").replace("⋅", "*")
     s = _SUPER_RUN.sub(lambda m: "**" + m.group(0).translate(_SUPERSCRIPTS), s)
-    s = _ROOT_PAREN.sub(r"(\1)**0.5", s)
-    s = _ROOT_WORD.sub(r"(\1)**0.5", s)
+    s = _ROOT_PAREN.sub(r"((\1)**0.5)", s)
+    s = _ROOT_WORD.sub(r"((\1)**0.5)", s)
     s = s.replace("^", "**")
     s = _WORD.sub(lambda m: _WORD_ALIASES.get(m.group(1), m.group(1)), s)
     if acceleration:
@@ -198,7 +204,7 @@ def _parse_unit_cached(unit_text: str, acceleration: bool) -> tuple[float, str, 
 def _unit_factor(unit_text: str, kind: str, *, field: str | None, source: str | None) -> float:
     """Factor that takes a value in ``unit_text`` to the SI unit of ``kind``."""
     info = _kind(kind)
-    rest = _LEADING_ONE.sub("", _POWER.sub("", normalize_unit(unit_text)))
+    rest = _LEADING_ONE.sub("", _POWER.sub("", _NAME.sub("", normalize_unit(unit_text))))
     if not _UNIT_REST.fullmatch(rest):
         bad = next(c for c in rest if not _UNIT_REST.fullmatch(c))
         raise UnitError(

@@ -258,6 +258,16 @@ def test_inspect_refuses_bad_rate(runner, t900_model):
     assert line == "error: --rate 0.0; expected a positive rate in Hz"
 
 
+def test_inspect_refuses_infinite_rate(runner, examples_dir, tmp_path):
+    model = tmp_path / "g30.json"
+    assert (
+        runner.invoke(cli, ["build", str(examples_dir / "bw-g30.toml"), "-o", str(model)]).exit_code
+        == 0
+    )
+    result = runner.invoke(cli, ["inspect", str(model), "--rate", "inf"])
+    assert_refused(result, "error: rate: got inf; expected a positive, finite rate in Hz")
+
+
 def test_inspect_unknown_channel(runner, t900_model):
     result = runner.invoke(cli, ["inspect", str(t900_model), "--channel", "gyro.w"])
     assert_refused(result, "error: channel: no channel 'gyro.w'; expected one of gyro.x")

@@ -84,6 +84,12 @@ def test_noise_bandwidth_refuses_bad_arguments(bandwidth, order):
         noise_bandwidth(bandwidth, order)
 
 
+@pytest.mark.parametrize("rate", [0.0, -1.0, math.nan, math.inf])
+def test_white_sample_std_refuses_bad_rate(rate):
+    with pytest.raises(ValueError, match="must be a positive, finite rate in Hz"):
+        white_sample_std(1e-4, rate)
+
+
 def test_white_sample_std_plain_average():
     # Each sample the average over its period (ENBW = rate/2): sigma = N sqrt(rate), i.e.
     # ADEV(tau0) = N/sqrt(tau0) (REFERENCES §0, IEEE Std 952 white-noise AVAR N²/tau).

@@ -45,6 +45,12 @@ def test_str_format_is_pinned(kwargs, text):
     assert str(SensorModelError("got 3", **kwargs)) == text
 
 
+def test_str_stays_on_one_line():
+    # a value quoted in the message may hold a line break (a TOML multi-line string)
+    exc = UnitError("cannot read '0.1 deg\n/h'", "a rate", source="a.toml", field="gyro.x")
+    assert str(exc) == "a.toml:gyro.x: cannot read '0.1 deg /h'; expected a rate"
+
+
 @pytest.mark.parametrize("cls", CLASSES + [OutputExistsError], ids=lambda c: c.__name__)
 def test_pickle_round_trip(cls):
     exc = cls("got 3", "a number", source="a.toml", field="gyro.x")

@@ -12,7 +12,7 @@ import jsonschema
 import pytest
 from reference import units as ref
 
-from sensormodel.errors import ModelFileError, SensorModelError
+from sensormodel.errors import AnalysisError, ModelFileError, SensorModelError
 from sensormodel.model import SCHEMA_ID, Channel, NoiseModel
 from sensormodel.terms import White
 
@@ -95,6 +95,9 @@ def test_white_sample_std_of_a_channel(m200):
     assert plain.white_sample_std(100.0) == pytest.approx(1e-4 * 10.0, rel=1e-15)
     empty = Channel(id="gyro.x", quantity="angular_rate", unit="rad/s", sample_rate=400.0)
     assert empty.white_sample_std() == 0.0
+    for bad in (0.0, -5.0, math.inf, math.nan):  # never a silent fallback or an inf/NaN
+        with pytest.raises(AnalysisError, match=r"^rate: got .*; expected a positive, finite rate"):
+            plain.white_sample_std(bad)
 
 
 def test_channel_lookup_and_select(m200):

@@ -141,6 +141,9 @@ def test_standard_gravity_is_the_cgpm_value():
     assert parse_quantity("1 g", "acceleration") == ref.STANDARD_GRAVITY
     assert parse_quantity("1 mg", "acceleration") == pytest.approx(1e-3 * ref.STANDARD_GRAVITY)
     assert parse_quantity("2 ng", "acceleration") == pytest.approx(2e-9 * ref.STANDARD_GRAVITY)
+    # pint's own names for g_n (digits inside a unit name are not stray numbers)
+    assert parse_quantity("1 g0", "acceleration") == ref.STANDARD_GRAVITY
+    assert parse_quantity("1 g_n", "acceleration") == ref.STANDARD_GRAVITY
 
 
 def test_micro_g_is_not_micrograms():
@@ -223,6 +226,7 @@ REFUSALS = [
     ("-inf deg/rt-h", WHERE + r"'-inf deg/rt-h' is not finite"),
     ("0.15 blorp/rt-h", WHERE + r"cannot read the unit 'blorp/rt-h' \(unknown unit 'blorp'\)"),
     ("0.15 deg/rt-h/", WHERE + r"cannot read the unit 'deg/rt-h/' \(not a unit expression\)"),
+    ("0.15 deg/rt-h3", WHERE + r"cannot read the unit 'deg/rt-h3' \(unknown unit 'h3'\)"),
     ("0.15 (deg/rt-h", WHERE + r"cannot read the unit '\(deg/rt-h' \(not a unit expression\)"),
     # stray numbers or operators would otherwise be silent arithmetic in pint
     ("0.15 3 deg/rt-h", WHERE + r"cannot read the unit '3 deg/rt-h' \(unexpected '3'\)"),
@@ -290,6 +294,7 @@ def test_unknown_kind_is_a_programming_error():
         ("deg/hr/sqrt(hr)", "degree / hour ** 1.5"),
         ("°/(h·√Hz)", "degree / hour / hertz ** 0.5"),
         ("dph", "degree / hour"),
+        ("°/√h²", "degree / hour"),  # a power after a root applies to the root
     ],
 )
 def test_normalize_unit_reads_as_pint_would(printed, pint_text):
