@@ -14,7 +14,7 @@ import os
 import pathlib
 import tempfile
 from collections.abc import Iterator
-from functools import lru_cache
+from functools import cache
 from typing import IO, Any
 
 from .errors import ModelFileError, SensorModelError
@@ -164,7 +164,10 @@ def read_json(path: str | os.PathLike[str], *, schema: str | None = None) -> Any
         data = json.loads(text, parse_constant=_refuse_number, parse_float=_finite_float)
     except json.JSONDecodeError as exc:
         raise ModelFileError(
-            f"not valid JSON ({exc.msg})", "a JSON document", source=str(p), field=f"line {exc.lineno}"
+            f"not valid JSON ({exc.msg})",
+            "a JSON document",
+            source=str(p),
+            field=f"line {exc.lineno}",
         ) from None
     except _NonFiniteNumber as exc:
         line = text.count("\n", 0, max(text.find(exc.args[0]), 0)) + 1
@@ -179,7 +182,7 @@ def read_json(path: str | os.PathLike[str], *, schema: str | None = None) -> Any
     return data
 
 
-@lru_cache(maxsize=None)
+@cache
 def load_schema(name: str) -> dict[str, Any]:
     """Load a JSON Schema from ``schemas/`` by file name."""
     return json.loads((SCHEMA_DIR / name).read_text(encoding="utf-8"))

@@ -31,9 +31,9 @@ from .errors import DatasheetError
 from .terms import (
     Flicker,
     Quantization,
+    Ramp,
     RandomConstant,
     RandomWalk,
-    Ramp,
     Term,
     White,
 )
@@ -148,8 +148,10 @@ def axis_terms(ax: AxisSpec, *, basis: str = "typ") -> tuple[list[Term], list[st
     def pick(key: str) -> tuple[float, str, str]:
         value, text, used = values[key].pick(basis)
         if used != basis:
-            notes.append(f"{ax.channel_id}: {ax.origin.get(key, key)} has no '{basis}' value; "
-                         f"'{used}' ({text}) used")
+            notes.append(
+                f"{ax.channel_id}: {ax.origin.get(key, key)} has no '{basis}' value; "
+                f"'{used}' ({text}) used"
+            )
         return value, text, used
 
     walk = "angle_random_walk" if ax.instrument == "gyro" else "velocity_random_walk"
@@ -170,8 +172,11 @@ def axis_terms(ax: AxisSpec, *, basis: str = "typ") -> tuple[list[Term], list[st
 
             t, t_text, _ = pick("correlation_time")
             if t <= 0:
-                raise DatasheetError("correlation_time is zero", "a positive time such as '300 s'",
-                                     field=ax.origin["correlation_time"])
+                raise DatasheetError(
+                    "correlation_time is zero",
+                    "a positive time such as '300 s'",
+                    field=ax.origin["correlation_time"],
+                )
             meta["datasheet"]["correlation_time"] = t_text
             terms.append(gauss_markov_from_floor(floor, t, meta=meta))
         else:
@@ -209,7 +214,7 @@ def axis_terms(ax: AxisSpec, *, basis: str = "typ") -> tuple[list[Term], list[st
 
 
 def datasheet_to_model(ds: Datasheet, *, worst_case: bool = False):
-    """Convert a :class:`~sensormodel.datasheet.Datasheet` to a :class:`~sensormodel.model.NoiseModel`.
+    """Convert a :class:`~sensormodel.datasheet.Datasheet` to a noise model.
 
     Parameters
     ----------
@@ -256,7 +261,9 @@ def datasheet_to_model(ds: Datasheet, *, worst_case: bool = False):
         "psd": "IEEE Std 952 coefficients: white density N has two-sided PSD N^2 and one-sided "
         "PSD 2 N^2; Allan variance N^2/tau",
         "density_is": sorted({ax.conventions["density_is"] for ax in ds.channels()}),
-        "bias_instability_is": sorted({ax.conventions["bias_instability_is"] for ax in ds.channels()}),
+        "bias_instability_is": sorted(
+            {ax.conventions["bias_instability_is"] for ax in ds.channels()}
+        ),
         "quantization_is": sorted({ax.conventions["quantization_is"] for ax in ds.channels()}),
         "basis": basis,
     }
@@ -267,5 +274,9 @@ def datasheet_to_model(ds: Datasheet, *, worst_case: bool = False):
         "datasheet": {"file": pathlib.Path(ds.source).name, "sha256": ds.sha256},
         "notes": notes,
     }
-    return NoiseModel(sensor=dict(ds.sensor), channels=tuple(channels), provenance=provenance,
-                      conventions=conventions)
+    return NoiseModel(
+        sensor=dict(ds.sensor),
+        channels=tuple(channels),
+        provenance=provenance,
+        conventions=conventions,
+    )

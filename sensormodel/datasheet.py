@@ -69,7 +69,9 @@ class FieldSpec:
 
 
 _COMMON = {
-    "correlation_time": FieldSpec("time", None, "correlation time of the bias (makes it Gauss-Markov)"),
+    "correlation_time": FieldSpec(
+        "time", None, "correlation time of the bias (makes it Gauss-Markov)"
+    ),
     "bandwidth": FieldSpec("frequency", None, "output filter -3 dB bandwidth"),
     "sample_rate": FieldSpec("frequency", None, "output data rate"),
 }
@@ -201,12 +203,20 @@ def _parse_spec(value: Any, kind: str, where: str, source: str) -> SpecValue:
         _check_keys(value, ["typ", "max"], where, source)
         if not value:
             raise DatasheetError(
-                "empty table", "{ typ = \"…\" } and/or { max = \"…\" }", source=source, field=where
+                "empty table", '{ typ = "…" } and/or { max = "…" }', source=source, field=where
             )
         typ = value.get("typ")
         mx = value.get("max")
-        typ_si = parse_quantity(typ, kind, field=f"{where}.typ", source=source) if typ is not None else None
-        max_si = parse_quantity(mx, kind, field=f"{where}.max", source=source) if mx is not None else None
+        typ_si = (
+            parse_quantity(typ, kind, field=f"{where}.typ", source=source)
+            if typ is not None
+            else None
+        )
+        max_si = (
+            parse_quantity(mx, kind, field=f"{where}.max", source=source)
+            if mx is not None
+            else None
+        )
         if typ_si is not None and max_si is not None and typ_si > max_si * (1 + 1e-12):
             raise DatasheetError(
                 f"typ '{typ}' is larger than max '{mx}'", "typ <= max", source=source, field=where
@@ -216,7 +226,9 @@ def _parse_spec(value: Any, kind: str, where: str, source: str) -> SpecValue:
     return SpecValue(si, None, value, None)
 
 
-def _conventions(table: dict[str, Any], base: dict[str, str], where: str, source: str) -> dict[str, str]:
+def _conventions(
+    table: dict[str, Any], base: dict[str, str], where: str, source: str
+) -> dict[str, str]:
     out = dict(base)
     for key, (allowed, _default) in CONVENTIONS.items():
         if key in table:
@@ -239,7 +251,7 @@ def _filter_order(table: dict[str, Any], base: int | None, where: str, source: s
     if isinstance(val, bool) or not isinstance(val, int) or not 1 <= val <= _MAX_FILTER_ORDER:
         raise DatasheetError(
             f"got {val!r}",
-            f"a whole number from 1 to {_MAX_FILTER_ORDER} (Butterworth order of the output filter)",
+            f"a whole number from 1 to {_MAX_FILTER_ORDER} (the output filter's Butterworth order)",
             source=source,
             field=f"{where}.filter_order",
         )
@@ -254,13 +266,21 @@ def _axes(value: Any, where: str, source: str) -> tuple[str, ...]:
         or len(set(value)) != len(value)
     ):
         raise DatasheetError(
-            f"got {value!r}", "a list of distinct axes from 'x', 'y', 'z'", source=source, field=where
+            f"got {value!r}",
+            "a list of distinct axes from 'x', 'y', 'z'",
+            source=source,
+            field=where,
         )
     return tuple(a for a in _AXES if a in value)
 
 
-def _check_equivalent(values: dict[str, SpecValue], conv: dict[str, str], instrument: str,
-                      origin: dict[str, str], source: str) -> None:
+def _check_equivalent(
+    values: dict[str, SpecValue],
+    conv: dict[str, str],
+    instrument: str,
+    origin: dict[str, str],
+    source: str,
+) -> None:
     """Refuse a random-walk coefficient and a density that disagree by more than 1 %."""
     walk = "angle_random_walk" if instrument == "gyro" else "velocity_random_walk"
     if walk not in values or "noise_density" not in values:
@@ -283,7 +303,9 @@ def _check_equivalent(values: dict[str, SpecValue], conv: dict[str, str], instru
             )
 
 
-def parse_datasheet(data: dict[str, Any], *, source: str = "<datasheet>", sha256: str = "") -> Datasheet:
+def parse_datasheet(
+    data: dict[str, Any], *, source: str = "<datasheet>", sha256: str = ""
+) -> Datasheet:
     """Validate a datasheet already read from TOML and convert it to SI.
 
     Parameters
@@ -307,17 +329,31 @@ def parse_datasheet(data: dict[str, Any], *, source: str = "<datasheet>", sha256
             raise DatasheetError(
                 f"unknown table '[{key}]'{_suggest(key, ['sensor', *INSTRUMENTS])}",
                 f"tables {', '.join(['sensor', *INSTRUMENTS])}",
-                source=source, field=key,
+                source=source,
+                field=key,
             )
     sensor = data.get("sensor")
     if not isinstance(sensor, dict):
-        raise DatasheetError("missing table [sensor]", "a [sensor] table with at least sample_rate",
-                             source=source, field="sensor")
-    sensor_known = [*_SENSOR_TEXT_KEYS, "axes", "sample_rate", "bandwidth", "filter_order", *CONVENTIONS]
+        raise DatasheetError(
+            "missing table [sensor]",
+            "a [sensor] table with at least sample_rate",
+            source=source,
+            field="sensor",
+        )
+    sensor_known = [
+        *_SENSOR_TEXT_KEYS,
+        "axes",
+        "sample_rate",
+        "bandwidth",
+        "filter_order",
+        *CONVENTIONS,
+    ]
     _check_keys(sensor, sensor_known, "sensor", source)
     for key in _SENSOR_TEXT_KEYS:
         if key in sensor and not isinstance(sensor[key], str):
-            raise DatasheetError(f"got {sensor[key]!r}", "a text", source=source, field=f"sensor.{key}")
+            raise DatasheetError(
+                f"got {sensor[key]!r}", "a text", source=source, field=f"sensor.{key}"
+            )
     axes = _axes(sensor["axes"], "sensor.axes", source) if "axes" in sensor else _AXES
     base_conv = _conventions(sensor, {k: d for k, (_, d) in CONVENTIONS.items()}, "sensor", source)
     base_order = _filter_order(sensor, None, "sensor", source)
@@ -330,8 +366,9 @@ def parse_datasheet(data: dict[str, Any], *, source: str = "<datasheet>", sha256
     instruments = {}
     present = [name for name in INSTRUMENTS if name in data]
     if not present:
-        raise DatasheetError("no instrument table", "a [gyro] and/or [accelerometer] table",
-                             source=source)
+        raise DatasheetError(
+            "no instrument table", "a [gyro] and/or [accelerometer] table", source=source
+        )
     for name in present:
         table = data[name]
         if not isinstance(table, dict):
@@ -346,7 +383,9 @@ def parse_datasheet(data: dict[str, Any], *, source: str = "<datasheet>", sha256
         origin = dict(base_origin)
         for key in keys:
             if key in table:
-                values[key] = _parse_spec(table[key], FIELDS[name][key].kind, f"{name}.{key}", source)
+                values[key] = _parse_spec(
+                    table[key], FIELDS[name][key].kind, f"{name}.{key}", source
+                )
                 origin[key] = f"{name}.{key}"
         per_axis = {}
         for axis in inst_axes:
@@ -357,20 +396,31 @@ def parse_datasheet(data: dict[str, Any], *, source: str = "<datasheet>", sha256
             override = table.get(axis, {})
             if axis in table:
                 if not isinstance(override, dict):
-                    raise DatasheetError(f"got {override!r}", "a table of per-axis values",
-                                         source=source, field=f"{name}.{axis}")
-                _check_keys(override, [*keys, *CONVENTIONS, "filter_order"], f"{name}.{axis}", source)
+                    raise DatasheetError(
+                        f"got {override!r}",
+                        "a table of per-axis values",
+                        source=source,
+                        field=f"{name}.{axis}",
+                    )
+                _check_keys(
+                    override, [*keys, *CONVENTIONS, "filter_order"], f"{name}.{axis}", source
+                )
                 ax_conv = _conventions(override, conv, f"{name}.{axis}", source)
                 ax_order = _filter_order(override, order, f"{name}.{axis}", source)
                 for key in keys:
                     if key in override:
                         where = f"{name}.{axis}.{key}"
-                        ax_values[key] = _parse_spec(override[key], FIELDS[name][key].kind, where, source)
+                        ax_values[key] = _parse_spec(
+                            override[key], FIELDS[name][key].kind, where, source
+                        )
                         ax_origin[key] = where
                         if key in ("angle_random_walk", "velocity_random_walk", "noise_density"):
                             # an axis override of one replaces the instrument's other form
-                            other = {"noise_density"} if key != "noise_density" else {
-                                "angle_random_walk", "velocity_random_walk"}
+                            other = (
+                                {"noise_density"}
+                                if key != "noise_density"
+                                else {"angle_random_walk", "velocity_random_walk"}
+                            )
                             for o in other:
                                 if o in ax_values and ax_origin.get(o, "").count(".") < 2:
                                     ax_values.pop(o)
@@ -380,28 +430,40 @@ def parse_datasheet(data: dict[str, Any], *, source: str = "<datasheet>", sha256
                     raise DatasheetError(
                         f"an override for axis '{axis_extra}', which the sensor does not have",
                         f"overrides only for axes {', '.join(inst_axes)}",
-                        source=source, field=f"{name}.{axis_extra}",
+                        source=source,
+                        field=f"{name}.{axis_extra}",
                     )
             _check_equivalent(ax_values, ax_conv, name, ax_origin, source)
             if "sample_rate" not in ax_values:
                 raise DatasheetError(
-                    "no sample_rate", "sample_rate in [sensor] or in the instrument table, e.g. '400 Hz'",
-                    source=source, field=f"{name}.sample_rate",
+                    "no sample_rate",
+                    "sample_rate in [sensor] or in the instrument table, e.g. '400 Hz'",
+                    source=source,
+                    field=f"{name}.sample_rate",
                 )
             rate = ax_values["sample_rate"].typ or ax_values["sample_rate"].max
             if not rate or rate <= 0:
-                raise UnitError("sample_rate is zero", "a positive rate such as '400 Hz'",
-                                source=source, field=ax_origin["sample_rate"])
+                raise UnitError(
+                    "sample_rate is zero",
+                    "a positive rate such as '400 Hz'",
+                    source=source,
+                    field=ax_origin["sample_rate"],
+                )
             if "bandwidth" in ax_values:
                 bw = ax_values["bandwidth"].typ or ax_values["bandwidth"].max
                 if not bw or bw <= 0:
-                    raise UnitError("bandwidth is zero", "a positive -3 dB bandwidth such as '100 Hz'",
-                                    source=source, field=ax_origin["bandwidth"])
+                    raise UnitError(
+                        "bandwidth is zero",
+                        "a positive -3 dB bandwidth such as '100 Hz'",
+                        source=source,
+                        field=ax_origin["bandwidth"],
+                    )
             if not any(FIELDS[name][k].term for k in ax_values if k in FIELDS[name]):
                 raise DatasheetError(
-                    "no noise term", "at least one of " + ", ".join(
-                        k for k, f in FIELDS[name].items() if f.term),
-                    source=source, field=f"{name}.{axis}" if axis in table else name,
+                    "no noise term",
+                    "at least one of " + ", ".join(k for k, f in FIELDS[name].items() if f.term),
+                    source=source,
+                    field=f"{name}.{axis}" if axis in table else name,
                 )
             per_axis[axis] = AxisSpec(name, axis, ax_values, ax_conv, ax_order, ax_origin)
         instruments[name] = Instrument(name, per_axis)
@@ -436,7 +498,9 @@ def load_datasheet(path: str | os.PathLike[str]) -> Datasheet:
     try:
         raw = p.read_bytes()
     except FileNotFoundError:
-        raise DatasheetError("no such file", "an existing datasheet .toml file", source=str(p)) from None
+        raise DatasheetError(
+            "no such file", "an existing datasheet .toml file", source=str(p)
+        ) from None
     except IsADirectoryError:
         raise DatasheetError("is a folder", "a datasheet .toml file", source=str(p)) from None
     try:
@@ -449,16 +513,21 @@ def load_datasheet(path: str | os.PathLike[str]) -> Datasheet:
         if "(at line" in msg:
             line = "line " + msg.split("(at line", 1)[1].split(",")[0].strip()
             msg = msg.split("(at line", 1)[0].strip()
-        raise DatasheetError(f"not valid TOML ({msg})", "a TOML datasheet", source=str(p),
-                             field=line or None) from None
+        raise DatasheetError(
+            f"not valid TOML ({msg})", "a TOML datasheet", source=str(p), field=line or None
+        ) from None
     from ._io import validate
 
     ds = parse_datasheet(data, source=str(p), sha256=hashlib.sha256(raw).hexdigest())
     try:
         validate(data, "datasheet.schema.json", source=str(p))
     except ModelFileError as exc:  # structure already checked above; the schema is the contract
-        raise DatasheetError(exc.problem, "a datasheet as in schemas/datasheet.schema.json",
-                             source=str(p), field=exc.field) from None
+        raise DatasheetError(
+            exc.problem,
+            "a datasheet as in schemas/datasheet.schema.json",
+            source=str(p),
+            field=exc.field,
+        ) from None
     return ds
 
 
@@ -488,8 +557,10 @@ def datasheet_schema() -> dict[str, Any]:
                 {"$ref": "#/$defs/quantity"},
                 {
                     "type": "object",
-                    "properties": {"typ": {"$ref": "#/$defs/quantity"},
-                                   "max": {"$ref": "#/$defs/quantity"}},
+                    "properties": {
+                        "typ": {"$ref": "#/$defs/quantity"},
+                        "max": {"$ref": "#/$defs/quantity"},
+                    },
                     "additionalProperties": False,
                     "minProperties": 1,
                 },

@@ -21,6 +21,7 @@ __all__ = ["SCHEMA_ID", "Channel", "NoiseModel", "noise_model_schema"]
 #: The schema id written into, and required of, every noise-model file.
 SCHEMA_ID = "sensormodel/noise-model/1"
 
+
 @dataclass(frozen=True)
 class Channel:
     """One sensor axis: its id, SI unit, output rate and noise terms.
