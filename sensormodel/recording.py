@@ -690,24 +690,29 @@ class _TextSource(_Source):
         total = self.data_end - self.data_offset
         parts: list[list[np.ndarray]] = [[] for _ in wanted]
         sinks = []
+        arrow_file = None
         tag = f".{os.getpid()}.part"
         try:
             if folder is not None:
                 sinks = [open(folder / f"f{j}.f64{tag}", "wb") for j in wanted]  # noqa: SIM115
             row = 0
+            arrow_file = None if arrow is None else arrow[0].memory_map(str(self.path), "r")
             with (
                 open(self.path, "rb") as fh,
                 mmap.mmap(fh.fileno(), 0, access=mmap.ACCESS_READ) as mm,
             ):
                 for a, b in self._pieces(mm):
-                    raw = mm[a:b]
                     cols = None
-                    if arrow is not None:
-                        cols = _arrow_piece(arrow, raw, self.n_fields, wanted, self.delimiter)
+                    if arrow_file is not None:
+                        arrow_file.seek(a)  # a zero-copy slice of pyarrow's memory map
+                        buf = arrow_file.read_buffer(b - a)
+                        cols = _arrow_piece(arrow, buf, self.n_fields, wanted, self.delimiter)
+                        del buf
                     if cols is None:
+                        raw = mm[a:b]
                         cols = _numpy_piece(raw, self.n_fields, wanted, self.delimiter)
-                    if cols is None:
-                        cols = self._python_piece(raw, row, wanted)
+                        if cols is None:
+                            cols = self._python_piece(raw, row, wanted)
                     row += len(cols[0])
                     for k, c in enumerate(cols):
                         if sinks:
@@ -723,6 +728,8 @@ class _TextSource(_Source):
                     os.replace(folder / f"f{j}.f64{tag}", folder / f"f{j}.f64")
                 return []
         finally:
+            if arrow_file is not None:
+                arrow_file.close()
             for s in sinks:
                 s.close()
             if folder is not None:
@@ -777,7 +784,7 @@ class _TextSource(_Source):
 
 
 def _arrow_piece(
-    arrow: Any, raw: bytes, n_fields: int, wanted: Sequence[int], delimiter: str
+    arrow: Any, buf: Any, n_fields: int, wanted: Sequence[int], delimiter: str
 ) -> list[np.ndarray] | None:
     """Parse one piece of CSV text with pyarrow; None when pyarrow refuses it."""
     pa, pacsv = arrow
@@ -785,7 +792,7 @@ def _arrow_piece(
     keep = [names[j] for j in wanted]
     try:
         table = pacsv.read_csv(
-            pa.BufferReader(pa.py_buffer(raw)),
+            pa.BufferReader(buf),
             read_options=pacsv.ReadOptions(column_names=names, use_threads=True),
             parse_options=pacsv.ParseOptions(
                 delimiter=delimiter, ignore_empty_lines=False, newlines_in_values=False
