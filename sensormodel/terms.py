@@ -937,11 +937,21 @@ def allan_variance_from_psd(
                     return s_of(x, t) / (8.0 * x**2)
 
                 total += 3.0 * quad(smooth, a, b, limit=2000, epsabs=0.0, epsrel=1e-11)[0]
+                tol = 1e-13 * abs(total) or 1e-300  # QAWF honours only an absolute tolerance
                 for wv, k in ((2.0, -4.0), (4.0, 1.0)):
                     if math.isinf(b):
-                        val = quad(smooth, a, b, weight="cos", wvar=wv, limlst=200)[0]
+                        val = quad(smooth, a, b, weight="cos", wvar=wv, limlst=200, epsabs=tol)[0]
                     else:
-                        val = quad(smooth, a, b, weight="cos", wvar=wv, limit=2000)[0]
+                        val = quad(
+                            smooth,
+                            a,
+                            b,
+                            weight="cos",
+                            wvar=wv,
+                            limit=2000,
+                            epsabs=tol,
+                            epsrel=1e-11,
+                        )[0]
                     total += k * val
         out[i] = 4.0 / (np.pi * t) * total
     return out.reshape(tau.shape)
