@@ -170,7 +170,8 @@ def axis_terms(ax: AxisSpec, *, basis: str = "typ") -> tuple[list[Term], list[st
         if "correlation_time" in values:
             from .terms import gauss_markov_from_floor  # the peak constant is theory
 
-            t, t_text, _ = pick("correlation_time")
+            # a correlation time has no "worse" side: always the typical value
+            t, t_text, _ = values["correlation_time"].pick("typ")
             if t <= 0:
                 raise DatasheetError(
                     "correlation_time is zero",
@@ -244,8 +245,12 @@ def datasheet_to_model(ds: Datasheet, *, worst_case: bool = False):
             raise exc.located(source=ds.source) from None
         notes.extend(ax_notes)
         quantity, unit = QUANTITY[ax.instrument]
-        rate, _, _ = ax.values["sample_rate"].pick(basis)
-        bw = ax.values["bandwidth"].pick(basis)[0] if "bandwidth" in ax.values else None
+        # the output rate and filter describe the unit, not its noise: always the typical value
+        rate, _, _ = ax.values["sample_rate"].pick("typ")
+        bw = ax.values["bandwidth"].pick("typ")[0] if "bandwidth" in ax.values else None
+        if bw is not None and ax.filter_order is None:
+            notes.append(f"{ax.channel_id}: bandwidth without filter_order; a 1-pole "
+                         "(first-order) output filter is assumed")
         channels.append(
             Channel(
                 id=ax.channel_id,
