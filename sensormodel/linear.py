@@ -350,6 +350,40 @@ def van_loan(
     if n == 0:
         return np.zeros((0, 0)), np.zeros((0, 0))
     W = G @ Qc @ G.T
+    parts = _components(F, W)
+    if len(parts) > 1:  # independent blocks: each with its own sub-step (accuracy and speed)
+        phi, qd = np.zeros((n, n)), np.zeros((n, n))
+        for idx in parts:
+            ix = np.ix_(idx, idx)
+            phi[ix], qd[ix] = _van_loan_block(F[ix], W[ix], dt)
+        return phi, qd
+    return _van_loan_block(F, W, dt)
+
+
+def _components(F: _FloatArray, W: _FloatArray) -> list[npt.NDArray[np.intp]]:
+    """Groups of states coupled through F or W (connected components of their sparsity)."""
+    n = F.shape[0]
+    linked = (F != 0) | (F.T != 0) | (W != 0)
+    label = -np.ones(n, dtype=int)
+    groups = []
+    for start in range(n):
+        if label[start] >= 0:
+            continue
+        stack_, members = [start], []
+        label[start] = len(groups)
+        while stack_:
+            i = stack_.pop()
+            members.append(i)
+            for j in np.flatnonzero(linked[i]):
+                if label[j] < 0:
+                    label[j] = len(groups)
+                    stack_.append(j)
+        groups.append(np.array(sorted(members), dtype=np.intp))
+    return groups
+
+
+def _van_loan_block(F: _FloatArray, W: _FloatArray, dt: float) -> tuple[_FloatArray, _FloatArray]:
+    n = F.shape[0]
     w_scale = float(np.max(np.abs(W))) or 1.0
     norm = float(np.linalg.norm(F, 1)) * dt
     k = 0 if norm <= 0.5 else int(math.ceil(math.log2(norm / 0.5)))
@@ -394,6 +428,8 @@ def steady_state_covariance(
     Solved as the limit P = lim Qd(t), t → ∞, by squaring the exact discrete form
     (Qd(2t) = Φ(t) Qd(t) Φ(t)ᵀ + Qd(t), Φ(2t) = Φ(t)²; the "squared Smith" iteration of the
     discrete Lyapunov equation P = Φ P Φᵀ + Qd), which converges quadratically for stable F.
+    Uncoupled blocks (the terms of a stack) are solved apart, each from a step matched to its
+    own time scale, so slow and fast states keep full precision side by side.
 
     Parameters
     ----------
@@ -427,16 +463,21 @@ def steady_state_covariance(
             f"(F has an eigenvalue with real part {np.max(eig.real):.3g} >= 0)",
             "a stable system (only Gauss-Markov-type states) for a steady-state covariance",
         )
-    h = 1.0 / float(np.linalg.norm(F, 1))
-    phi, qd = van_loan(F, G, Qc, h)
-    for _ in range(400):
-        qd = phi @ qd @ phi.T + qd
-        phi = phi @ phi
-        if np.max(np.abs(phi)) < 1e-18:
-            break
-    else:  # pragma: no cover - a stable F always converges well before this
-        raise AnalysisError("the steady-state iteration did not converge", "a stable system")
-    return 0.5 * (qd + qd.T)
+    W = G @ Qc @ G.T
+    P = np.zeros((n, n))
+    for idx in _components(F, W):  # independent blocks each get their own starting step
+        ix = np.ix_(idx, idx)
+        Fb, Wb = F[ix], W[ix]
+        phi, qd = _van_loan_block(Fb, Wb, 1.0 / float(np.linalg.norm(Fb, 1)))
+        for _ in range(400):
+            qd = phi @ qd @ phi.T + qd
+            phi = phi @ phi
+            if np.max(np.abs(phi)) < 1e-18:
+                break
+        else:  # pragma: no cover - a stable F always converges well before this
+            raise AnalysisError("the steady-state iteration did not converge", "a stable system")
+        P[ix] = 0.5 * (qd + qd.T)
+    return P
 
 
 def propagate(
