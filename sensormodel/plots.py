@@ -14,7 +14,14 @@ from typing import Any
 
 import numpy as np
 
-__all__ = ["model_figure", "drift_figure", "save_figure"]
+__all__ = [
+    "model_figure",
+    "drift_figure",
+    "save_figure",
+    "verdict_allan_figure",
+    "verdict_psd_figure",
+    "figure_png",
+]
 
 #: Display spec: label of the unit, factor that multiplies the SI value.
 Display = Mapping[str, tuple[str, float]]
@@ -158,3 +165,111 @@ def save_figure(fig: Any, path: str | os.PathLike[str], *, force: bool = False) 
     suffix = pathlib.Path(path).suffix.lstrip(".").lower() or "png"
     with atomic_path(path, force=force) as tmp:
         fig.savefig(tmp, format=suffix, dpi=120)
+
+
+# -- acceptance figures --------------------------------------------------------------------------
+
+
+def verdict_allan_figure(verdict: Any, *, display: tuple[str, float] | None = None) -> Any:
+    """Log-log Allan deviation of one channel against its datasheet limits.
+
+    Parameters
+    ----------
+    verdict : ChannelVerdict
+        From :func:`sensormodel.acceptance.verify`.
+    display : (str, float), optional
+        Unit label and the factor that multiplies SI values (default the channel's SI unit).
+
+    Returns
+    -------
+    matplotlib.figure.Figure
+        The measured overlapping Allan deviation (dots) with its pointwise confidence band
+        (shaded), the limit curve implied by the datasheet (red, dashed), the fitted model
+        (black), and the τ ranges where the limit is exceeded with confidence (red bands).
+    """
+    label, factor = display or (verdict.unit, 1.0)
+    check = verdict.curve
+    fig, axes = _figure(1, 1, width=7.5, row_height=4.6)
+    ax = axes[0][0]
+    tau = check.tau
+    ax.fill_between(tau, check.ci_low * factor, check.ci_high * factor, color="tab:blue",
+                    alpha=0.22, lw=0, label=f"{100 * check.confidence:.0f} % interval")
+    ax.loglog(tau, check.adev * factor, "o", ms=3.5, color="tab:blue", label="measured")
+    t_fine = np.geomspace(tau[0], tau[-1], 300)
+    fitted = getattr(verdict.identification, "fitted_adev", None)
+    if fitted is not None:
+        ax.loglog(t_fine, np.asarray(fitted(t_fine)) * factor, "k-", lw=1.6, label="fitted model")
+    limit = verdict.limit_channel.allan_deviation(t_fine) * factor
+    ax.loglog(t_fine, limit, "--", color="tab:red", lw=1.8, label="datasheet limit")
+    for k, (t0, t1) in enumerate(check.exceeded):
+        lo, hi = t0 / 1.15, t1 * 1.15
+        ax.axvspan(lo, hi, color="tab:red", alpha=0.12, lw=0,
+                   label="limit exceeded" if k == 0 else None)
+    ax.set_title(f"{verdict.id}: Allan deviation against the datasheet ({verdict.verdict})")
+    ax.set_xlabel("averaging time τ [s]")
+    ax.set_ylabel(f"σ(τ) [{label}]")
+    ax.grid(True, which="both", alpha=0.3)
+    ax.legend(fontsize="small")
+    return fig
+
+
+def verdict_psd_figure(verdict: Any, *, display: tuple[str, float] | None = None) -> Any:
+    """One-sided PSD of one channel's recording, with the limit and fitted models.
+
+    Parameters
+    ----------
+    verdict : ChannelVerdict
+        From :func:`sensormodel.acceptance.verify`; its ``psd`` is (f [Hz], one-sided PSD
+        [u²/Hz]) of the record (Welch), or None.
+    display : (str, float), optional
+        Unit label and the factor that multiplies SI values; the PSD is multiplied by factor².
+
+    Returns
+    -------
+    matplotlib.figure.Figure
+        Measured one-sided PSD (blue), the datasheet-limit model (red, dashed) and the fitted
+        model (black), all one-sided (= 2 × the IEEE Std 952 two-sided PSD).
+    """
+    from .errors import SensorModelError
+
+    label, factor = display or (verdict.unit, 1.0)
+    fig, axes = _figure(1, 1, width=7.5, row_height=4.6)
+    ax = axes[0][0]
+    psd = getattr(verdict, "psd", None)
+    f_lo = 1.0 / max(verdict.duration, 1e-9)
+    f_hi = 0.5 * verdict.rate
+    if psd is not None:
+        f, s = psd
+        keep = f > 0
+        ax.loglog(f[keep], s[keep] * factor**2, "-", color="tab:blue", lw=0.9,
+                  label="measured (Welch)")
+        if np.any(keep):
+            f_lo = float(f[keep][0])
+    f_grid = np.geomspace(f_lo, f_hi, 300)
+    lim = verdict.limit_channel.psd(f_grid, sided="one-sided") * factor**2
+    ax.loglog(f_grid, np.where(lim > 0, lim, np.nan), "--", color="tab:red", lw=1.8,
+              label="datasheet limit")
+    to_channel = getattr(verdict.identification, "to_channel", None)
+    if to_channel is not None:
+        try:
+            fitted = to_channel()
+            s_fit = fitted.psd(f_grid, sided="one-sided") * factor**2
+            ax.loglog(f_grid, np.where(s_fit > 0, s_fit, np.nan), "k-", lw=1.4,
+                      label="fitted model")
+        except SensorModelError:  # a fitted model without a PSD is just not drawn
+            pass
+    ax.set_title(f"{verdict.id}: power spectral density (one-sided)")
+    ax.set_xlabel("frequency [Hz]")
+    ax.set_ylabel(f"S(f) [({label})²/Hz]")
+    ax.grid(True, which="both", alpha=0.3)
+    ax.legend(fontsize="small")
+    return fig
+
+
+def figure_png(fig: Any, *, dpi: int = 110) -> bytes:
+    """The figure as PNG bytes (for embedding in a report)."""
+    import io
+
+    buf = io.BytesIO()
+    fig.savefig(buf, format="png", dpi=dpi)
+    return buf.getvalue()

@@ -1,0 +1,417 @@
+"""Acceptance: verdict logic, degrees of freedom and recording length, spec limits, plans.
+
+Verdicts are checked on constructed cases whose answer is known by construction; the
+chi-square decision model and the recording-length rule are checked against the published
+interval (NIST SP 1065) and by seeded Monte Carlo; the error rates and the recording length of
+the whole chain (simulate -> Allan deviation -> identify -> verdict) by seeded simulation.
+"""
+
+from __future__ import annotations
+
+import math
+from types import SimpleNamespace
+
+import numpy as np
+import pytest
+from reference import acceptance as ref
+from reference import units as uref
+from scipy.stats import binom
+
+from sensormodel import acceptance as acc
+from sensormodel.datasheet import load_datasheet
+from sensormodel.errors import AnalysisError, DatasheetError
+
+# ---------------------------------------------------------------------------------------------
+# verdict logic, constructed cases
+# ---------------------------------------------------------------------------------------------
+
+
+@pytest.mark.parametrize(
+    ("low", "high", "limit", "expected"),
+    [
+        (1.0, 2.0, 100.0, "pass"),  # limit far above the interval
+        (1.0, 2.0, 0.01, "fail"),  # limit far below it
+        (1.0, 2.0, 1.5, "inconclusive"),  # limit inside it
+        (1.0, 2.0, 2.0, "pass"),  # high on the limit: the whole interval is within
+        (1.0, 2.0, 1.0, "inconclusive"),  # low on the limit: not wholly beyond
+        (0.0, 2.0, 1.0, "inconclusive"),  # a bound that straddles the limit
+    ],
+    ids=["far-above", "far-below", "inside", "high-on-limit", "low-on-limit", "bound"],
+)
+def test_decide_constructed(low: float, high: float, limit: float, expected: str) -> None:
+    assert acc.decide(low, high, limit) == expected
+
+
+def test_decide_refuses_nonsense() -> None:
+    with pytest.raises(AnalysisError, match="finite"):
+        acc.decide(float("nan"), 1.0, 1.0)
+    with pytest.raises(AnalysisError, match="low <= high"):
+        acc.decide(2.0, 1.0, 1.0)
+
+
+def test_combine() -> None:
+    assert acc.combine(["pass", "pass"]) == "pass"
+    assert acc.combine(["pass", "inconclusive"]) == "inconclusive"
+    assert acc.combine(["inconclusive", "fail", "pass"]) == "fail"
+    assert acc.combine([]) == "inconclusive"
+
+
+# ---------------------------------------------------------------------------------------------
+# chi-square intervals, degrees of freedom, required length
+# ---------------------------------------------------------------------------------------------
+
+
+def test_interval_factors_published_check() -> None:
+    # NIST SP 1065 eq. (45) chi-square interval; check value of the reference notes [N].
+    c, edf, lo, hi = ref.CHI2_INTERVAL
+    got = acc.interval_factors(edf, c)
+    np.testing.assert_allclose(got, (lo, hi), rtol=1e-6)
+
+
+@pytest.mark.parametrize("nu", [0.7, 3.0, 25.0, 400.0, 1e5])
+@pytest.mark.parametrize("c", [0.683, 0.9, 0.95])
+def test_dof_from_interval_inverts(nu: float, c: float) -> None:
+    lo, hi = acc.interval_factors(nu, c)
+    assert acc.dof_from_interval(2.0 * lo, 2.0 * hi, c) == pytest.approx(nu, rel=1e-6)
+
+
+def test_dof_from_interval_bound_is_none() -> None:
+    assert acc.dof_from_interval(0.0, 1.0, 0.9) is None
+
+
+def test_dof_for_precision() -> None:
+    nu = acc.dof_for_precision(0.25, 0.9)
+    lo, hi = acc.interval_factors(nu, 0.9)
+    assert 0.5 * (hi - lo) == pytest.approx(0.25, rel=1e-8)
+
+
+@pytest.mark.parametrize("c", [0.8, 0.9, 0.95])
+@pytest.mark.parametrize("nu", [2.0, 30.0, 500.0])
+def test_decision_probability_at_the_limit(c: float, nu: float) -> None:
+    # Exactly at the limit, each wrong call has probability (1 - c)/2: the chi-square interval
+    # contains the true value with probability c, half the miss on each side (SP 1065 eq. 45).
+    assert acc.decision_probability(1.0, 1.0, nu, c) == pytest.approx((1 - c) / 2, rel=1e-9)
+
+
+def test_decision_probability_monte_carlo() -> None:
+    # Seeded check of the decision model itself: p_hat = p sqrt(X/nu), X ~ chi2(nu); the
+    # interval is the chi-square interval. n = 20000 draws; the count is binomial, so a
+    # 99.9 % two-sided binomial band (scipy.stats.binom) bounds the difference.
+    rng = np.random.default_rng(11)
+    c, nu, n = 0.9, 12.0, 20000
+    lo_f, hi_f = acc.interval_factors(nu, c)
+    for p, limit in ((1.3, 1.0), (0.8, 1.0), (1.0, 1.0)):
+        x = rng.chisquare(nu, n)
+        est = p * np.sqrt(x / nu)
+        fail = np.mean(est * lo_f > limit)
+        ok = np.mean(est * hi_f <= limit)
+        decided = fail if p >= limit else ok
+        prob = acc.decision_probability(p, limit, nu, c)
+        lo, hi = binom.interval(0.999, n, prob)
+        assert lo / n <= decided <= hi / n, (p, decided, prob)
+
+
+@pytest.mark.parametrize(("value", "power"), [(1.3, 0.8), (0.7, 0.8), (1.1, 0.5), (0.95, 0.9)])
+def test_required_dof_meets_power(value: float, power: float) -> None:
+    nu = acc.required_dof(value, 1.0, confidence=0.9, power=power)
+    assert nu is not None
+    assert acc.decision_probability(value, 1.0, nu, 0.9) == pytest.approx(power, abs=1e-6)
+
+
+def test_required_dof_at_the_limit_is_none() -> None:
+    assert acc.required_dof(1.0, 1.0, confidence=0.9, power=0.8) is None
+
+
+def test_required_duration_scales_with_dof() -> None:
+    # Present interval with nu0 dof over 600 s; the length is 600 s * nu/nu0.
+    nu0, c = 10.0, 0.9
+    lo_f, hi_f = acc.interval_factors(nu0, c)
+    est, limit = 1.2, 1.0
+    t, dof, how = acc.required_duration(
+        est, limit, low=est * lo_f, high=est * hi_f, duration=600.0, confidence=c, power=0.8
+    )
+    assert dof == pytest.approx(nu0, rel=1e-6)
+    nu = acc.required_dof(est, limit, confidence=c, power=0.8)
+    assert t == pytest.approx(600.0 * nu / nu0, rel=1e-6)
+    assert t > 600.0
+    assert "proportion" in how or "dof" in how
+
+
+def test_required_duration_bound_and_limit() -> None:
+    t, dof, how = acc.required_duration(0.0, 1.0, low=0.0, high=2.0, duration=100.0)
+    assert dof is None and t == pytest.approx(100.0 * 2.0**4) and "bound" in how
+    t, _, how = acc.required_duration(1.0, 1.0, low=0.8, high=1.25, duration=100.0)
+    assert t is None and "equals the limit" in how
+
+
+# ---------------------------------------------------------------------------------------------
+# equivalent degrees of freedom (Greenhall & Riley) and the reading τ
+# ---------------------------------------------------------------------------------------------
+
+
+@pytest.mark.parametrize("alpha", [2, 0, -1, -2])
+def test_allan_edf_against_reference(alpha: int) -> None:
+    # Greenhall & Riley (2003) large-r EDF; values of the reference library allantools at
+    # m = 100, N = 1001 phase points (1000 samples at 1 Hz, tau = 100 s), printed to 4-5 digits.
+    got = acc.allan_edf(alpha, 100.0, 1000.0, 1.0)
+    assert got == pytest.approx(ref.GREENHALL_EDF_M100_N1001[alpha], abs=0.006)
+
+
+def test_allan_edf_live_allantools() -> None:
+    allantools_ci = pytest.importorskip("allantools.ci")
+    for alpha in (2, 0, -1, -2):
+        for m, n in ((1000, 100001), (300, 20001)):
+            want = allantools_ci.edf_greenhall(alpha, 2, m, n, overlapping=True)
+            assert acc.allan_edf(alpha, m, n - 1.0, 1.0) == pytest.approx(want, rel=1e-9)
+
+
+@pytest.mark.parametrize("alpha", [2, 0, -1, -2])
+def test_duration_for_edf_inverts(alpha: int) -> None:
+    for tau, edf in ((10.0, 30.0), (300.0, 80.0)):
+        t = acc._duration_for_edf(alpha, tau, edf, 20.0)
+        if alpha == 2:  # white PM: M = edf·a0 is a sufficient (conservative) length
+            assert acc.allan_edf(alpha, tau, t, 20.0) >= edf
+        else:
+            assert acc.allan_edf(alpha, tau, t, 20.0) == pytest.approx(edf, rel=1e-9)
+
+
+def test_reading_tau_random_walk_at_crossover() -> None:
+    # Flicker floor F and random walk K: the random walk's share is K²τ/3 / (F² + K²τ/3). With
+    # edf ∝ T/τ the length for fixed effective dof is ∝ τ/s², minimal where the random walk's
+    # Allan variance equals 3× ... derived: d/dτ [τ (1 + a/τ)²] = 0 at τ = a = 3F²/K², i.e.
+    # where the random-walk Allan variance equals the floor (share 1/2).
+    from sensormodel.terms import Flicker, RandomWalk
+
+    floor, k = 1e-6, 1e-8
+    terms = [Flicker(coefficient=floor / uref.FLOOR_FACTOR), RandomWalk(density=k)]
+    r = acc.reading_tau(terms, 1, rate=1.0, dof=20.0, tau_min=1.0, tau_max=1e8)
+    assert r.tau == pytest.approx(3 * floor**2 / k**2, rel=0.1)
+    assert r.share == pytest.approx(0.5, abs=0.03)
+
+
+# ---------------------------------------------------------------------------------------------
+# what the datasheet limits
+# ---------------------------------------------------------------------------------------------
+
+
+def _limits(path, channel: str, against: str = "max"):
+    ds = load_datasheet(path)
+    ax = next(a for a in ds.channels() if a.channel_id == channel)
+    return acc.spec_limits(ax, against=against)
+
+
+def test_spec_limits_t900(examples_dir) -> None:
+    limits, skipped = _limits(examples_dir / "bw-t900.toml", "gyro.z")
+    by_key = {s.key: s for s in limits}
+    assert set(by_key) == {"angle_random_walk", "bias_instability"}
+    # 0.02 deg/rt-h max -> rad/sqrt(s) (reference notes §10) and 0.15 deg/h floor -> rad/s
+    assert by_key["angle_random_walk"].limit == pytest.approx(0.02 * uref.DEG_PER_RT_H, rel=1e-6)
+    assert by_key["angle_random_walk"].quantity == "density"
+    bi = by_key["bias_instability"]
+    assert bi.quantity == "allan_floor" and bi.type == "flicker"
+    assert bi.limit == pytest.approx(0.15 * ref.DEG_PER_H, rel=1e-6)
+    reasons = {u.key: u.reason for u in skipped}
+    assert "single run" in reasons["bias_repeatability"]
+    assert "no max" in reasons["rate_random_walk"] and "no max" in reasons["quantization"]
+
+
+def test_spec_limits_gauss_markov_floor(examples_dir) -> None:
+    # accelerometer bias instability 20 µg max with a correlation time: a Gauss-Markov bias
+    # whose Allan peak equals the floor (0.6173643 sigma; reference notes §2).
+    limits, _ = _limits(examples_dir / "bw-t900.toml", "accelerometer.x")
+    bi = next(s for s in limits if s.key == "bias_instability")
+    assert bi.type == "gauss_markov"
+    assert bi.limit == pytest.approx(20 * ref.MICRO_G, rel=1e-6)
+
+
+def test_spec_limits_conventions_g30(examples_dir) -> None:
+    # One-sided density: D = value/√2; coefficient B: floor = 0.6643 B (DESIGN §3).
+    limits, _ = _limits(examples_dir / "bw-g30.toml", "gyro.z", against="typ")
+    by_key = {s.key: s for s in limits}
+    nd = by_key["noise_density"]
+    assert nd.limit == pytest.approx(5e-3 * math.pi / 180 / math.sqrt(2), rel=1e-9)
+    assert nd.display_scale == pytest.approx(math.sqrt(2))
+    bi = by_key["bias_instability"]
+    assert bi.limit == pytest.approx(3 * ref.DEG_PER_H * uref.FLOOR_FACTOR, rel=1e-6)
+    assert bi.limit * bi.display_scale == pytest.approx(3 * ref.DEG_PER_H, rel=1e-6)
+    assert by_key["rate_ramp"].quantity == "slope"
+    # against max, the G30 has nothing to verify
+    limits, skipped = _limits(examples_dir / "bw-g30.toml", "gyro.z")
+    assert limits == [] and len(skipped) == 3
+
+
+def test_spec_limits_rejects_column() -> None:
+    with pytest.raises(AnalysisError, match="'max' or 'typ'"):
+        acc.spec_limits(None, against="worst")  # type: ignore[arg-type]
+
+
+# ---------------------------------------------------------------------------------------------
+# verify from constructed curves and identifications (answer known by construction)
+# ---------------------------------------------------------------------------------------------
+
+
+def _curve(adev_scale: float = 1.0, *, rate: float = 10.0):
+    tau = np.geomspace(0.1, 100.0, 13)
+    adev = adev_scale * 1e-5 / np.sqrt(tau)
+    return SimpleNamespace(
+        tau=tau, adev=adev, ci_low=0.9 * adev, ci_high=1.1 * adev, sample_rate=rate, confidence=0.9
+    )
+
+
+def _fit(**terms: tuple[float, float, float]):
+    """A stand-in identification: term name -> (estimate, low, high) of its main parameter."""
+    param = {
+        "white": "density",
+        "flicker": "coefficient",
+        "random_walk": "density",
+        "gauss_markov": "sigma",
+    }
+    return SimpleNamespace(
+        terms=tuple(
+            SimpleNamespace(
+                term=k, parameter=param[k], estimate=v[0], low=v[1], high=v[2], supported=v[1] > 0
+            )
+            for k, v in terms.items()
+        )
+    )
+
+
+def _axis(write_datasheet, text: str, channel: str = "gyro.z"):
+    ds = load_datasheet(write_datasheet(text))
+    return next(a for a in ds.channels() if a.channel_id == channel)
+
+
+_SHEET = """
+[sensor]
+name = "constructed"
+sample_rate = "10 Hz"
+axes = ["z"]
+[gyro]
+angle_random_walk = { typ = "0.01 deg/rt-hr", max = "0.02 deg/rt-hr" }
+bias_instability = { max = "0.1 deg/h" }
+"""
+
+
+def test_verify_curve_constructed(write_datasheet) -> None:
+    ax = _axis(write_datasheet, _SHEET)
+    n_lim = 0.02 * uref.DEG_PER_RT_H
+    b_lim = 0.1 * ref.DEG_PER_H / uref.FLOOR_FACTOR  # the coefficient whose floor is the limit
+    cases = {
+        "pass": _fit(
+            white=(0.5 * n_lim, 0.45 * n_lim, 0.55 * n_lim),
+            flicker=(0.2 * b_lim, 0.1 * b_lim, 0.3 * b_lim),
+        ),
+        "fail": _fit(
+            white=(3 * n_lim, 2.8 * n_lim, 3.2 * n_lim),
+            flicker=(0.2 * b_lim, 0.1 * b_lim, 0.3 * b_lim),
+        ),
+        "inconclusive": _fit(
+            white=(0.5 * n_lim, 0.45 * n_lim, 0.55 * n_lim),
+            flicker=(1.1 * b_lim, 0.8 * b_lim, 1.5 * b_lim),
+        ),
+    }
+    for expected, fit in cases.items():
+        cv = acc.verify_curve(_curve(), ax, duration=3600.0, identification=fit)
+        assert cv.verdict == expected
+        verdicts = {t.spec.key: t for t in cv.terms}
+        if expected == "inconclusive":
+            t = verdicts["bias_instability"]
+            assert t.verdict == "inconclusive"
+            # estimate 1.1 × limit, interval as wide as chi-square with nu0 dof -> longer record
+            assert t.required_duration is not None and t.required_duration > 3600.0
+            nu0 = acc.dof_from_interval(t.low, t.high, 0.9)
+            nu = acc.required_dof(1.1, 1.0, confidence=0.9, power=acc.DEFAULT_POWER)
+            assert t.required_duration == pytest.approx(3600.0 * nu / nu0, rel=1e-6)
+        else:
+            assert all(t.required_duration is None for t in cv.terms)
+        # the flicker coefficient is compared as the Allan floor (IEEE Std 952 Annex C)
+        assert verdicts["bias_instability"].estimate == pytest.approx(
+            fit.terms[1].estimate * uref.FLOOR_FACTOR, rel=1e-9
+        )
+
+
+def test_verify_curve_missing_term_is_an_error(write_datasheet) -> None:
+    ax = _axis(write_datasheet, _SHEET)
+    with pytest.raises(AnalysisError, match="no flicker coefficient"):
+        acc.verify_curve(_curve(), ax, duration=100.0, identification=_fit(white=(1, 1, 1)))
+
+
+def test_curve_check_constructed() -> None:
+    curve = _curve()
+    limit = curve.adev.copy()
+    limit[3:6] = 0.5 * curve.adev[3:6]  # exceeded at indices 3..5
+    limit[8:] = 2.0 * curve.adev[8:]  # within from index 8
+    check = acc.curve_check(curve, limit, confidence=0.9)
+    assert check.exceeded == ((curve.tau[3], curve.tau[5]),)
+    assert check.verdict == "fail"
+    assert np.array_equal(check.within, np.arange(13) >= 8)
+    inside = acc.curve_check(curve, curve.adev, confidence=0.9)
+    assert inside.exceeded == () and inside.verdict == "inconclusive"
+    above = acc.curve_check(curve, 2.0 * curve.adev, confidence=0.9)
+    assert above.verdict == "pass"
+
+
+def test_verify_mapping_refusals(write_datasheet) -> None:
+    path = write_datasheet(_SHEET)
+    with pytest.raises(AnalysisError, match="duration"):
+        acc.verify({"gyro.z": _curve()}, path)
+    with pytest.raises(AnalysisError, match="no channel in common"):
+        acc.verify({"accelerometer.x": _curve()}, path, duration=10.0)
+
+
+def test_verify_curve_typ_only_sheet(write_datasheet) -> None:
+    # Nothing printed with a max: nothing verified, every term listed with the reason.
+    ax = _axis(
+        write_datasheet,
+        _SHEET.replace(
+            '{ typ = "0.01 deg/rt-hr", max = "0.02 deg/rt-hr" }', '"0.01 deg/rt-hr"'
+        ).replace('{ max = "0.1 deg/h" }', '"0.1 deg/h"'),
+    )
+    fit = _fit(white=(1e-6, 0.9e-6, 1.1e-6), flicker=(1e-7, 0.5e-7, 2e-7))
+    cv = acc.verify_curve(_curve(), ax, duration=100.0, identification=fit)
+    assert cv.terms == () and cv.verdict == "inconclusive"
+    assert {u.key for u in cv.unverified} == {"angle_random_walk", "bias_instability"}
+
+
+# ---------------------------------------------------------------------------------------------
+# plans
+# ---------------------------------------------------------------------------------------------
+
+
+def test_plan_t900(examples_dir) -> None:
+    p = acc.plan(examples_dir / "bw-t900.toml")
+    rows = {(r.spec.channel, r.spec.key): r for r in p.rows}
+    arw = rows[("gyro.x", "angle_random_walk")]
+    bi = rows[("gyro.x", "bias_instability")]
+    rrw = rows[("gyro.x", "rate_random_walk")]
+    assert arw.verified and bi.verified and not rrw.verified
+    # white noise is read at short τ, bias instability at τ of tens to hundreds of seconds,
+    # the random walk far beyond: the lengths follow (≈ EDF × τ, Greenhall & Riley)
+    assert arw.read_at < 1.0 < 10.0 < bi.read_at < 1e3 < rrw.read_at
+    assert arw.duration < 60.0 < 1800.0 < bi.duration < rrw.duration
+    assert p.driver is not None and p.driver.spec.key == "bias_instability"
+    assert p.duration == max(r.duration for r in p.rows if r.verified)
+    # each row's length gives the needed EDF at its τ (the duration solves edf·share² = dof)
+    for r in p.rows:
+        edf = acc.allan_edf(
+            {"white PM": 2, "white FM": 0, "flicker FM": -1, "random-walk FM": -2}[r.noise],
+            r.read_at,
+            r.duration,
+            p.sample_rate,
+        )
+        assert edf * r.share**2 >= r.dof * (1 - 1e-6)
+    assert {u.key for u in p.unverified} == {"bias_repeatability"}
+
+
+def test_plan_precision_and_confidence(examples_dir) -> None:
+    base = acc.plan(examples_dir / "bw-t900.toml")
+    tighter = acc.plan(examples_dir / "bw-t900.toml", precision=0.1)
+    surer = acc.plan(examples_dir / "bw-t900.toml", confidence=0.99)
+    assert tighter.duration > base.duration and surer.duration > base.duration
+    with pytest.raises(AnalysisError, match="precision"):
+        acc.plan(examples_dir / "bw-t900.toml", precision=1.5)
+
+
+def test_plan_rejects_bad_datasheet(write_datasheet) -> None:
+    with pytest.raises(DatasheetError):
+        acc.plan(write_datasheet("[sensor]\nname = 1\n"))

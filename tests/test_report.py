@@ -1,0 +1,291 @@
+"""Verdict reports: the JSON document against its schema, the text summary, the HTML page.
+
+The HTML page is parsed with the standard library's html.parser (html5lib too when installed);
+it must embed every figure as a PNG data URI, fetch nothing from a network, and carry every
+text that came from an input escaped (a datasheet may name its sensor ``<script>…``).
+"""
+
+from __future__ import annotations
+
+import base64
+import copy
+import html
+import json
+import pathlib
+from html.parser import HTMLParser
+from types import SimpleNamespace
+
+import jsonschema
+import numpy as np
+import pytest
+from conftest import SCHEMAS
+
+from sensormodel import acceptance as acc
+from sensormodel.allan import overlapping
+from sensormodel.datasheet import load_datasheet
+from sensormodel.report import (
+    SAFETY_CAUTION,
+    VERDICT_SCHEMA_ID,
+    display_values,
+    format_duration,
+    verdict_document,
+    verdict_html,
+    verdict_text,
+    write_verdict_html,
+    write_verdict_json,
+)
+
+HOSTILE = '<script>alert("x")</script> & "BW" <b>'
+
+_SHEET = f"""
+[sensor]
+name = '{HOSTILE}'
+model = "<img src=x onerror=alert(1)>"
+manufacturer = "Brackwater & Sons <fictional>"
+sample_rate = "20 Hz"
+axes = ["x", "z"]
+[gyro]
+angle_random_walk = {{ typ = "0.01 deg/rt-hr", max = "0.02 deg/rt-hr" }}
+bias_instability = {{ max = "0.1 deg/h" }}
+bias_repeatability = "0.5 dph"
+"""
+
+PNG_MAGIC = b"\x89PNG\r\n\x1a\n"
+
+
+def _fit(white, flicker):
+    return SimpleNamespace(
+        terms=(
+            SimpleNamespace(
+                term="white",
+                parameter="density",
+                estimate=white[0],
+                low=white[1],
+                high=white[2],
+                supported=True,
+            ),
+            SimpleNamespace(
+                term="flicker",
+                parameter="coefficient",
+                estimate=flicker[0],
+                low=flicker[1],
+                high=flicker[2],
+                supported=True,
+            ),
+        )
+    )
+
+
+@pytest.fixture(scope="module")
+def report(tmp_path_factory):
+    """A report with one channel passing and one inconclusive, from a real Allan curve."""
+    path = tmp_path_factory.mktemp("sheet") / "sheet.toml"
+    path.write_text(_SHEET, encoding="utf-8")
+    ds = load_datasheet(path)
+    rng = np.random.default_rng(5)
+    rate = 20.0
+    n_lim = 0.02 * np.pi / 180 / 60
+    y = rng.normal(0.0, 0.5 * n_lim * np.sqrt(rate), 20 * 600)  # 10 min of white noise
+    curve = overlapping(y, rate, confidence=0.9, unit="rad/s", channel="gyro.x")
+    b_lim = 0.1 * np.pi / 180 / 3600 / acc.FLOOR_FACTOR
+    fits = {
+        "gyro.x": _fit((0.5 * n_lim, 0.48 * n_lim, 0.52 * n_lim), (0.1 * b_lim, 0.0, 0.5 * b_lim)),
+        "gyro.z": _fit(
+            (0.5 * n_lim, 0.48 * n_lim, 0.52 * n_lim), (0.9 * b_lim, 0.5 * b_lim, 1.6 * b_lim)
+        ),
+    }
+    channels = []
+    for ax in ds.channels():
+        cv = acc.verify_curve(curve, ax, duration=600.0, identification=fits[ax.channel_id])
+        channels.append(acc.replace(cv, psd=acc._welch(y, rate)))
+    return acc.VerdictReport(
+        channels=tuple(channels),
+        confidence=0.9,
+        against="max",
+        power=0.8,
+        datasheet={
+            "file": str(path),
+            "sha256": ds.sha256,
+            "sensor": {k: v for k, v in ds.sensor.items() if isinstance(v, str)},
+        },
+        recording={"file": "rec<1>.csv", "duration": 600.0, "sample_rate": rate, "samples": y.size},
+        notes=("a note with <tags> & ampersands",),
+    )
+
+
+def _validator():
+    schema = json.loads((SCHEMAS / "verdict-report.schema.json").read_text(encoding="utf-8"))
+    jsonschema.Draft202012Validator.check_schema(schema)
+    return jsonschema.Draft202012Validator(schema)
+
+
+# ---------------------------------------------------------------------------------------------
+# JSON
+# ---------------------------------------------------------------------------------------------
+
+
+def test_json_document_validates(report) -> None:
+    doc = json.loads(json.dumps(verdict_document(report)))
+    _validator().validate(doc)
+    assert doc["schema"] == VERDICT_SCHEMA_ID
+    assert doc["overall"] == "inconclusive" and doc["exit_code"] == 3
+    by_id = {c["id"]: c for c in doc["channels"]}
+    assert by_id["gyro.x"]["overall"] == "pass"
+    z = {t["term"]: t for t in by_id["gyro.z"]["terms"]}
+    assert z["bias_instability"]["verdict"] == "inconclusive"
+    assert z["bias_instability"]["required_duration"] > 600.0
+    assert z["angle_random_walk"]["required_duration"] is None
+    # the DESIGN §10 keys of every term
+    for t in z.values():
+        assert {"term", "limit", "estimate", "low", "high", "verdict", "required_duration"} <= set(
+            t
+        )
+    assert by_id["gyro.x"]["not_verified"][0]["term"] == "bias_repeatability"
+    assert doc["caution"] == SAFETY_CAUTION
+
+
+def test_json_schema_rejects_bad_documents(report) -> None:
+    validator = _validator()
+    doc = json.loads(json.dumps(verdict_document(report)))
+    for mutate in (
+        lambda d: d.update(overall="maybe"),
+        lambda d: d["channels"][0]["terms"][0].update(verdict="ok"),
+        lambda d: d["channels"][0]["terms"][0].pop("required_duration"),
+        lambda d: d.update(schema="sensormodel/verdict-report/2"),
+        lambda d: d.update(extra=1),
+    ):
+        bad = copy.deepcopy(doc)
+        mutate(bad)
+        assert not validator.is_valid(bad)
+
+
+def test_write_json_and_no_overwrite(report, tmp_path) -> None:
+    from sensormodel._io import OutputExistsError
+
+    out = tmp_path / "v.json"
+    write_verdict_json(report, out)
+    _validator().validate(json.loads(out.read_text(encoding="utf-8")))
+    with pytest.raises(OutputExistsError):
+        write_verdict_json(report, out)
+    write_verdict_json(report, out, force=True)
+
+
+def test_display_values_in_datasheet_units(report) -> None:
+    t = report.channels[0].terms[0]
+    label, (lim,) = display_values(t.spec, t.spec.limit)
+    assert label == "deg/rt-hr" and lim == pytest.approx(0.02, rel=1e-9)
+
+
+def test_format_duration() -> None:
+    assert format_duration(0.2) == "< 1 s"
+    assert format_duration(45.0) == "45 s"
+    assert format_duration(900.0) == "15 min"
+    assert format_duration(3 * 3600.0) == "3 h"
+    assert format_duration(10 * 86400.0) == "10 d"
+    assert format_duration(None) == "none decides it"
+
+
+def test_text_summary(report) -> None:
+    text = verdict_text(report)
+    assert "overall: inconclusive" in text
+    assert "needs a record of" in text
+    assert "not verifiable from a single run" in text
+    assert "90 % two-sided" in text
+
+
+# ---------------------------------------------------------------------------------------------
+# HTML
+# ---------------------------------------------------------------------------------------------
+
+
+class _Collector(HTMLParser):
+    def __init__(self) -> None:
+        super().__init__(convert_charrefs=True)
+        self.tags: list[tuple[str, dict[str, str | None]]] = []
+        self.text: list[str] = []
+        self.stack: list[str] = []
+        self.errors: list[str] = []
+
+    def handle_starttag(self, tag, attrs):
+        self.tags.append((tag, dict(attrs)))
+        if tag not in ("meta", "img", "br", "link"):
+            self.stack.append(tag)
+
+    def handle_endtag(self, tag):
+        if not self.stack or self.stack[-1] != tag:
+            self.errors.append(f"unbalanced </{tag}> (open: {self.stack[-3:]})")
+        else:
+            self.stack.pop()
+
+    def handle_data(self, data):
+        self.text.append(data)
+
+
+def _parse(page: str) -> _Collector:
+    p = _Collector()
+    p.feed(page)
+    p.close()
+    return p
+
+
+def test_html_parses_and_embeds_every_figure(report) -> None:
+    figs = {
+        ch.id: [("allan", b"\x89PNG\r\n\x1a\nA"), ("psd", b"\x89PNG\r\n\x1a\nB")]
+        for ch in report.channels
+    }
+    page = verdict_html(report, figs)
+    p = _parse(page)
+    assert not p.errors and not p.stack
+    imgs = [a for t, a in p.tags if t == "img"]
+    assert len(imgs) == 4
+    for a in imgs:
+        assert a["src"].startswith("data:image/png;base64,")
+        assert base64.b64decode(a["src"].split(",", 1)[1]).startswith(PNG_MAGIC)
+
+
+def test_html_escapes_user_text(report) -> None:
+    page = verdict_html(report, {})
+    p = _parse(page)
+    tags = {t for t, _ in p.tags}
+    # nothing executable and nothing fetched: no script, no link/iframe, no external URL
+    assert "script" not in tags and "iframe" not in tags and "link" not in tags
+    assert "<script" not in page.lower()
+    assert "onerror" not in "".join(str(a) for _, a in p.tags)
+    for _, attrs in p.tags:
+        for v in attrs.values():
+            assert not (v or "").startswith(("http:", "https:", "//"))
+    text = "".join(p.text)
+    # the hostile texts arrive as text, intact
+    assert HOSTILE in text
+    assert "<img src=x onerror=alert(1)>" in text
+    assert "a note with <tags> & ampersands" in text
+    assert html.escape(HOSTILE) in page
+    assert SAFETY_CAUTION in text
+    assert "Conventions" in text and "one-sided" in text
+
+
+def test_html5lib_if_installed(report) -> None:
+    html5lib = pytest.importorskip("html5lib")
+    parser = html5lib.HTMLParser(strict=True)
+    parser.parse(verdict_html(report, {}))
+
+
+def test_write_html_with_pngs(report, tmp_path: pathlib.Path) -> None:
+    out = tmp_path / "rep.html"
+    written = write_verdict_html(report, out)
+    assert written[0] == str(out)
+    pngs = [pathlib.Path(w) for w in written[1:]]
+    # one Allan and one PSD figure per channel
+    assert sorted(p.name for p in pngs) == sorted(
+        f"rep-{c}-{k}.png" for c in ("gyro.x", "gyro.z") for k in ("allan", "psd")
+    )
+    for png in pngs:
+        assert png.read_bytes().startswith(PNG_MAGIC)
+    page = out.read_text(encoding="utf-8")
+    p = _parse(page)
+    embedded = [base64.b64decode(a["src"].split(",", 1)[1]) for t, a in p.tags if t == "img"]
+    assert sorted(embedded) == sorted(png.read_bytes() for png in pngs)
+    from sensormodel._io import OutputExistsError
+
+    with pytest.raises(OutputExistsError):
+        write_verdict_html(report, out)
