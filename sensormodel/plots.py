@@ -15,6 +15,7 @@ from typing import Any
 import numpy as np
 
 __all__ = [
+    "allan_figure",
     "model_figure",
     "drift_figure",
     "save_figure",
@@ -273,3 +274,64 @@ def figure_png(fig: Any, *, dpi: int = 110) -> bytes:
     buf = io.BytesIO()
     fig.savefig(buf, format="png", dpi=dpi)
     return buf.getvalue()
+
+# -- Allan deviation of recordings ----------------------------------------------------------------
+
+
+def allan_figure(
+    curves: Sequence[Any],
+    path: str | os.PathLike[str],
+    *,
+    labels: Sequence[str] | None = None,
+    display: Display | None = None,
+    title: str | None = None,
+    force: bool = False,
+) -> None:
+    """Log-log overlapping Allan deviation of recorded channels with their confidence bands.
+
+    One panel per unit (gyros together, accelerometers together, …), one line per curve, the
+    chi-square interval of each curve shaded around it; written atomically.
+
+    Parameters
+    ----------
+    curves : sequence of AllanCurve
+        From :func:`sensormodel.allan.overlapping`; values in each curve's ``unit``.
+    path : path-like
+        The figure file (.png, .pdf or .svg, from the suffix).
+    labels : sequence of str, optional
+        Legend text per curve (default the channel id).
+    display : mapping, optional
+        {channel id: (unit label, factor)}: deviations are multiplied by factor (e.g. rad/s →
+        °/h). Default: the curve's own unit.
+    title : str, optional
+        Figure title (e.g. the recording's name).
+    force : bool
+        Overwrite an existing file.
+    """
+    items = list(curves)
+    if not items:
+        from .errors import AnalysisError
+
+        raise AnalysisError("got no curves", "at least one Allan curve", field="curves")
+    names = list(labels) if labels is not None else [c.channel for c in items]
+    shown = [(display or {}).get(c.channel, (c.unit, 1.0)) for c in items]
+    panels: dict[str, list[int]] = {}
+    for k, (label, _) in enumerate(shown):
+        panels.setdefault(label, []).append(k)
+    fig, axes = _figure(len(panels), 1, width=7.5, row_height=4.2)
+    for ax, (label, members) in zip(axes[:, 0], panels.items(), strict=True):
+        for k in members:
+            c, factor = items[k], shown[k][1]
+            line = ax.loglog(c.tau, c.adev * factor, "o-", ms=3, lw=1.2, label=names[k])[0]
+            ax.fill_between(c.tau, c.ci_low * factor, c.ci_high * factor,
+                            color=line.get_color(), alpha=0.2, lw=0)
+        conf = items[members[0]].confidence
+        ax.set_xlabel("averaging time τ [s]")
+        unit = f" [{label}]" if label and label != "1" else " [as recorded]"
+        ax.set_ylabel(f"Allan deviation σ(τ){unit}")
+        ax.set_title(f"overlapping Allan deviation, {100 * conf:.1f} % intervals shaded")
+        ax.grid(True, which="both", alpha=0.3)
+        ax.legend(fontsize="small")
+    if title:
+        fig.suptitle(title)
+    save_figure(fig, path, force=force)
