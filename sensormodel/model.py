@@ -330,6 +330,48 @@ class NoiseModel:
         """
         return {c.id: c.discretize(dt, quantization=quantization) for c in self.channels}
 
+    # --- simulation (simulate.py) ---------------------------------------------------------
+
+    def simulate(
+        self,
+        n: int,
+        rate: float | None = None,
+        seed: int | None = None,
+        *,
+        run: int = 0,
+        increments: bool = False,
+        flicker: str = "realization",
+        channels: list[str] | None = None,
+    ) -> Any:
+        """A simulated noise record, ``n`` samples per channel (:func:`sensormodel.simulate.simulate`).
+
+        Parameters
+        ----------
+        n : int
+            Samples per channel.
+        rate : float, optional
+            Sample rate [Hz] (default: the channels' common sample rate).
+        seed : int, optional
+            The same seed gives the same record.
+        run : int
+            Run index of a Monte Carlo ensemble (independent records for one seed).
+        increments : bool
+            Increments per sample period [unit·s] instead of rate samples [unit].
+        flicker : {"realization", "power-law"}
+            Flicker by its Gauss-Markov realization or by the Kasdin-Walter power law.
+        channels : list of str, optional
+            Channels to simulate (default all, in file order).
+
+        Returns
+        -------
+        ndarray, shape (n, n_channels)
+            SI values.
+        """
+        from .simulate import simulate
+
+        return simulate(self, n, rate, seed, run=run, increments=increments, flicker=flicker,
+                        channels=channels)
+
 
 def _term_schema(cls: type[Term]) -> dict[str, Any]:
     names = cls.parameter_names()

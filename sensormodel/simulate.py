@@ -96,6 +96,9 @@ __all__ = [
     "ensemble_statistics",
     "write_record",
     "run_path",
+    "new_seed",
+    "record_rate",
+    "samples_for",
     "kasdin_coefficients",
     "StepModel",
     "step_model",
@@ -141,7 +144,7 @@ def _check_rate(rate: Any, name: str = "rate") -> float:
 
 def _check_seed(seed: Any) -> int:
     if seed is None:
-        return int(np.random.SeedSequence().entropy)  # type: ignore[arg-type]
+        return new_seed()
     if isinstance(seed, bool) or not isinstance(seed, (int, np.integer)) or seed < 0:
         raise AnalysisError(f"seed = {seed!r}", "a non-negative whole number")
     return int(seed)
@@ -552,6 +555,32 @@ class _ChannelGenerator:
 # -- public API -------------------------------------------------------------------------------
 
 
+def new_seed() -> int:
+    """A fresh 32-bit seed from the operating system's entropy (print it to repeat the
+    record)."""
+    return int(np.random.SeedSequence().entropy) % 2**32  # type: ignore[arg-type]
+
+
+def record_rate(model: NoiseModel, rate: float | None = None) -> float:
+    """The rate a record of ``model`` is simulated at [Hz]: ``rate``, else the channels'
+    common sample rate (an error when they differ)."""
+    return _common_rate(model, rate)
+
+
+def samples_for(duration: float, rate: float) -> int:
+    """The number of samples of a record of ``duration`` [s] at ``rate`` [Hz] (rounded; at
+    least one)."""
+    rate = _check_rate(rate)
+    d = float(duration)
+    n = round(d * rate) if math.isfinite(d) else 0
+    if n < 1:
+        raise AnalysisError(
+            f"duration {duration!r} s at {rate:g} Hz is {n} samples",
+            f"at least one sample period ({1.0 / rate:g} s)",
+        )
+    return int(n)
+
+
 def _common_rate(model: NoiseModel, rate: float | None) -> float:
     if rate is not None:
         return _check_rate(rate)
@@ -705,6 +734,7 @@ def simulate(
     >>> y.shape
     (1000, 1)
     """
+    n = _check_count(n, "n")
     sim = Simulator(
         model,
         rate,
@@ -836,9 +866,7 @@ def ensemble_statistics(
     sel = model.select(list(channels) if channels else None)
     r = _common_rate(sel, rate)
     duration = float(duration)
-    n = int(round(duration * r))
-    if not (math.isfinite(duration) and n >= 1):
-        raise AnalysisError(f"duration = {duration!r} s", f"at least one sample period {1 / r} s")
+    n = samples_for(duration, r)
     if times is None:
         idx = np.unique(np.round(np.geomspace(1.0, n, 40)).astype(np.int64))
     else:
