@@ -365,6 +365,230 @@ def drift_command(model_file: str, horizon_text: str, channels: tuple[str, ...],
         save_figure(drift_figure(result, display=display), plot_file, force=force)
         click.echo(f"wrote {plot_file}")
 
+# --- allan (recording.py reads, allan.py computes, plots.py draws) ----------------------------
+
+
+class _StderrBar:
+    """A ``progress(done, total)`` callback: a click progress bar on stderr when stderr is a
+    terminal; nothing in pipes, files and tests."""
+
+    def __init__(self, label: str) -> None:
+        self.label = label
+        self.enabled = sys.stderr.isatty()
+        self._bar: Any = None
+        self._shown = 0
+
+    def __call__(self, done: int, total: int) -> None:
+        if not self.enabled:
+            return
+        if self._bar is None:
+            self._bar = click.progressbar(length=1000, label=self.label, file=sys.stderr)
+            self._bar.__enter__()
+        pos = 1000 if total <= 0 else min(1000, int(1000 * done / total))
+        if pos > self._shown:
+            self._bar.update(pos - self._shown)
+            self._shown = pos
+
+    def close(self) -> None:
+        if self._bar is not None:
+            self._bar.__exit__(None, None, None)
+            self._bar = None
+
+
+def _unit_option(values: tuple[str, ...]) -> str | dict[str, str] | None:
+    """``--unit U`` (every column without a unit) or ``--unit COLUMN=U`` (repeatable)."""
+    from .errors import RecordingError
+
+    bare = [v.strip() for v in values if "=" not in v]
+    pairs = [v.partition("=") for v in values if "=" in v]
+    if len(bare) > 1 or (bare and pairs):
+        raise RecordingError(
+            f"--unit {' --unit '.join(values)}",
+            "one unit for every column without one (--unit deg/s), or COLUMN=UNIT pairs "
+            "(--unit gyro_x=deg/s --unit time=ms)",
+        )
+    if bare:
+        return bare[0]
+    if pairs:
+        for column, _, unit in pairs:
+            if not column.strip() or not unit.strip():
+                raise RecordingError(f"--unit {column}={unit}", "COLUMN=UNIT, e.g. gyro_x=deg/s")
+        return {column.strip(): unit.strip() for column, _, unit in pairs}
+    return None
+
+
+def _channel_option(values: tuple[str, ...]) -> dict[str, str] | None:
+    """``--channel COLUMN=ID`` (repeatable) as a mapping, or None."""
+    from .errors import RecordingError
+
+    out = {}
+    for v in values:
+        column, sep, channel = v.partition("=")
+        if not sep or not column.strip() or not channel.strip():
+            raise RecordingError(
+                f"--channel {v}", "COLUMN=CHANNEL_ID, e.g. --channel rate_z=gyro.z"
+            )
+        out[column.strip()] = channel.strip()
+    return out or None
+
+
+def _taus_option(text: str | None) -> str | list[float] | None:
+    """``octave``, ``decade``, ``N/decade`` pass through; ``T1,T2,...`` become seconds."""
+    if text is None:
+        return None
+    spec = text.strip().lower()
+    if spec in ("octave", "decade") or spec.endswith("/decade"):
+        return spec
+    return [_seconds(part, "--taus") for part in text.split(",") if part.strip()]
+
+
+def _allan_table(curve: Any, heading: str, display: tuple[str, float]) -> str:
+    from .quantities import format_value
+
+    label, factor = display
+    unit = label if label and label != "1" else "as recorded"
+    lines = [heading, f"  {'τ [s]':>11} {'ADEV':>11} {'CI low':>11} {'CI high':>11} "
+                      f"{'clusters':>10}    (deviations in {unit})"]
+    clusters = curve.n_clusters if curve.n_clusters is not None else [None] * len(curve.tau)
+    for t, a, lo, hi, n in zip(curve.tau, curve.adev, curve.ci_low, curve.ci_high, clusters,
+                               strict=True):
+        lines.append(f"  {format_value(float(t)):>11} {format_value(float(a) * factor):>11} "
+                     f"{format_value(float(lo) * factor):>11} "
+                     f"{format_value(float(hi) * factor):>11} "
+                     f"{'' if n is None else int(n):>10}")
+    return "\n".join(lines)
+
+
+@cli.command("allan", context_settings=_CONTEXT)
+@click.argument("recording_file", metavar="REC", type=click.Path(dir_okay=False))
+@click.option("--rate", type=float, default=None, metavar="HZ",
+              help="Sample rate [Hz] when the file has no time column (must agree if it has).")
+@click.option("--unit", "units", multiple=True, metavar="U|COLUMN=U",
+              help="Unit of the columns that give none (--unit deg/s), or of one column "
+                   "(--unit gyro_x=mdps, repeatable; overrides the file).")
+@click.option("--increments/--rates", "increments", default=None,
+              help="Samples are angle/velocity increments per sample period (default: as the "
+                   "file states, else rates).")
+@click.option("--channel", "channel_map", multiple=True, metavar="COLUMN=ID",
+              help="Map a column to a channel id, e.g. --channel rate_z=gyro.z (repeatable).")
+@click.option("--columns", "columns", multiple=True, metavar="GLOB",
+              help="Analyse only these columns: names or globs, e.g. 'gyro*' (repeatable).")
+@click.option("--taus", default=None, metavar="SPEC",
+              help="Averaging times: octave (default), decade, N/decade, or T1,T2,... seconds.")
+@click.option("--confidence", type=float, default=0.683, show_default=True,
+              help="Two-sided confidence of the intervals.")
+@click.option("--gaps", type=click.Choice(["fail", "split"]), default="fail", show_default=True,
+              help="Refuse a record with gaps, NaN, time errors, stuck or saturated stretches, "
+                   "or analyse each clean segment separately.")
+@click.option("-o", "--output", "output", type=click.Path(dir_okay=False), default=None,
+              metavar="F.json|F.csv", help="Write the curves (JSON schema "
+              "sensormodel/allan-curve/1, or CSV with one row per τ), SI units.")
+@click.option("--plot", type=click.Path(dir_okay=False), default=None, metavar="F.png",
+              help="Write a log-log figure with the confidence bands (.png, .pdf, .svg).")
+@_force_option
+@guarded
+def allan_command(recording_file: str, rate: float | None, units: tuple[str, ...],
+                  increments: bool | None, channel_map: tuple[str, ...],
+                  columns: tuple[str, ...], taus: str | None, confidence: float, gaps: str,
+                  output: str | None, plot: str | None, force: bool) -> None:
+    """Overlapping Allan deviation of each channel of a recording, with confidence intervals
+    (chi-square, Greenhall-Riley degrees of freedom).
+
+    REC is a CSV/TSV (units in the header: 'gyro_x [deg/s]'), NPY, NPZ or HDF5 recording.
+    Deviations are in the channel's SI unit (rad/s, m/s^2) in the files and in °/h or µg in the
+    table; a column without a unit stays as recorded. With --gaps split, each clean segment is
+    analysed on its own and written as '<channel id>#<segment number>'.
+
+    \b
+    Example:
+      sensormodel allan static.csv -o static-allan.json --plot static-allan.png
+      sensormodel allan log.tsv --channel rate_z=gyro.z --unit rate_z=deg/s --rate 400 \\
+          --taus 10/decade --gaps split -o log-allan.csv
+    """
+    import pathlib
+
+    from ._io import atomic_writer, check_writable, write_json
+    from .allan import SCHEMA_FILE, curves_to_csv, curves_to_json, overlapping
+    from .errors import AnalysisError
+    from .quantities import DISPLAY_UNITS, convert_from_si, format_value
+    from .recording import read_recording
+
+    if not 0.0 < confidence < 1.0:
+        raise AnalysisError(
+            f"--confidence {confidence}", "a probability between 0 and 1, e.g. 0.683"
+        )
+    taus_spec = _taus_option(taus)
+    if output is not None:
+        if pathlib.Path(output).suffix.lower() not in (".json", ".csv"):
+            raise AnalysisError(f"-o {output}", "a file name ending in .json or .csv")
+        check_writable(output, force=force)
+    if plot is not None:
+        check_writable(plot, force=force)
+
+    bar = _StderrBar("reading")
+    try:
+        rec = read_recording(recording_file, rate=rate, unit=_unit_option(units),
+                             increments=increments, columns=list(columns) or None,
+                             channel_map=_channel_option(channel_map),
+                             gaps=gaps, progress=bar)
+    finally:
+        bar.close()
+    for f in rec.findings:
+        where = f"{rec.source}:{f.where}" if f.where else rec.source
+        click.echo(f"note: {where}: {f.detail}", err=True)
+
+    jobs = [(ch, k, seg) for ch in rec.channels for k, seg in enumerate(rec.segments[ch])]
+    curves, headings, display = [], [], {}
+    bar = _StderrBar("Allan deviation")
+    try:
+        for j, (ch, k, seg) in enumerate(jobs):
+            n_seg = len(rec.segments[ch])
+            cid = ch if n_seg == 1 else f"{ch}#{k + 1}"
+
+            def progress(done: int, total: int, j: int = j) -> None:
+                bar(j * total + done, len(jobs) * total)
+
+            curves.append(overlapping(rec.data[ch][seg.start:seg.stop], rec.rate,
+                                      taus=taus_spec, confidence=confidence,
+                                      unit=rec.units[ch], channel=cid, progress=progress))
+            quantity = rec.quantities[ch]
+            if quantity in ("angular_rate", "acceleration"):
+                unit, label = DISPLAY_UNITS[quantity]
+                display[cid] = (label, convert_from_si(1.0, quantity, unit))
+            else:
+                display[cid] = (rec.units[ch], 1.0)
+            span = (f", segment {k + 1} of {n_seg}: samples {seg.start}-{seg.stop - 1} from "
+                    f"t = {format_value(seg.start_time, 's')}" if n_seg > 1 else "")
+            headings.append(
+                f"{cid} [{rec.units[ch]}]{span}: {seg.n} samples at "
+                f"{format_value(rec.rate, 'Hz')} ({_format_time(seg.n / rec.rate)}), "
+                f"{100 * confidence:.1f} % intervals"
+            )
+    finally:
+        bar.close()
+
+    for n, (curve, heading) in enumerate(zip(curves, headings, strict=True)):
+        if n:
+            click.echo("")
+        click.echo(_allan_table(curve, heading, display[curve.channel]))
+    for ch in rec.channels:
+        if len(rec.segments[ch]) > 1:
+            click.echo(f"note: {ch}: {len(rec.segments[ch])} clean segments analysed separately "
+                       "(--gaps split)", err=True)
+    if output is not None:
+        if pathlib.Path(output).suffix.lower() == ".json":
+            write_json(output, curves_to_json(curves), force=force, schema=SCHEMA_FILE)
+        else:
+            with atomic_writer(output, force=force) as fh:
+                fh.write(curves_to_csv(curves))
+        click.echo(f"wrote {output}")
+    if plot is not None:
+        from .plots import allan_figure
+
+        allan_figure(curves, plot, display=display, title=pathlib.Path(rec.source).name,
+                     force=force)
+        click.echo(f"wrote {plot}")
+
 
 # --- simulate (simulate.py generates, recording.py writes) ------------------------------------
 
