@@ -28,13 +28,33 @@ __all__ = [
 Display = Mapping[str, tuple[str, float]]
 
 
-def _figure(rows: int, cols: int, *, width: float = 10.0, row_height: float = 3.0) -> Any:
+def _figure(
+    rows: int,
+    cols: int,
+    *,
+    width: float = 10.0,
+    row_height: float = 3.0,
+    fixed_margins: bool = False,
+) -> Any:
     import matplotlib
 
     matplotlib.use("Agg")
     from matplotlib.figure import Figure
 
-    fig = Figure(figsize=(width, max(row_height * rows, 3.0)), layout="constrained")
+    height = max(row_height * rows, 3.0)
+    if not fixed_margins:
+        fig = Figure(figsize=(width, height), layout="constrained")
+        return fig, fig.subplots(rows, cols, squeeze=False)
+    fig = Figure(figsize=(width, height))
+    # fixed margins in inches: a layout engine would draw a many-panel figure twice
+    fig.subplots_adjust(
+        left=0.9 / width,
+        right=1 - 0.25 / width,
+        bottom=0.55 / height,
+        top=1 - 0.35 / height,
+        wspace=0.3,
+        hspace=0.9 / (row_height - 0.9),
+    )
     axes = fig.subplots(rows, cols, squeeze=False)
     return fig, axes
 
@@ -71,7 +91,7 @@ def model_figure(
     from .terms import DEFAULT_LONGEST_TIME
 
     chans = [model.channel(c) for c in channels] if channels else list(model.channels)
-    fig, axes = _figure(len(chans), 2)
+    fig, axes = _figure(len(chans), 2, fixed_margins=True)
     for row, ch in enumerate(chans):
         label, factor = (display or {}).get(ch.id, (ch.unit, 1.0))
         t_max = longest_time or max(
@@ -108,11 +128,21 @@ def model_figure(
         ax_p.set_title(f"{ch.id}: PSD (one-sided)")
         ax_p.set_xlabel("frequency [Hz]")
         ax_p.set_ylabel(f"S(f) [({label})²/Hz]")
+        # show the sum and what matters near it: three decades below the sum's smallest value
+        if np.any(total > 0):
+            ax_a.set_ylim(bottom=np.min(total[total > 0]) * 1e-3)
+        if np.any(total_p > 0):
+            ax_p.set_ylim(bottom=np.min(total_p[total_p > 0]) * 1e-3)
         for ax in (ax_a, ax_p):
-            ax.grid(True, which="both", alpha=0.3)
-            if ax.lines:
-                ax.legend(fontsize="small")
+            _style(ax)
     return fig
+
+
+def _style(ax: Any) -> None:
+    ax.minorticks_off()  # log axes over many decades: minor ticks cost much and say little
+    ax.grid(True, which="major", alpha=0.3)
+    if ax.lines:
+        ax.legend(fontsize="small")
 
 
 def drift_figure(result: Any, *, display: Display | None = None) -> Any:
@@ -132,7 +162,7 @@ def drift_figure(result: Any, *, display: Display | None = None) -> Any:
         contribution dashed.
     """
     si = {"angle": ("rad", 1.0), "velocity": ("m/s", 1.0), "position": ("m", 1.0)}
-    fig, axes = _figure(len(result.channels), 2)
+    fig, axes = _figure(len(result.channels), 2, fixed_margins=True)
     for row, ch in enumerate(result.channels):
         kinds = list(ch.values)
         for col in range(2):
@@ -152,8 +182,9 @@ def drift_figure(result: Any, *, display: Display | None = None) -> Any:
             ax.set_title(f"{ch.id}: {kind} error")
             ax.set_xlabel("time since turn-on [s]")
             ax.set_ylabel(f"{kind} 1σ [{label}]")
-            ax.grid(True, which="both", alpha=0.3)
-            ax.legend(fontsize="small")
+            if np.any(y > 0):
+                ax.set_ylim(bottom=np.min(y[y > 0]) * 1e-3)
+            _style(ax)
     return fig
 
 
