@@ -52,8 +52,9 @@ noise of variance Q_d = B² through the truncated moving-average filter h_0 = 1,
 h_k = h_{k−1}(α/2 + k − 1)/k with α = 1, run as an FFT overlap-save convolution; its one-sided
 PSD is 2 B² dt |2 sin(π f dt)|⁻¹ ≈ B²/(π f) (REFERENCES §9) up to the Nyquist frequency of the
 simulation rate (the term's ``cutoff`` is not applied). The filter has
-L = min(⌈longest_time · rate⌉, ``max_taps``) taps, so the 1/f spectrum holds down to about
-rate/L; the filter's history is filled before the first sample (a stationary start).
+L = min(⌈longest_time · rate⌉, ``max_taps``) taps (default 2^20), so the 1/f spectrum holds
+down to about rate/L; the filter's history is filled before the first sample (a stationary
+start).
 
 Reproducibility
 ---------------
@@ -115,8 +116,9 @@ BLOCK = 1 << 16
 FIRST_BLOCK = 1 << 10
 _DOUBLINGS = 6  # FIRST_BLOCK << 6 == BLOCK
 
-#: Default largest number of taps of the Kasdin-Walter filter (2^21 ≈ 2.1 M).
-DEFAULT_MAX_TAPS = 1 << 21
+#: Default largest number of taps of the Kasdin-Walter filter (2^20 ≈ 1.05 M: about 17 min of
+#: 1/f memory at 1 kHz, 2.9 h at 100 Hz; some 50 MB of working memory per flicker channel).
+DEFAULT_MAX_TAPS = 1 << 20
 
 # Stream slots of one channel: spawn key (run, channel key, slot, index of the term in the
 # channel; 0 for the channel-wide white and quantization streams).
@@ -378,6 +380,7 @@ class _StateSpace(_Source):
         self._L = L[:, keep]
         self._m = keep.size
         self._sm = sm
+        self._x = x0  # the state, carried by the step-by-step path
         self._diagonal = np.count_nonzero(sm.phi - np.diag(np.diag(sm.phi))) == 0
         if self._diagonal:
             phi = np.diag(sm.phi).copy()
@@ -393,8 +396,6 @@ class _StateSpace(_Source):
             if self._independent:
                 self._row = {int(k): j for j, k in enumerate(keep)}
                 self._bs = self._b * np.diag(L)[:, None]
-        else:
-            self._x = x0
 
     def _block(self, size: int) -> _FloatArray:
         from scipy.signal import lfilter
@@ -455,13 +456,11 @@ class _PowerLaw(_Source):
 
     def __init__(self, coefficient: float, taps: int, rng: np.random.Generator) -> None:
         super().__init__()
-        from scipy import fft
-
         self._rng, self._b, self._taps = rng, coefficient, taps
         nfft = max(1 << 15, 1 << int(math.ceil(math.log2(2 * taps))))
         self._nfft = nfft
         self._m = nfft - (taps - 1)  # new samples per block
-        self._H = fft.rfft(kasdin_coefficients(1.0, taps), nfft)
+        self._H = _kasdin_spectrum(taps, nfft)
         self._hist = rng.standard_normal(taps - 1)  # fill the filter's memory: stationary start
 
     def _next(self) -> _FloatArray:  # the overlap-save length fixes this source's blocks
@@ -477,6 +476,16 @@ class _PowerLaw(_Source):
         y = fft.irfft(fft.rfft(seg) * self._H, self._nfft)[self._taps - 1 :]
         y *= self._b  # driving variance Q_d = B² (REFERENCES §9)
         return y
+
+
+@lru_cache(maxsize=4)
+def _kasdin_spectrum(taps: int, nfft: int) -> npt.NDArray[np.complex128]:
+    """FFT of the Kasdin-Walter filter (α = 1), shared by the channels that use it."""
+    from scipy import fft
+
+    H = fft.rfft(kasdin_coefficients(1.0, taps), nfft)
+    H.flags.writeable = False
+    return H
 
 
 def _kasdin_taps(term: Any, rate: float, max_taps: int) -> int:
