@@ -538,7 +538,7 @@ def allan_command(recording_file: str, rate: float | None, units: tuple[str, ...
         click.echo(f"note: {where}: {f.detail}", err=True)
 
     jobs = [(ch, k, seg) for ch in rec.channels for k, seg in enumerate(rec.segments[ch])]
-    curves, headings, display = [], [], {}
+    curves, headings, display, pieces = [], [], {}, []
     bar = _StderrBar("Allan deviation")
     try:
         for j, (ch, k, seg) in enumerate(jobs):
@@ -551,6 +551,8 @@ def allan_command(recording_file: str, rate: float | None, units: tuple[str, ...
             curves.append(overlapping(rec.data[ch][seg.start:seg.stop], rec.rate,
                                       taus=taus_spec, confidence=confidence,
                                       unit=rec.units[ch], channel=cid, progress=progress))
+            pieces.append({"id": cid, "channel": ch, "column": rec.columns[ch],
+                           "start": seg.start, "stop": seg.stop, "start_time": seg.start_time})
             quantity = rec.quantities[ch]
             if quantity in ("angular_rate", "acceleration"):
                 unit, label = DISPLAY_UNITS[quantity]
@@ -577,7 +579,17 @@ def allan_command(recording_file: str, rate: float | None, units: tuple[str, ...
                        "(--gaps split)", err=True)
     if output is not None:
         if pathlib.Path(output).suffix.lower() == ".json":
-            write_json(output, curves_to_json(curves), force=force, schema=SCHEMA_FILE)
+            doc = curves_to_json(curves)
+            doc["provenance"] = {
+                "recording": rec.source,
+                "format": rec.format,
+                "increments": rec.increments,
+                "gaps": gaps,
+                "segments": pieces,
+                "findings": [{"kind": f.kind, "channel": f.channel, "where": f.where,
+                              "detail": f.detail} for f in rec.findings],
+            }
+            write_json(output, doc, force=force, schema=SCHEMA_FILE)
         else:
             with atomic_writer(output, force=force) as fh:
                 fh.write(curves_to_csv(curves))
