@@ -302,7 +302,10 @@ class Flicker(Term):
         e.g. Keshner, Proc. IEEE 70(3), 1982 — from memory):
 
         * band: from the cut-off f0 (:meth:`effective_cutoff`) down to 1/(2π·longest_time);
-          τ is matched over [τ_lo, longest_time] with τ_lo = 1/sample_rate (or 1/(2 f0));
+          τ is matched over [τ_lo, longest_time] with τ_lo = max(1/sample_rate, 1/(2 f0)).
+          Below 1/(2 f0) the exact form with its sharp cut-off falls as τ² (ADEV ∝ τ) while any
+          finite sum of first-order processes falls as τ; that region (where the flicker term is
+          already well below its floor) is not matched;
         * time constants T_k geometrically spaced, ``per_decade`` per decade, from
           T_min = 1/(π f0) to T_max = longest_time (default :data:`DEFAULT_LONGEST_TIME`);
         * variances σ_k²: the equal-variance rule σ_k² = B² ln(r)/π (r the ratio of adjacent
@@ -332,7 +335,7 @@ class Flicker(Term):
                 "the channel's sample_rate [Hz] or a flicker cutoff",
             )
         longest = float(self.longest_time or DEFAULT_LONGEST_TIME)
-        tau_lo = 1.0 / float(sample_rate) if sample_rate else 0.5 / f0
+        tau_lo = max(1.0 / float(sample_rate), 0.5 / f0) if sample_rate else 0.5 / f0
         if isinstance(per_decade, bool) or not isinstance(per_decade, int) or per_decade < 1:
             raise AnalysisError(f"per_decade = {per_decade!r}", "a positive whole number")
         if not longest > tau_lo:

@@ -272,6 +272,18 @@ def test_flicker_realization_options(longest, per_decade):
     assert real.time_constants.size == math.ceil(per_decade * decades) + 1
 
 
+@pytest.mark.parametrize("cutoff", [0.5, 20.0, 200.0])
+def test_flicker_realization_with_a_lower_cutoff(cutoff):
+    # A cut-off below Nyquist: the band starts at τ = 1/(2 f0) (below it the sharp cut-off's
+    # τ² fall cannot be followed by first-order processes); the target still holds there.
+    real = Flicker(1.0, cutoff=cutoff).realization(sample_rate=FS)
+    assert real.tau_band[0] == pytest.approx(max(1 / FS, 0.5 / cutoff))
+    assert real.worst_error <= 0.05
+    tau = np.geomspace(*real.tau_band, 1001)
+    exact = flicker_allan_variance(tau, 1.0, cutoff)
+    assert np.max(np.abs(np.sqrt(real.allan_variance(tau) / exact) - 1)) <= real.worst_error + 2e-3
+
+
 def test_flicker_realization_psd_in_band():
     # The realization's one-sided PSD follows B²/(πf) inside its band. The minimax fit is on the
     # Allan variance; with one process per decade the PSD ripples by about ±5 % (observed), so
