@@ -571,14 +571,37 @@ def new_seed() -> int:
 
 
 def record_rate(model: NoiseModel, rate: float | None = None) -> float:
-    """The rate a record of ``model`` is simulated at [Hz]: ``rate``, else the channels'
-    common sample rate (an error when they differ)."""
+    """The rate a record of ``model`` is simulated at [Hz].
+
+    Parameters
+    ----------
+    model : NoiseModel
+        The model.
+    rate : float, optional
+        An explicit rate [Hz]; without it the channels' common sample rate (an
+        :class:`~sensormodel.errors.AnalysisError` when they differ).
+
+    Returns
+    -------
+    float
+    """
     return _common_rate(model, rate)
 
 
 def samples_for(duration: float, rate: float) -> int:
-    """The number of samples of a record of ``duration`` [s] at ``rate`` [Hz] (rounded; at
-    least one)."""
+    """The number of samples of a record (duration × rate, rounded; at least one).
+
+    Parameters
+    ----------
+    duration : float
+        Record length [s].
+    rate : float
+        Sample rate [Hz].
+
+    Returns
+    -------
+    int
+    """
     rate = _check_rate(rate)
     d = float(duration)
     n = round(d * rate) if math.isfinite(d) else 0
@@ -724,8 +747,16 @@ def simulate(
         Sample rate [Hz] (default: the channels' common sample rate).
     seed : int, optional
         Seed; the same seed gives the same record (``None``: fresh entropy).
-    run, increments, flicker, channels, max_taps
-        As in :class:`Simulator`.
+    run : int
+        Run index of a Monte Carlo ensemble: runs of one seed are independent records.
+    increments : bool
+        Increments per sample period [u·s] instead of rate samples (period means) [u].
+    flicker : {"realization", "power-law"}
+        Flicker method (module notes).
+    channels : sequence of str, optional
+        Channel ids to simulate (default all, in model order).
+    max_taps : int
+        Largest Kasdin-Walter filter length (``flicker="power-law"``).
 
     Returns
     -------
@@ -771,7 +802,29 @@ def simulate_ensemble(
 ) -> _FloatArray:
     """``runs`` independent records (Monte Carlo), in memory.
 
-    Run r is the record of :func:`simulate` with ``run=r`` and the same seed.
+    Run r is the record of :func:`simulate` with ``run=r`` and the same seed. For long records
+    use :func:`ensemble_statistics` (streamed) or :func:`write_record` per run.
+
+    Parameters
+    ----------
+    model : NoiseModel
+        The noise model.
+    n : int
+        Samples per channel and run.
+    rate : float, optional
+        Sample rate [Hz] (default: the channels' common sample rate).
+    runs : int
+        Number of runs.
+    seed : int, optional
+        Seed of the ensemble.
+    increments : bool
+        Increments per sample period [u·s] instead of rate samples [u].
+    flicker : {"realization", "power-law"}
+        Flicker method (module notes).
+    channels : sequence of str, optional
+        Channel ids to simulate (default all).
+    max_taps : int
+        Largest Kasdin-Walter filter length.
 
     Returns
     -------
@@ -851,18 +904,24 @@ def ensemble_statistics(
     Parameters
     ----------
     model : NoiseModel
+        The noise model.
     duration : float
         Length of each run [s].
     rate : float, optional
-        [Hz]; default the channels' common sample rate.
+        Sample rate [Hz]; default the channels' common sample rate.
     runs : int
         Number of independent runs (≥ 2).
     seed : int, optional
+        Seed of the ensemble (run r is the record of :func:`simulate` with ``run=r``).
     times : array_like, optional
         Instants [s] in (0, duration], rounded to whole samples; default 40 instants spaced
         logarithmically from one sample period to ``duration``.
-    flicker, channels, max_taps
-        As in :class:`Simulator`.
+    flicker : {"realization", "power-law"}
+        Flicker method (module notes).
+    channels : sequence of str, optional
+        Channel ids (default all).
+    max_taps : int
+        Largest Kasdin-Walter filter length.
     progress : callable, optional
         Called with the number of samples generated after each chunk.
 
@@ -920,6 +979,19 @@ def run_path(path: str | os.PathLike[str], run: int, runs: int) -> pathlib.Path:
 
     One run: ``path`` itself. Several: ``name-run007.ext`` (zero-padded to the width of
     ``runs − 1``, at least three digits); a ``{run}`` in the name is replaced instead.
+
+    Parameters
+    ----------
+    path : path-like
+        The name given for the record(s).
+    run : int
+        Run index (0-based).
+    runs : int
+        Number of runs.
+
+    Returns
+    -------
+    pathlib.Path
     """
     p = pathlib.Path(path)
     if runs == 1 and "{run}" not in p.name:
@@ -959,8 +1031,24 @@ def write_record(
     ----------
     path : path-like
         Output file; its extension chooses the format (see :mod:`sensormodel.recording`).
-    model, n, rate, seed, run, increments, flicker, channels, max_taps
-        As in :func:`simulate`.
+    model : NoiseModel
+        The noise model.
+    n : int
+        Samples per channel.
+    rate : float, optional
+        Sample rate [Hz] (default: the channels' common sample rate).
+    seed : int, optional
+        Seed (``None``: fresh entropy; read it back from the returned simulator).
+    run : int
+        Run index of a Monte Carlo ensemble: runs of one seed are independent records.
+    increments : bool
+        Increments per sample period [u·s] instead of rate samples (period means) [u].
+    flicker : {"realization", "power-law"}
+        Flicker method (module notes).
+    channels : sequence of str, optional
+        Channel ids to simulate (default all, in model order).
+    max_taps : int
+        Largest Kasdin-Walter filter length (``flicker="power-law"``).
     force : bool
         Overwrite an existing file.
     chunk : int
