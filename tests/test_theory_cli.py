@@ -74,7 +74,8 @@ def test_export_every_example_in_all_forms(runner, model_file, tmp_path):
     model = NoiseModel.load(model_file)
     lib = model.discretize(0.01)
     assert [c["id"] for c in doc["channels"]] == model.channel_ids
-    npz = np.load(tmp_path / "disc.npz")
+    with np.load(tmp_path / "disc.npz") as npz_file:
+        npz = {k: npz_file[k] for k in npz_file.files}
     head, mats = _read_csv(tmp_path / "disc.csv")
     assert float(head["dt [s]"]) == 0.01 and head["r_convention"] == doc["r_convention"]
     for c in doc["channels"]:
