@@ -372,3 +372,24 @@ def test_bad_arguments_are_refused():
         Quantization(1.0).psd([1.0])
     with pytest.raises(AnalysisError, match="floor"):
         gauss_markov_from_floor(float("nan"), 1.0)
+
+
+def test_datasheet_floor_with_correlation_time_gives_matching_gauss_markov(write_datasheet):
+    # Datasheet → model (convert.py) → theory: bias instability 10 µg (an Allan-deviation
+    # floor, common practice) with a 300 s correlation time gives a Gauss-Markov term whose
+    # Allan-deviation peak is 10 µg (g_n = 9.80665 m/s², CGPM 1901) at τ ≈ 1.89·T.
+    from sensormodel import NoiseModel
+
+    sheet = write_datasheet(
+        '[sensor]\nsample_rate = "100 Hz"\n[accelerometer]\n'
+        'velocity_random_walk = "0.02 m/s/rt-h"\n'
+        'bias_instability = "10 ug"\ncorrelation_time = "300 s"\n'
+    )
+    model = NoiseModel.from_datasheet(sheet)
+    ch = model.channels[0]
+    gm = ch.term("gauss_markov")
+    assert gm is not None and gm.time_constant == 300.0
+    tau = np.geomspace(10.0, 1e4, 20001)
+    adev = gm.allan_deviation(tau)
+    assert adev.max() == pytest.approx(10e-6 * 9.80665, rel=1e-8)
+    assert tau[np.argmax(adev)] == pytest.approx(ref.GM_PEAK_TAU_OVER_T * 300.0, rel=1e-3)
