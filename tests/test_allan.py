@@ -1,0 +1,547 @@
+"""Tests of sensormodel.allan against published values and reference libraries.
+
+Sources (each check names its own):
+* NIST SP 1065 (W. J. Riley, "Handbook of Frequency Stability Analysis", 2008): the 1000-point
+  and 9-point test sets (section 12.4; "Table 31" per secondary citations), the chi-square
+  interval eq. (45), the simple EDF formulas of Table 5 — values in tests/reference/nist_sp1065.py.
+* allantools 2024.06 as a reference library: ``oadev`` (same estimator) and
+  ``ci.edf_greenhall`` (Greenhall & Riley 2003).
+* IEEE Std 952-1997 Annex C: white rate noise of density N has ADEV(τ) = N/√τ.
+* Exact results derived here in comments (white-noise AVAR of iid samples, binomial bounds).
+"""
+
+from __future__ import annotations
+
+import json
+import math
+import threading
+import tracemalloc
+
+import allantools
+import numpy as np
+import pytest
+from reference import nist_sp1065 as ref
+from scipy.signal import fftconvolve
+
+from sensormodel import allan
+from sensormodel._io import load_schema, read_json, write_json
+from sensormodel.errors import AnalysisError, ModelFileError
+
+
+def kasdin(n: int, alpha: float, rng: np.random.Generator) -> np.ndarray:
+    """Power-law noise S ∝ 1/f^alpha by the Kasdin & Walter (1992) impulse response
+    h_0 = 1, h_k = h_(k-1) (alpha/2 + k - 1)/k (reference notes §9), driven by unit white noise."""
+    k = np.arange(1, n)
+    h = np.concatenate([[1.0], np.cumprod((alpha / 2.0 + k - 1.0) / k)])
+    return fftconvolve(rng.standard_normal(n), h)[:n]
+
+
+def half_ulp(value: float, digits: int = 7) -> float:
+    """Half a unit in the last printed digit of a value given to ``digits`` significant figures."""
+    return 0.5 * 10.0 ** (math.floor(math.log10(abs(value))) - digits + 1)
+
+
+def oadev_reference(y: np.ndarray, rate: float, tau: np.ndarray) -> np.ndarray:
+    """allantools.oadev on rate ("freq") data at the given τ (a reference library)."""
+    t, dev, _, _ = allantools.oadev(y, rate=rate, data_type="freq", taus=np.asarray(tau))
+    np.testing.assert_allclose(t, tau, rtol=1e-15)
+    return dev
+
+
+# ---------------------------------------------------------------------------------------------
+# NIST SP 1065 test data
+# ---------------------------------------------------------------------------------------------
+
+
+def test_nist_1000_point_set_is_the_published_one():
+    # SP 1065 section 12.4 (Table 31 per secondary citations): the generator, mean, SD and the
+    # NON-overlapping ADEV (computed here from cluster means, independently of the engine)
+    y = ref.lcg_1000()
+    n1_to_3 = [ref.LCG_MULTIPLIER * ref.LCG_SEED % ref.LCG_MODULUS]
+    for _ in range(2):
+        n1_to_3.append(ref.LCG_MULTIPLIER * n1_to_3[-1] % ref.LCG_MODULUS)
+    assert tuple(n1_to_3) == ref.LCG_FIRST
+    assert abs(y.mean() - ref.SET_1000["mean"]) <= half_ulp(ref.SET_1000["mean"])
+    assert abs(y.std(ddof=1) - ref.SET_1000["sd"]) <= half_ulp(ref.SET_1000["sd"])
+    for tau, published in zip(ref.SET_1000["tau"], ref.SET_1000["adev"], strict=True):
+        m = int(tau)
+        means = y[: (y.size // m) * m].reshape(-1, m).mean(axis=1)
+        adev = math.sqrt(0.5 * np.mean(np.diff(means) ** 2))
+        assert abs(adev - published) <= half_ulp(published)
+
+
+def test_nist_1000_point_overlapping_adev():
+    # SP 1065 section 12.4 / Table 31 [secondary citations]: OADEV(1, 10, 100) to 7 digits
+    curve = allan.overlapping(ref.lcg_1000(), 1.0, taus=list(ref.SET_1000["tau"]))
+    np.testing.assert_array_equal(curve.tau, ref.SET_1000["tau"])
+    for ours, published in zip(curve.adev, ref.SET_1000["oadev"], strict=True):
+        assert abs(ours - published) <= half_ulp(published)
+    np.testing.assert_array_equal(curve.n_clusters, [999, 981, 801])  # N - 2m, N = 1001
+
+
+def test_nist_9_point_set():
+    # SP 1065 validation chapter, 9-point set: ADEV(1) = OADEV(1) = 91.22945 (one cluster size,
+    # overlap changes nothing at m = 1), OADEV(2) = 85.95287
+    y = np.array(ref.SMALL_SET)
+    assert abs(y.mean() - ref.SMALL_SET_VALUES["mean"]) <= half_ulp(788.8889)
+    assert abs(y.std(ddof=1) - ref.SMALL_SET_VALUES["sd"]) <= half_ulp(100.9770)
+    curve = allan.overlapping(y, 1.0, taus=[1.0, 2.0])
+    assert abs(curve.adev[0] - ref.SMALL_SET_VALUES["adev"][1.0]) <= half_ulp(91.22945)
+    assert abs(curve.adev[1] - ref.SMALL_SET_VALUES["oadev"][2.0]) <= half_ulp(85.95287)
+    # 10 phase points: fewer than 100, so the noise type falls back to white rate noise
+    np.testing.assert_array_equal(curve.noise_alpha, [0, 0])
+
+
+# ---------------------------------------------------------------------------------------------
+# Equality with the reference library (allantools.oadev)
+# ---------------------------------------------------------------------------------------------
+
+N_LIB = 1 << 17
+RATE_LIB = 200.0
+
+
+def _signals() -> dict[str, np.ndarray]:
+    rng = np.random.default_rng(20240601)
+    return {
+        "white": 3e-3 + rng.normal(0.0, 1e-3, N_LIB),  # with an offset: mean removal matters
+        "random_walk": np.cumsum(rng.normal(0.0, 1e-5, N_LIB)),
+        "flicker": kasdin(N_LIB, 1.0, rng) * 1e-4,
+        "white_angle": np.diff(rng.normal(0.0, 1e-3, N_LIB + 1)) * RATE_LIB,
+    }
+
+
+SIGNALS = _signals()
+# allantools' own "decade" grid (1, 2, 4, 10, 20, 40, …) given to both as explicit τ
+LIB_DECADE = np.array([k * 10.0**e for e in range(5) for k in (1, 2, 4)]) / RATE_LIB
+LIB_DECADE = LIB_DECADE[LIB_DECADE * RATE_LIB <= (N_LIB - 1) // 2]
+
+
+@pytest.mark.parametrize("kind", sorted(SIGNALS))
+@pytest.mark.parametrize(
+    "taus",
+    ["octave", "decade", "7/decade", "explicit", "library-decade"],
+)
+def test_equals_allantools_oadev(kind, taus):
+    y = SIGNALS[kind]
+    spec = {
+        "explicit": [0.005, 0.0123, 0.5, 3.3, 100.0, 250.0],
+        "library-decade": LIB_DECADE,
+    }.get(taus, taus)
+    curve = allan.overlapping(y, RATE_LIB, taus=spec, noise_type=0)
+    # relative 1e-10 (the phase is formed exactly as allantools forms it; only the order of
+    # the final summation differs)
+    np.testing.assert_allclose(curve.adev, oadev_reference(y, RATE_LIB, curve.tau), rtol=1e-10)
+
+
+def test_octave_grid_is_the_reference_library_octave_grid():
+    y = SIGNALS["white"][:100_000]
+    t_lib, dev_lib, _, _ = allantools.oadev(y, rate=RATE_LIB, data_type="freq", taus="octave")
+    curve = allan.overlapping(y, RATE_LIB)
+    np.testing.assert_allclose(curve.tau, t_lib, rtol=1e-15)
+    np.testing.assert_allclose(curve.adev, dev_lib, rtol=1e-10)
+
+
+def test_threads_memmap_float32_and_increments_agree(tmp_path):
+    y = SIGNALS["flicker"]
+    one = allan.overlapping(y, RATE_LIB, threads=1, noise_type=-1)
+    three = allan.overlapping(y, RATE_LIB, threads=3, noise_type=-1)
+    np.testing.assert_allclose(three.adev, one.adev, rtol=1e-13)
+
+    path = tmp_path / "y.f64"
+    y.tofile(path)
+    mm = np.memmap(path, dtype=np.float64, mode="r")
+    np.testing.assert_allclose(allan.overlapping(mm, RATE_LIB).adev, one.adev, rtol=1e-13)
+
+    y32 = y.astype(np.float32)
+    np.testing.assert_allclose(
+        allan.overlapping(y32, RATE_LIB, noise_type=-1).adev,
+        oadev_reference(y32.astype(np.float64), RATE_LIB, one.tau),
+        rtol=1e-10,
+    )
+
+    # increments dx = y/rate (e.g. angle increments) give the Allan deviation of the rate
+    inc = allan.overlapping_from_increments(y / RATE_LIB, RATE_LIB, noise_type=-1, unit="rad/s")
+    np.testing.assert_allclose(inc.adev, one.adev, rtol=1e-12)
+    assert inc.unit == "rad/s"
+
+
+def test_peak_memory_is_one_phase_array():
+    # the engine keeps one float64 phase array (n + 1 values) and a few 512 KiB blocks
+    y = SIGNALS["white"]
+    allan.overlapping(y[:1000], RATE_LIB)  # warm imports and caches outside the trace
+    tracemalloc.start()
+    try:
+        allan.overlapping(y, RATE_LIB, threads=2)
+        _, peak = tracemalloc.get_traced_memory()
+    finally:
+        tracemalloc.stop()
+    assert peak <= 1.25 * y.nbytes + 4 * 8 * (1 << 16) + (1 << 20)
+
+
+def test_progress_is_reported_from_the_calling_thread():
+    calls = []
+    caller = threading.get_ident()
+
+    def progress(done, total):
+        calls.append((done, total, threading.get_ident()))
+
+    allan.overlapping(SIGNALS["white"], RATE_LIB, threads=2, progress=progress)
+    assert calls, "no progress reported"
+    dones = [c[0] for c in calls]
+    assert dones == sorted(dones)
+    assert calls[-1][0] == calls[-1][1]
+    assert {c[2] for c in calls} == {caller}
+
+
+# ---------------------------------------------------------------------------------------------
+# τ grids
+# ---------------------------------------------------------------------------------------------
+
+
+def test_tau_grids():
+    n, rate = 100_000, 10.0
+    m_max = (n - 1) // 2  # at least two overlapping differences: n + 1 - 2m >= 2
+    octave = allan.tau_grid(n, rate, "octave") * rate
+    np.testing.assert_array_equal(octave, 2.0 ** np.arange(16))
+    assert 2 * octave[-1] > m_max
+    np.testing.assert_array_equal(allan.tau_grid(n, rate, None), allan.tau_grid(n, rate, "octave"))
+    np.testing.assert_array_equal(allan.tau_grid(n, rate, "decade") * rate, [1, 10, 100, 1e3, 1e4])
+    ten = np.rint(allan.tau_grid(n, rate, "10/decade") * rate)
+    assert ten[0] == 1 and np.all(np.diff(ten) > 0) and ten[-1] <= m_max
+    np.testing.assert_array_equal(ten[:12], [1, 2, 3, 4, 5, 6, 8, 10, 13, 16, 20, 25])
+    # explicit τ: rounded to whole samples, sorted, duplicates removed
+    np.testing.assert_array_equal(
+        allan.tau_grid(n, rate, [1.04, 0.1, 0.96, 0.12, 4e3]), [0.1, 1.0, 4e3]
+    )
+
+
+@pytest.mark.parametrize(
+    ("taus", "match"),
+    [
+        ([1.0, 1e6], r"τ = 1e\+06 s needs 10000000 samples per cluster.*τ ≤ 4999\.9 s"),
+        ([0.01], r"τ = 0\.01 s is shorter than half the sample period"),
+        ([-1.0], r"τ = -1\.0 s"),
+        ([], r"no τ values"),
+        ("weekly", r"'octave', 'decade', 'N/decade'"),
+        ("0/decade", r"'N/decade'"),
+    ],
+)
+def test_bad_taus_are_refused_by_name(taus, match):
+    with pytest.raises(AnalysisError, match=match) as info:
+        allan.overlapping(np.zeros(100_000), 10.0, taus=taus)
+    assert info.value.field == "taus"
+
+
+# ---------------------------------------------------------------------------------------------
+# Bad input
+# ---------------------------------------------------------------------------------------------
+
+
+@pytest.mark.parametrize(
+    ("kwargs", "field", "match"),
+    [
+        ({"y": []}, "y", "got no samples"),
+        ({"y": [1.0]}, "y", "got 1 sample;"),
+        ({"y": [1.0, 2.0]}, "y", "got 2 samples"),
+        ({"y": [1.0, 2.0, np.nan, 4.0]}, "y", r"sample 2 is nan"),
+        ({"y": [1.0, np.inf, 2.0, 4.0]}, "y", r"sample 1 is inf"),
+        ({"y": np.zeros((10, 2))}, "y", r"shape \(10, 2\)"),
+        ({"y": np.zeros(10, dtype=complex)}, "y", "complex"),
+        ({"y": ["a", "b", "c"]}, "y", "real numbers"),
+        ({"rate": 0.0}, "rate", "got 0.0 Hz"),
+        ({"rate": -5.0}, "rate", "got -5.0 Hz"),
+        ({"rate": float("nan")}, "rate", "nan"),
+        ({"rate": "fast"}, "rate", "'fast'"),
+        ({"confidence": 1.0}, "confidence", "strictly between 0 and 1"),
+        ({"noise_type": 3}, "noise_type", r"α in \{2, 1, 0, -1, -2\}"),
+        ({"noise_type": "pink"}, "noise_type", "'pink'"),
+        ({"threads": 0}, "threads", "threads ≥ 1"),
+    ],
+)
+def test_bad_input_is_refused_naming_the_argument(kwargs, field, match):
+    args = {"y": np.arange(100.0), "rate": 10.0, **kwargs}
+    y, rate = args.pop("y"), args.pop("rate")
+    with pytest.raises(AnalysisError, match=match) as info:
+        allan.overlapping(y, rate, **args)
+    assert info.value.field == field
+    assert field in str(info.value)
+
+
+def test_increments_name_their_argument():
+    with pytest.raises(AnalysisError, match=r"^dx: got 1 sample"):
+        allan.overlapping_from_increments([0.1], 10.0)
+
+
+# ---------------------------------------------------------------------------------------------
+# Equivalent degrees of freedom and confidence intervals
+# ---------------------------------------------------------------------------------------------
+
+ALPHAS = (2, 1, 0, -1, -2)  # order of the reference tables
+
+
+@pytest.mark.parametrize("m", sorted(ref.EDF_GREENHALL_LIBRARY_N1001))
+def test_edf_greenhall_reference_library_values(m):
+    # [L] allantools 2024.06 ci.edf_greenhall(alpha, 2, m, 1001, overlapping=True), two
+    # decimals (a reference library implementing Greenhall & Riley 2003, not a published table)
+    for alpha, value in zip(ALPHAS, ref.EDF_GREENHALL_LIBRARY_N1001[m], strict=True):
+        assert allan.edf_greenhall(alpha, m, 1001) == pytest.approx(value, abs=0.005 + 1e-9)
+
+
+@pytest.mark.parametrize("n_phase", [1001, 10_001, 100_001])
+@pytest.mark.parametrize("alpha", [1, 0, -1, -2])
+def test_edf_greenhall_equals_reference_library(alpha, n_phase):
+    # allantools.ci.edf_greenhall as a reference library over the octave grid (it does not
+    # implement white PM for r <= 2, which the exact form covers here; see the next test)
+    for m in 2 ** np.arange(int(math.log2((n_phase - 2) // 2)) + 1):
+        lib = allantools.ci.edf_greenhall(alpha, 2, int(m), n_phase, overlapping=True)
+        # flicker PM at large m: the library's plain second difference of t² ln|t| at step 1/m
+        # loses digits (relative error ~ 1e-16 m²); ours is rewritten with log1p/atanh
+        rtol = 1e-9 if alpha != 1 or m <= 64 else 1e-16 * float(m) ** 2 * 100
+        assert allan.edf_greenhall(alpha, int(m), n_phase) == pytest.approx(lib, rel=rtol)
+        lib_plain = allantools.ci.edf_greenhall(alpha, 2, int(m), n_phase, overlapping=False)
+        ours_plain = allan.edf_greenhall(alpha, int(m), n_phase, overlapping=False)
+        assert ours_plain == pytest.approx(lib_plain, rel=rtol)
+
+
+def test_white_pm_edf_is_exact():
+    # Derived: for white phase noise the M overlapping second differences have covariances
+    # 6, -4, 1 (x phase variance) at lags 0, m, 2m, so 1/edf = [36M + 32(M-m)+ + 2(M-2m)+]/(36M²).
+    # Greenhall & Riley's case 4 (1/M)(35/18 - 1/r) is the same for M >= 2m; check both, and a
+    # seeded simulation in the short case (M < 2m) the reference library leaves unimplemented.
+    n_phase, m = 1001, 100
+    M = n_phase - 2 * m
+    assert allan.edf_greenhall(2, m, n_phase) == pytest.approx(M / (35 / 18 - m / M), rel=1e-14)
+    n_phase, m = 101, 40  # M = 21 < 2m
+    M = n_phase - 2 * m
+    exact = 36 * M**2 / (36 * M + 32 * (M - m) * (M > m) + 2 * (M - 2 * m) * (M > 2 * m))
+    assert allan.edf_greenhall(2, m, n_phase) == pytest.approx(exact, rel=1e-14)
+    rng = np.random.default_rng(7)
+    x = rng.standard_normal((40_000, n_phase))
+    d = x[:, 2 * m :] - 2 * x[:, m:-m] + x[:, : -2 * m]
+    v = np.mean(d * d, axis=1)
+    # edf_hat = 2 mean²/var; with R = 40 000 records its relative standard error is about
+    # sqrt(2/R)·sqrt(1 + 12/edf) (fourth moment of a scaled chi-square) < 1.5 %; allow 5 %.
+    assert 2 * v.mean() ** 2 / v.var() == pytest.approx(exact, rel=0.05)
+
+
+@pytest.mark.parametrize("m", sorted(ref.EDF_SIMPLE_N1001))
+def test_edf_simple_formulas(m):
+    # SP 1065 section 5.4.1, Table 5, at N = 1001 (values to 3 decimals in the reference notes);
+    # the flicker-FM m = 1 value keeps the square (the reference library's version drops it)
+    for alpha, value in zip(ALPHAS, ref.EDF_SIMPLE_N1001[m], strict=True):
+        assert allan.edf_simple(alpha, m, 1001) == pytest.approx(value, abs=0.0005 + 1e-9)
+
+
+def test_edf_exact_for_white_and_random_walk_rate_noise():
+    # The EDF the engine uses for alpha = 0, -2 at m <= 33 is the exact one of the sampled model.
+    # Checks: (1) it is close to SP 1065 Table 5 (an approximation fitted to the same model)
+    # where the Greenhall-Riley F = m branch is not; (2) at the hand-over to Greenhall-Riley
+    # (F = infinity) from m = 34 on, edf·m (nearly constant for m << N) has no step, while the
+    # F = m branch itself steps by ~3 %; (3) a seeded simulation at m = 1, 2.
+    assert allan.edf(0, 1, 1001) == pytest.approx(ref.EDF_SIMPLE_N1001[1][2], rel=2e-3)
+    assert allan.edf(0, 10, 1001) == pytest.approx(ref.EDF_SIMPLE_N1001[10][2], rel=2e-3)
+    assert allan.edf(-2, 1, 1001) == pytest.approx(ref.EDF_SIMPLE_N1001[1][4], rel=2e-3)
+    assert allan.edf_greenhall(0, 1, 1001) > 1.15 * allan.edf(0, 1, 1001)
+    for alpha in (0, -2):
+        assert allan.edf(alpha, 34, 1001) == allan.edf_greenhall(alpha, 34, 1001)
+        step = 33 * allan.edf(alpha, 33, 1001) / (34 * allan.edf(alpha, 34, 1001))
+        assert step == pytest.approx(1.0, abs=0.005)
+    gr_step = 33 * allan.edf_greenhall(0, 33, 1001) / (34 * allan.edf_greenhall(0, 34, 1001))
+    assert abs(gr_step - 1.0) > 0.02
+    rng = np.random.default_rng(8)
+    y = rng.standard_normal((20_000, 1000))
+    x = np.concatenate([np.zeros((20_000, 1)), np.cumsum(y, axis=1)], axis=1)
+    for m in (1, 2):
+        d = x[:, 2 * m :] - 2 * x[:, m:-m] + x[:, : -2 * m]
+        v = np.mean(d * d, axis=1)
+        # relative standard error of 2 mean²/var with R = 20 000: ~ sqrt(2/R) = 1 %; allow 4 %
+        assert 2 * v.mean() ** 2 / v.var() == pytest.approx(allan.edf(0, m, 1001), rel=0.04)
+
+
+def test_chi2_interval_check_value():
+    # SP 1065 eq. (45), check value from the reference notes: c = 0.682689, edf = 146.1788
+    low, high = allan.chi2_interval(1.0, ref.CHI2_CHECK["edf"], ref.CHI2_CHECK["confidence"])
+    assert float(low) == pytest.approx(ref.CHI2_CHECK["low"], abs=5e-8)
+    assert float(high) == pytest.approx(ref.CHI2_CHECK["high"], abs=5e-8)
+
+
+def test_coverage_of_the_interval_for_white_noise():
+    # For iid samples of variance s², AVAR(m) = s²/m exactly (the difference of two means of m
+    # samples has variance 2s²/m). 400 seeded records of 2048 samples; at m = 1, 8, 64 count how
+    # often the 68.3 % interval contains the true deviation. The count is binomial(400, 0.683)
+    # if the EDF is right: standard deviation sqrt(0.683·0.317/400) = 0.0233; we accept
+    # |fraction - 0.683| <= 3 x 0.0233 = 0.070 at each τ (false alarm 0.27 % per τ if exact).
+    rng = np.random.default_rng(20240602)
+    ms = np.array([1, 8, 64])
+    hits = np.zeros(ms.size)
+    records = 400
+    for _ in range(records):
+        y = rng.standard_normal(2048)
+        c = allan.overlapping(y, 1.0, taus=ms.astype(float))  # noise type identified each time
+        true = 1.0 / np.sqrt(ms)
+        hits += (c.ci_low <= true) & (true <= c.ci_high)
+    fraction = hits / records
+    assert np.all(np.abs(fraction - 0.683) <= 0.070), fraction
+
+
+def test_white_noise_follows_ieee952():
+    # IEEE Std 952-1997 Annex C: white rate noise of density N has ADEV(τ) = N/√τ. Sampling at
+    # fs gives per-sample std N·√fs (reference notes §0). Interval at c = 0.9999 per τ so that
+    # the ~17 τ together fail with probability < 0.2 % (Bonferroni).
+    density, fs = 4.4e-5, 100.0  # rad/s/√Hz (about 0.15 °/√h)
+    y = np.random.default_rng(20240603).normal(0.0, density * math.sqrt(fs), 1 << 20)
+    c = allan.overlapping(y, fs, confidence=0.9999, unit="rad/s", channel="gyro.x")
+    true = density / np.sqrt(c.tau)
+    assert np.all((c.ci_low <= true) & (true <= c.ci_high))
+    assert np.all(c.noise_alpha[c.tau <= 100.0] == 0)
+
+
+# ---------------------------------------------------------------------------------------------
+# Noise identification (Riley & Greenhall 2004)
+# ---------------------------------------------------------------------------------------------
+
+
+@pytest.mark.parametrize(
+    ("kind", "alpha"),
+    [("white_angle", 2), ("white", 0), ("flicker", -1), ("random_walk", -2)],
+)
+def test_noise_identification(kind, alpha):
+    # The lag-1 method recovers the power law of simulated noise (Kasdin & Walter 1992 for
+    # flicker). Seeded; flicker is the hardest case (its unrounded estimate sits near -1.4).
+    y = SIGNALS[kind]
+    for m in (1, 4, 16, 64, 256):
+        assert allan.noise_alpha(y, m)[0] == alpha, m
+    assert np.all(allan.overlapping(y, RATE_LIB, taus=[0.005, 0.08, 1.28]).noise_alpha == alpha)
+
+
+def test_noise_identification_falls_back_where_points_run_out():
+    # 600 samples: m = 8 leaves 76 decimated points (< 100), so m = 8, 32 keep the α of m = 4
+    y = SIGNALS["random_walk"][:600]
+    c = allan.overlapping(y, 1.0, taus=[1.0, 4.0, 8.0, 32.0])
+    assert c.noise_alpha[1] == -2
+    np.testing.assert_array_equal(c.noise_alpha[2:], [c.noise_alpha[1]] * 2)
+    with pytest.raises(AnalysisError, match="at least 100 points"):
+        allan.noise_alpha(y, 8)
+
+
+def test_fixed_noise_types():
+    y = SIGNALS["white"][:10_000]
+    c = allan.overlapping(y, 1.0, taus=[1.0, 10.0], noise_type=[-1, -2])
+    np.testing.assert_array_equal(c.noise_alpha, [-1, -2])
+    assert c.edf[0] == allan.edf(-1, 1, 10_001) and c.edf[1] == allan.edf(-2, 10, 10_001)
+
+
+# ---------------------------------------------------------------------------------------------
+# Files
+# ---------------------------------------------------------------------------------------------
+
+
+def _curves():
+    a = allan.overlapping(SIGNALS["white"][:50_000], 200.0, unit="rad/s", channel="gyro.x")
+    b = allan.overlapping(
+        SIGNALS["random_walk"][:50_000],
+        200.0,
+        unit="m/s^2",
+        channel="accelerometer.z",
+        taus="decade",
+        confidence=0.95,
+    )
+    return [a, b]
+
+
+def test_json_round_trip_through_the_schema(tmp_path):
+    curves = _curves()
+    doc = allan.curves_to_json(curves)
+    assert doc["schema"] == "sensormodel/allan-curve/1"
+    # DESIGN §5 keys of every channel entry
+    for entry in doc["channels"]:
+        assert {
+            "id",
+            "unit",
+            "sample_rate",
+            "tau",
+            "adev",
+            "ci_low",
+            "ci_high",
+            "edf",
+            "confidence",
+        } <= set(entry)
+    path = tmp_path / "curve.json"
+    write_json(path, doc, schema=allan.SCHEMA_FILE)
+    back = allan.curves_from_json(read_json(path, schema=allan.SCHEMA_FILE), source=str(path))
+    for a, b in zip(curves, back, strict=True):
+        assert (a.channel, a.unit, a.sample_rate, a.confidence, a.n_samples) == (
+            b.channel,
+            b.unit,
+            b.sample_rate,
+            b.confidence,
+            b.n_samples,
+        )
+        for name in ("tau", "adev", "ci_low", "ci_high", "edf", "n_clusters", "noise_alpha"):
+            np.testing.assert_array_equal(getattr(a, name), getattr(b, name))
+
+
+def test_schema_is_valid_draft_2020_12():
+    import jsonschema
+
+    schema = load_schema(allan.SCHEMA_FILE)
+    jsonschema.validators.validator_for(schema).check_schema(schema)
+    assert schema["$schema"] == "https://json-schema.org/draft/2020-12/schema"
+    assert schema["properties"]["schema"]["const"] == allan.SCHEMA_ID
+
+
+def test_json_refusals(tmp_path):
+    doc = allan.curves_to_json(_curves())
+    with pytest.raises(ModelFileError, match=r"schema: unknown schema 'sensormodel/allan-curve/2'"):
+        allan.curves_from_json({**doc, "schema": "sensormodel/allan-curve/2"}, source="c.json")
+    broken = json.loads(json.dumps(doc))
+    broken["channels"][0]["adev"] = broken["channels"][0]["adev"][:-1]
+    with pytest.raises(ModelFileError, match=r"c\.json:gyro\.x\.adev: has \d+ values for \d+ τ"):
+        allan.curves_from_json(broken, source="c.json")
+    broken = json.loads(json.dumps(doc))
+    broken["channels"][1]["edf"][0] = -1.0
+    with pytest.raises(ModelFileError, match=r"channels\[1\]\.edf\[0\]"):
+        allan.curves_from_json(broken, source="c.json")
+    with pytest.raises(AnalysisError, match="appears more than once"):
+        allan.curves_to_json([doc_curve := _curves()[0], doc_curve])
+
+
+def test_csv_round_trip():
+    curves = _curves()
+    text = allan.curves_to_csv(curves)
+    lines = text.splitlines()
+    assert lines[0] == ",".join(allan.CSV_HEADER)
+    assert len(lines) == 1 + sum(c.tau.size for c in curves)  # one row per τ
+    back = allan.curves_from_csv(text)
+    for a, b in zip(curves, back, strict=True):
+        assert (a.channel, a.unit, a.confidence) == (b.channel, b.unit, b.confidence)
+        for name in ("tau", "adev", "ci_low", "ci_high", "edf", "n_clusters", "noise_alpha"):
+            np.testing.assert_array_equal(getattr(a, name), getattr(b, name))
+    with pytest.raises(ModelFileError, match="line 1"):
+        allan.curves_from_csv("tau,adev\n1,2\n")
+
+
+def test_curve_validates_itself():
+    c = _curves()[0]
+    with pytest.raises(AnalysisError, match="one value per τ") as info:
+        allan.AllanCurve(
+            tau=c.tau,
+            adev=c.adev[:-1],
+            ci_low=c.ci_low,
+            ci_high=c.ci_high,
+            edf=c.edf,
+            sample_rate=c.sample_rate,
+        )
+    assert info.value.field == "adev"
+    with pytest.raises(AnalysisError, match="ci_low ≤ adev ≤ ci_high"):
+        allan.AllanCurve(
+            tau=c.tau,
+            adev=c.adev,
+            ci_low=c.ci_high,
+            ci_high=c.ci_high,
+            edf=c.edf,
+            sample_rate=c.sample_rate,
+        )
+    assert not c.tau.flags.writeable
+    np.testing.assert_array_equal(c.n_clusters, c.n_samples + 1 - 2 * c.m)
+    np.testing.assert_array_equal(c.n_independent, c.n_samples // c.m)
