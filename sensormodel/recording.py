@@ -172,6 +172,7 @@ RATE_RTOL = 1e-6
 _SCHEMA = "sensormodel/recording/1"
 _CACHE_VERSION = "1"
 _PIECE_BYTES = 64 * 2**20
+_MAX_FINDINGS = 1000
 _FATAL = ("non_finite", "non_monotonic", "duplicate_time", "gap", "saturated", "constant")
 _KIND_ORDER = {k: i for i, k in enumerate(_FATAL)}
 _SPLIT_HINT = "or --gaps split to analyse the clean segments"
@@ -223,6 +224,9 @@ class Finding:
         Number of consecutive samples concerned.
     where : str
         The place in the file: ``"line 17"``, ``"lines 17-19"`` (text) or ``"index 15"``.
+    count : int
+        Number of stretches the finding stands for: 1, or, for the last finding of a kind and
+        channel after ``_MAX_FINDINGS`` (1000) of them, all the remaining stretches.
     """
 
     kind: str
@@ -231,6 +235,7 @@ class Finding:
     detail: str
     length: int = 1
     where: str = ""
+    count: int = 1
 
     @property
     def fatal(self) -> bool:
@@ -1297,24 +1302,62 @@ def _column_units(
 # ---------------------------------------------------------------------------------------------
 
 
+def _emit(
+    findings: list[Finding],
+    kind: str,
+    channel: str,
+    runs: tuple[np.ndarray, np.ndarray],
+    text: Callable[[int, int], str],
+    where: Callable[[int, int], str],
+    *,
+    offset: int = 0,
+) -> None:
+    """One Finding per run (start + offset, length); past ``_MAX_FINDINGS`` runs, one more
+    Finding stands for all the rest (its ``count``)."""
+    starts, lengths = runs
+    for s0, ln0 in zip(starts[:_MAX_FINDINGS], lengths[:_MAX_FINDINGS], strict=True):
+        s, ln = int(s0) + offset, int(ln0)
+        findings.append(Finding(kind, channel, s, text(s, ln), ln, where(s, ln)))
+    rest = len(starts) - _MAX_FINDINGS
+    if rest > 0:
+        s, ln = int(starts[_MAX_FINDINGS]) + offset, int(lengths[_MAX_FINDINGS])
+        findings.append(
+            Finding(
+                kind,
+                channel,
+                s,
+                f"{text(s, ln)}, and {rest - 1} more such stretches after it",
+                ln,
+                where(s, ln),
+                count=rest,
+            )
+        )
+
+
+def _mask(n: int, starts: np.ndarray, lengths: np.ndarray) -> np.ndarray:
+    """Boolean mask of n samples, True inside the runs."""
+    d = np.zeros(n + 1, dtype=np.int64)
+    np.add.at(d, starts, 1)
+    np.add.at(d, starts + lengths, -1)
+    return np.cumsum(d[:-1]) > 0
+
+
 def _time_base(
     t: np.ndarray, where: Callable[[int, int], str]
 ) -> tuple[list[Finding], float | None, np.ndarray]:
-    """Findings of the time column, the rate from its regular steps, and the break mask."""
+    """Findings of the time column, the rate from its regular steps, and the break mask
+    (True where a sample does not follow its predecessor by a regular step)."""
     n = len(t)
     findings: list[Finding] = []
     fin = np.isfinite(t)
-    for s, ln in zip(*_runs(~fin), strict=True):
-        findings.append(
-            Finding(
-                "non_finite",
-                "time",
-                int(s),
-                "the time column holds NaN, an empty field or an infinite value",
-                int(ln),
-                where(int(s), int(ln)),
-            )
-        )
+    _emit(
+        findings,
+        "non_finite",
+        "time",
+        _runs(~fin),
+        lambda s, ln: "the time column holds NaN, an empty field or an infinite value",
+        where,
+    )
     brk = np.zeros(n, dtype=bool)
     dt = np.diff(t)
     okdt = np.isfinite(dt)
@@ -1325,29 +1368,28 @@ def _time_base(
     back = okdt & (dt < 0)
     dup = okdt & (dt == 0)
     gap = okdt & (dt > GAP_FACTOR * med)
-    for s, ln in zip(*_runs(back), strict=True):
-        i = int(s) + 1
+
+    def backwards(i: int, ln: int) -> str:
         text = f"time goes backwards, from {_fmt(t[i - 1])} s to {_fmt(t[i])} s"
-        if ln > 1:
-            text += f" (in {ln} consecutive steps)"
-        findings.append(Finding("non_monotonic", "time", i, text, int(ln), where(i, int(ln))))
-    for s, ln in zip(*_runs(dup), strict=True):
-        i = int(s) + 1
+        return text + (f" (in {ln} consecutive steps)" if ln > 1 else "")
+
+    def repeated(i: int, ln: int) -> str:
         text = f"time {_fmt(t[i])} s repeats the previous sample's"
+        return text + (f" ({ln + 1} samples share it)" if ln > 1 else "")
+
+    def gapped(i: int, ln: int) -> str:
         if ln > 1:
-            text += f" ({ln + 1} samples share it)"
-        findings.append(Finding("duplicate_time", "time", i, text, int(ln), where(i, int(ln))))
-    for s, ln in zip(*_runs(gap), strict=True):
-        i = int(s) + 1
-        step = float(dt[s])
+            return f"{ln} time steps longer than {GAP_FACTOR} × the median {_fmt(med)} s"
+        step = float(dt[i - 1])
         missing = max(1, round(step / med) - 1)
-        text = (
+        return (
             f"time step of {_fmt(step)} s where the median step is {_fmt(med)} s "
             f"(about {missing} samples missing)"
         )
-        if ln > 1:
-            text = f"{ln} time steps longer than {GAP_FACTOR} × the median {_fmt(med)} s"
-        findings.append(Finding("gap", "time", i, text, int(ln), where(i, int(ln))))
+
+    _emit(findings, "non_monotonic", "time", _runs(back), backwards, where, offset=1)
+    _emit(findings, "duplicate_time", "time", _runs(dup), repeated, where, offset=1)
+    _emit(findings, "gap", "time", _runs(gap), gapped, where, offset=1)
     bad_step = back | dup | gap
     brk[1:] = bad_step
     good = pos & ~gap
@@ -1366,58 +1408,60 @@ def _data_findings(
     *,
     constant_run: int,
     saturation_run: int,
-) -> list[Finding]:
+) -> tuple[list[Finding], np.ndarray]:
+    """Findings of one data column and the mask of its flagged samples."""
     findings: list[Finding] = []
     fin = np.isfinite(x)
+    bad = ~fin
     if not fin.all():
         inf = np.isinf(x)
-        for s, ln in zip(*_runs(~fin), strict=True):
-            s, ln = int(s), int(ln)
+
+        def missing(s: int, ln: int) -> str:
             what = "an infinite value" if inf[s : s + ln].all() else "NaN or an empty field"
-            if ln > 1:
-                what += f" in {ln} consecutive samples"
-            findings.append(
-                Finding("non_finite", channel, s, f"column '{name}' holds {what}", ln, where(s, ln))
+            return f"column '{name}' holds {what}" + (
+                f" in {ln} consecutive samples" if ln > 1 else ""
             )
+
+        _emit(findings, "non_finite", channel, _runs(~fin), missing, where)
     if not fin.any() or len(x) < 2:
-        return findings
-    saturated: set[int] = set()
+        return findings, bad
     hi = float(np.max(x, where=fin, initial=-np.inf))
     lo = float(np.min(x, where=fin, initial=np.inf))
+    saturated_starts: list[np.ndarray] = []
     if saturation_run > 0 and hi > lo:
         for value, label in ((hi, "maximum"), (lo, "minimum")):
-            for s, ln in zip(*_runs(x == value), strict=True):
-                s, ln = int(s), int(ln)
-                if ln >= saturation_run:
-                    saturated.add(s)
-                    findings.append(
-                        Finding(
-                            "saturated",
-                            channel,
-                            s,
-                            f"column '{name}' stays at its {label} {_fmt(value)} for {ln} "
-                            "consecutive samples (saturation)",
-                            ln,
-                            where(s, ln),
-                        )
+            starts, lengths = _runs(x == value)
+            keep = lengths >= saturation_run
+            starts, lengths = starts[keep], lengths[keep]
+            if len(starts):
+                saturated_starts.append(starts)
+                bad = bad | _mask(len(x), starts, lengths)
+
+                def at_limit(s: int, ln: int, label: str = label, value: float = value) -> str:
+                    return (
+                        f"column '{name}' stays at its {label} {_fmt(value)} for {ln} "
+                        "consecutive samples (saturation)"
                     )
+
+                _emit(findings, "saturated", channel, (starts, lengths), at_limit, where)
     if constant_run > 1:
-        same = x[1:] == x[:-1]
-        for s, ln in zip(*_runs(same), strict=True):
-            s, ln = int(s), int(ln) + 1
-            if ln >= constant_run and s not in saturated:
-                findings.append(
-                    Finding(
-                        "constant",
-                        channel,
-                        s,
-                        f"column '{name}' holds the same value {_fmt(float(x[s]))} for {ln} "
-                        "consecutive samples (a stuck sensor?)",
-                        ln,
-                        where(s, ln),
-                    )
+        starts, lengths = _runs(x[1:] == x[:-1])
+        lengths = lengths + 1
+        keep = lengths >= constant_run
+        if saturated_starts:
+            keep &= ~np.isin(starts, np.concatenate(saturated_starts))
+        starts, lengths = starts[keep], lengths[keep]
+        if len(starts):
+            bad = bad | _mask(len(x), starts, lengths)
+
+            def stuck(s: int, ln: int) -> str:
+                return (
+                    f"column '{name}' holds the same value {_fmt(float(x[s]))} for {ln} "
+                    "consecutive samples (a stuck sensor?)"
                 )
-    return findings
+
+            _emit(findings, "constant", channel, (starts, lengths), stuck, where)
+    return findings, bad
 
 
 def _segments(
@@ -1500,7 +1544,8 @@ def read_recording(
         This many consecutive samples at a column's maximum or minimum are ``saturated``
         (0: no check).
     min_segment : int
-        With ``gaps="split"``, shorter clean stretches are dropped (and reported).
+        With ``gaps="split"``, clean stretches shorter than this (≥ 2) are dropped (and
+        reported).
 
     Returns
     -------
@@ -1518,6 +1563,11 @@ def read_recording(
     src = str(path)
     if gaps not in ("fail", "split"):
         raise RecordingError(f"gaps={gaps!r}", "'fail' or 'split'", field="gaps")
+    if isinstance(min_segment, bool) or int(min_segment) != min_segment or min_segment < 2:
+        raise RecordingError(
+            f"min_segment={min_segment!r}", "a whole number ≥ 2", field="min_segment"
+        )
+    min_segment = int(min_segment)
     if rate is not None:
         rate = _check_rate(rate, source=None, field="--rate")
     source = _open_source(p, src)
@@ -1637,8 +1687,9 @@ def read_recording(
     data: dict[str, np.ndarray] = {}
     unit_labels: dict[str, str] = {}
     quantities: dict[str, str] = {}
+    bad_of: dict[str, np.ndarray] = {}
     for pl, x in zip(plans, raw, strict=False):
-        findings += _data_findings(
+        found, bad_of[pl.channel] = _data_findings(
             x,
             pl.name,
             pl.channel,
@@ -1646,6 +1697,7 @@ def read_recording(
             constant_run=constant_run,
             saturation_run=saturation_run,
         )
+        findings += found
         factor = pl.factor * (final_rate if pl.per_sample else 1.0)
         if factor != 1.0:
             y = np.multiply(x, factor, dtype=np.float64)
@@ -1680,7 +1732,8 @@ def read_recording(
     if gaps == "fail":
         if fatal:
             first = fatal[0]
-            more = f" (and {len(fatal) - 1} more problems)" if len(fatal) > 1 else ""
+            n_more = sum(f.count for f in fatal) - 1
+            more = f" (and {n_more} more problems)" if n_more else ""
             raise RecordingError(
                 first.detail + more,
                 _EXPECTED[first.kind],
@@ -1691,12 +1744,8 @@ def read_recording(
             segments[pl.channel] = (Segment(0, n, start_time),)
     else:
         for pl in plans:
-            bad = time_bad.copy()
-            for f in fatal:
-                if f.channel == pl.channel and f.kind != "non_finite":
-                    bad[f.position : f.position + f.length] = True
-            bad |= ~np.isfinite(data[pl.channel])
-            segs, dropped = _segments(n, bad, brk, start_of, max(2, min_segment))
+            bad = time_bad | bad_of[pl.channel]
+            segs, dropped = _segments(n, bad, brk, start_of, min_segment)
             if dropped:
                 findings.append(
                     Finding(

@@ -865,3 +865,31 @@ def test_cache_defaults(tmp_path: pathlib.Path, monkeypatch: pytest.MonkeyPatch)
     assert not (tmp_path / "c").exists()
     read_recording(path, cache=True)
     assert len(list((tmp_path / "c").iterdir())) == 1
+
+
+def test_many_problems_are_summarized(tmp_path: pathlib.Path) -> None:
+    x = np.arange(5000, dtype=float) % 7
+    x[np.arange(5000) % 4 < 2] = np.nan  # 1250 stretches of 2 missing samples
+    path = tmp_path / "many.npy"
+    np.save(path, x)
+    assert _err(path, rate=1.0) == (
+        f"{path}:index 0: column 'ch0' holds NaN or an empty field in 2 consecutive samples "
+        "(and 1249 more problems); expected finite samples, or --gaps split to analyse the "
+        "clean segments"
+    )
+    r = read_recording(path, rate=1.0, gaps="split", min_segment=2)
+    nan_findings = [f for f in r.findings if f.kind == "non_finite"]
+    assert len(nan_findings) == 1001  # rec._MAX_FINDINGS, then one for the rest
+    assert nan_findings[-1].count == 250 and nan_findings[-1].position == 4000
+    assert nan_findings[-1].detail == (
+        "column 'ch0' holds NaN or an empty field in 2 consecutive samples, and 249 more such "
+        "stretches after it"
+    )
+    assert sum(f.count for f in nan_findings) == 1250
+    # the segments come from the data, not from the (summarized) list
+    assert len(r.segments["ch0"]) == 1250
+    assert all(s.n == 2 and s.start % 4 == 2 for s in r.segments["ch0"])
+    assert _err(path, rate=1.0, gaps="split", min_segment=3) == (
+        f"{path}: column 'ch0' has no clean stretch of at least 3 samples; expected a "
+        "recording with longer clean stretches"
+    )
