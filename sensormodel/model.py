@@ -376,12 +376,7 @@ class NoiseModel:
 def _term_schema(cls: type[Term]) -> dict[str, Any]:
     names = cls.parameter_names()
     optional = set(cls.optional_parameters())
-    props: dict[str, Any] = {"type": {"const": cls.type}}
-    for n in names:
-        if n in optional:
-            props[n] = {"type": ["number", "null"], "minimum": 0}
-        else:
-            props[n] = {"type": "number", "minimum": 0}
+    props: dict[str, Any] = {"type": {"const": cls.type}, **cls.parameter_schema()}
     # if/then rather than oneOf: a bad term is then reported at the offending parameter
     # ("-1 is less than the minimum of 0") instead of "not valid under any of the given schemas"
     return {

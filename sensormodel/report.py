@@ -99,6 +99,10 @@ def term_rows(channel) -> list[TermRow]:
         for name, value in term.parameters().items():
             rel = type(term).units.get(name, "")
             kind = _param_kind(channel.unit, rel)
+            if isinstance(value, (list, tuple)):  # shaped filter polynomials in s
+                si = "[" + ", ".join(f"{v:.4g}" for v in value) + "] (in s)"
+                rows.append(TermRow(term.type, name, si, "", origin))
+                continue
             si = f"{format_value(value)} {_si_label(channel.unit, rel)}".strip()
             display = ""
             if kind is not None:

@@ -58,6 +58,7 @@ __all__ = [
     "Quantization",
     "Ramp",
     "RandomConstant",
+    "Shaped",
     "TERM_TYPES",
     "term_from_dict",
     "FlickerRealization",
@@ -114,6 +115,15 @@ class Term:
     def optional_parameters(cls) -> tuple[str, ...]:
         """Parameters that may be ``None`` (a default derived from the channel is used)."""
         return ()
+
+    @classmethod
+    def parameter_schema(cls) -> dict[str, Any]:
+        """JSON Schema of each parameter (for ``schemas/noise-model.schema.json``)."""
+        optional = set(cls.optional_parameters())
+        return {
+            n: {"type": ["number", "null"] if n in optional else "number", "minimum": 0}
+            for n in cls.parameter_names()
+        }
 
     def parameters(self) -> dict[str, float]:
         """The SI parameters as a dict (``None`` values left out)."""
@@ -576,10 +586,121 @@ class RandomConstant(Term):
         return _one_state("random_constant", 0.0, 0.0, self.sigma**2, sample_rate)
 
 
+@dataclass(frozen=True)
+class Shaped(Term):
+    """Coloured noise: unit-intensity white noise through a shaping filter H(s).
+
+    Parameters
+    ----------
+    numerator, denominator : sequence of float
+        Polynomial coefficients of H(s) = numerator(s)/denominator(s), highest power of s first
+        (as numpy.polyval takes them). H is strictly proper (deg numerator < deg denominator,
+        so the variance is finite) and stable (every pole in the open left half-plane). The
+        numerator carries the unit: H has unit [u·√s].
+
+    Notes
+    -----
+    The drive w has E[w(t) w(t+s)] = δ(s): two-sided PSD 1 per hertz. The term's two-sided PSD
+    per hertz is S(f) = |H(j2πf)|², its variance ∫ S df over all f, and it is stationary
+    (P0 = the steady-state covariance of the Lyapunov equation). Such filters come from the
+    spectral factorization of a rational PSD (:func:`sensormodel.spectrum.factorize`) or a fit to
+    a measured spectrum (:func:`sensormodel.spectrum.fit_rational_psd`). The realization is the
+    controllable canonical form of scipy.signal.tf2ss; the Allan variance is exact, from the
+    realization's covariance (:meth:`sensormodel.linear.StateSpace.allan_variance`).
+    """
+
+    type: ClassVar[str] = "shaped"
+    units: ClassVar[dict[str, str]] = {"numerator": "polynomial", "denominator": "polynomial"}
+    numerator: tuple[float, ...]
+    denominator: tuple[float, ...]
+
+    def __post_init__(self) -> None:
+        for name in ("numerator", "denominator"):
+            value = getattr(self, name)
+            if isinstance(value, (str, bytes)) or not hasattr(value, "__len__"):
+                raise ModelFileError(f"shaped.{name} = {value!r}",
+                                     "a list of polynomial coefficients in s")
+            try:
+                coeffs = tuple(float(v) for v in value)
+            except (TypeError, ValueError):
+                raise ModelFileError(f"shaped.{name} = {value!r}",
+                                     "a list of numbers (coefficients in s)") from None
+            if not coeffs or not all(math.isfinite(c) for c in coeffs):
+                raise ModelFileError(f"shaped.{name} = {list(coeffs)}",
+                                     "a non-empty list of finite coefficients")
+            coeffs = tuple(np.trim_zeros(np.array(coeffs), "f").tolist()) or (0.0,)
+            object.__setattr__(self, name, coeffs)
+        if self.denominator == (0.0,):
+            raise ModelFileError("shaped.denominator is zero", "a non-zero polynomial in s")
+        if self.numerator == (0.0,):
+            raise ModelFileError("shaped.numerator is zero", "a non-zero polynomial in s")
+        if len(self.numerator) >= len(self.denominator):
+            raise ModelFileError(
+                f"shaped filter of numerator degree {len(self.numerator) - 1} and denominator "
+                f"degree {len(self.denominator) - 1}",
+                "a strictly proper H(s) (deg numerator < deg denominator: finite variance)",
+            )
+        poles = np.roots(self.denominator)
+        if np.any(poles.real >= 0):
+            worst = poles[np.argmax(poles.real)]
+            raise ModelFileError(
+                f"shaped filter has a pole at s = {worst:.6g} (not in the left half-plane)",
+                "a stable H(s): every root of the denominator with negative real part",
+            )
+
+    @classmethod
+    def parameter_schema(cls) -> dict[str, Any]:
+        coeffs = {"type": "array", "items": {"type": "number"}, "minItems": 1}
+        return {"numerator": coeffs, "denominator": coeffs}
+
+    def parameters(self) -> dict[str, Any]:  # type: ignore[override]
+        return {"numerator": list(self.numerator), "denominator": list(self.denominator)}
+
+    @property
+    def poles(self) -> npt.NDArray[np.complex128]:
+        """Roots of the denominator [1/s]."""
+        return np.roots(self.denominator)
+
+    def _psd2(self, f: _FloatArray, sample_rate: float | None) -> _FloatArray:
+        s = 2j * np.pi * f
+        return np.abs(np.polyval(self.numerator, s) / np.polyval(self.denominator, s)) ** 2
+
+    def _breakpoints(self, sample_rate: float | None) -> tuple[float, ...]:
+        return tuple(sorted(float(abs(p)) / (2 * np.pi) for p in self.poles))
+
+    def variance(self) -> float:
+        """Stationary variance ∫ S(f) df over all f [u²], from the Lyapunov equation."""
+        ss = self.state_space()
+        return float((ss.H @ ss.P0 @ ss.H.T)[0, 0])
+
+    def allan_variance(
+        self, tau: npt.ArrayLike, *, sample_rate: float | None = None
+    ) -> _FloatArray:
+        """Exact Allan variance [u²] from the realization's covariance."""
+        return self.state_space(sample_rate=sample_rate).allan_variance(tau)
+
+    def state_space(self, *, sample_rate: float | None = None) -> StateSpace:
+        """Controllable canonical form of H(s), unit-intensity drive, stationary P0."""
+        from scipy.signal import tf2ss
+
+        from .linear import steady_state_covariance
+
+        a, b, c, _d = tf2ss(np.array(self.numerator), np.array(self.denominator))
+        n = a.shape[0]
+        qc = np.ones((1, 1))
+        names = tuple(f"shaped_{i}" for i in range(n))
+        p0 = steady_state_covariance(a, b, qc, states=names)
+        return StateSpace(
+            F=a, G=b, Qc=qc, H=c.reshape(1, n), P0=p0, states=names, sample_rate=sample_rate
+        )
+
+
 #: Term type name (as in the noise-model JSON) -> class.
 TERM_TYPES: dict[str, type[Term]] = {
     cls.type: cls
-    for cls in (White, Flicker, RandomWalk, GaussMarkov, Quantization, Ramp, RandomConstant)
+    for cls in (
+        White, Flicker, RandomWalk, GaussMarkov, Quantization, Ramp, RandomConstant, Shaped
+    )
 }
 
 
