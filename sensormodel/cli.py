@@ -528,7 +528,8 @@ def allan_command(recording_file: str, rate: float | None, units: tuple[str, ...
     bar = _StderrBar("reading")
     try:
         rec = read_recording(recording_file, rate=rate, unit=_unit_option(units),
-                             increments=increments, columns=list(columns) or None,
+                             increments=increments,
+                             columns=[c for v in columns for c in v.split(",")] or None,
                              channel_map=_channel_option(channel_map),
                              gaps=gaps, progress=bar)
     finally:

@@ -328,3 +328,37 @@ def test_gaps_split(runner, tmp_path) -> None:  # type: ignore[no-untyped-def]
     for c, piece in zip(doc["channels"], (x[:1800], x[1800:]), strict=True):
         np.testing.assert_allclose(c["adev"], allan.overlapping(piece, 100.0).adev, rtol=1e-13)
     assert "gyro.x#2 [rad/s], segment 2 of 2: samples 1800-2999 from t = 19 s" in res.stdout
+
+
+def test_progress_bar_only_on_a_terminal(monkeypatch: pytest.MonkeyPatch) -> None:
+    import io
+    import sys
+
+    from sensormodel import cli as cli_module
+
+    class Terminal(io.StringIO):
+        def isatty(self) -> bool:
+            return True
+
+    pipe = io.StringIO()
+    monkeypatch.setattr(sys, "stderr", pipe)
+    bar = cli_module._StderrBar("reading")
+    bar(50, 100)
+    bar.close()
+    assert pipe.getvalue() == ""
+    term = Terminal()
+    monkeypatch.setattr(sys, "stderr", term)
+    bar = cli_module._StderrBar("reading")
+    bar(50, 100)
+    bar(100, 100)
+    bar.close()
+    assert "reading" in term.getvalue() and "100%" in term.getvalue()
+
+
+def test_columns_comma_separated(runner, white) -> None:  # type: ignore[no-untyped-def]
+    res = _run(runner, "allan", white, "--columns", "gyro.x,accel*", "--taus", "0.01")
+    assert res.exit_code == 0, res.stderr
+    assert [ln.split(" ")[0] for ln in res.stdout.splitlines() if "samples at" in ln] == [
+        "gyro.x",
+        "accelerometer.z",
+    ]
