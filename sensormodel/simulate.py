@@ -44,8 +44,9 @@ period means (the equivalent noise bandwidth rate/2 of DESIGN §3). The Allan va
 Flicker: two methods
 --------------------
 ``"realization"`` (default): exact simulation of the term's realization (sum of Gauss-Markov
-processes, :meth:`sensormodel.terms.Flicker.realization`), whose Allan deviation follows the
-exact 1/f form within the realization's stated error over its τ band (up to the term's
+processes, :meth:`sensormodel.terms.Flicker.realization`, built for the *channel's* sample rate,
+so a record at another rate keeps the model's cut-off), whose Allan deviation follows the exact
+1/f form within the realization's stated error over its τ band (up to the term's
 ``longest_time``). ``"power-law"``: the method of N. J. Kasdin and T. Walter, "Discrete
 simulation of power law noise", Proc. 1992 IEEE Frequency Control Symposium, pp. 274-283: white
 noise of variance Q_d = B² through the truncated moving-average filter h_0 = 1,
