@@ -422,19 +422,33 @@ def _all_sums(
 
 
 def _detrend_quadratic(z: np.ndarray) -> np.ndarray:
+    """z minus its least-squares quadratic in t ∈ [−1, 1] (normal equations; no BLAS)."""
     t = np.linspace(-1.0, 1.0, z.shape[0])
-    coef = np.polynomial.polynomial.polyfit(t, z, 2)
-    return z - np.polynomial.polynomial.polyval(t, coef)
+    t2 = t * t
+    moments = [float(np.einsum("i->", t2 ** (k / 2))) if k % 2 == 0 else 0.0 for k in range(5)]
+    gram = np.array([[moments[i + j] for j in range(3)] for i in range(3)])
+    rhs = np.array(
+        [
+            float(np.einsum("i->", z)),
+            float(np.einsum("i,i->", t, z)),
+            float(np.einsum("i,i->", t2, z)),
+        ]
+    )
+    c = np.linalg.solve(gram, rhs)
+    return z - (c[0] + c[1] * t + c[2] * t2)
 
 
 def _lag1(segments: list[np.ndarray]) -> float:
-    """Pooled lag-1 autocorrelation r1 of the segments (each about its own mean)."""
+    """Pooled lag-1 autocorrelation r1 of the segments (each about its own mean).
+
+    Sums by ``einsum``, not BLAS: a threaded BLAS dot is slow and erratic beside other work.
+    """
     num = 0.0
     den = 0.0
     for z in segments:
         c = z - z.mean()
-        num += float(np.dot(c[:-1], c[1:]))
-        den += float(np.dot(c, c))
+        num += float(np.einsum("i,i->", c[:-1], c[1:]))
+        den += float(np.einsum("i,i->", c, c))
     return num / den if den > 0.0 else 0.0
 
 

@@ -130,7 +130,7 @@ def _check_finite(arr: np.ndarray) -> None:
         bad = np.flatnonzero(~np.isfinite(block))
         if bad.size:
             raise AnalysisError(
-                f"sample {i0 + int(bad[0])} is {block[bad[0]]!r}",
+                f"sample {i0 + int(bad[0])} is {float(block[bad[0]])!r}",
                 "finite samples only (cut the record at gaps first)",
                 field="y",
             )
