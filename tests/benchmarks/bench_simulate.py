@@ -91,7 +91,9 @@ def bench_write(seconds: float, rate: float) -> None:
         size = path.stat().st_size / 2**20
     print(
         f"record to NPY: 6 channels × {n} samples ({size:.0f} MiB) in {dt:.1f} s: "
-        f"{6 * n / dt / 1e6:.2f} M samples/s in total, {n / dt / 1e6:.2f} M/s per channel"
+        f"{6 * n / dt / 1e6:.2f} M channel-samples/s; the record grows by "
+        f"{n / dt / 1e6:.2f} M rows/s; 24 h at {rate:g} Hz would take about "
+        f"{86400 * rate / (n / dt) / 60:.0f} min"
     )
 
 
