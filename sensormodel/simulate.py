@@ -1,4 +1,4 @@
-"""Noise records from a model: exact, chunked, seeded, per channel (DESIGN §1, §4, §6).
+"""Noise records from a model: exact, chunked, seeded, per channel.
 
 A simulated record is what the sensor would deliver if its noise were exactly the model: one
 sample per period dt = 1/rate and channel, as a **rate sample** (the mean of the continuous
@@ -30,7 +30,7 @@ samples is the mean of the continuous output over τ), whatever the rate. Term b
 * ``quantization`` (Q): a white error e_k on the integrated output (angle / velocity), of
   variance Q², **uniform** on ±√3·Q as the rounding error of a quantizer is (Q = s/√12 for a
   quantum s). The increment carries e_{k+1} − e_k, the rate sample (e_{k+1} − e_k)/dt; the
-  Allan variance is exactly 3Q²/τ² (REFERENCES §1: 3 var(e)/τ²).
+  Allan variance is exactly 3 var(e)/τ² = 3Q²/τ² (IEEE Std 952-1997 Annex C).
 * ``ramp`` (R): the term is a slope fixed over a run with E[s²] = R² (its P0). Here
   s = ±R with a random sign per run, so every record has exactly the Allan variance R²τ²/2 and
   an ensemble has the covariance of the model (mean 0, var(s) = R²). The ramp value is 0 at
@@ -38,7 +38,7 @@ samples is the mean of the continuous output over τ), whatever the rate. Term b
 * ``random_constant`` (σ): one N(0, σ²) draw per run and channel, constant over the record.
 
 The channel's output filter (``bandwidth``, ``filter_order``) is **not** applied: samples are
-period means (the equivalent noise bandwidth rate/2 of DESIGN §3). The Allan variance at
+period means (equivalent noise bandwidth rate/2, per-sample variance N²·rate). The Allan variance at
 τ ≫ 1/bandwidth does not depend on it.
 
 Flicker: two methods
@@ -51,7 +51,7 @@ so a record at another rate keeps the model's cut-off), whose Allan deviation fo
 simulation of power law noise", Proc. 1992 IEEE Frequency Control Symposium, pp. 274-283: white
 noise of variance Q_d = B² through the truncated moving-average filter h_0 = 1,
 h_k = h_{k−1}(α/2 + k − 1)/k with α = 1, run as an FFT overlap-save convolution; its one-sided
-PSD is 2 B² dt |2 sin(π f dt)|⁻¹ ≈ B²/(π f) (REFERENCES §9) up to the Nyquist frequency of the
+PSD is 2 Q_d dt |2 sin(π f dt)|⁻¹ ≈ B²/(π f) (their eq. (39)) up to the Nyquist frequency of the
 simulation rate (the term's ``cutoff`` is not applied). The filter has
 L = min(⌈longest_time · rate⌉, ``max_taps``) taps (default 2^20), so the 1/f spectrum holds
 down to about rate/L; the filter's history is filled before the first sample (a stationary
@@ -60,10 +60,11 @@ start).
 Reproducibility
 ---------------
 The seed becomes a :class:`numpy.random.SeedSequence`; every random stream (per run, channel and
-term) has its own generator from ``SeedSequence(seed, spawn_key=(run, channel, slot))``, the
-channel keyed by its id (so selecting channels does not change a channel's record). Random
-numbers are drawn in fixed internal blocks, so the record is bit-for-bit the same whatever the
-chunk size it is read in, and a longer record starts with the shorter one.
+term) has its own generator from ``SeedSequence(seed, spawn_key=(run, channel, slot, term))``,
+the channel keyed by a CRC-32 of its id (so selecting channels does not change a channel's
+record). Random numbers are drawn in a fixed schedule of internal blocks (FIRST_BLOCK samples,
+doubling up to BLOCK), so the record is bit-for-bit the same whatever the chunk size it is read
+in, and a longer record starts with the shorter one.
 """
 
 from __future__ import annotations
@@ -475,7 +476,7 @@ class _PowerLaw(_Source):
         seg[self._taps - 1 :] = self._rng.standard_normal(self._m)
         self._hist = seg[self._nfft - (self._taps - 1) :].copy()
         y = fft.irfft(fft.rfft(seg) * self._H, self._nfft)[self._taps - 1 :]
-        y *= self._b  # driving variance Q_d = B² (REFERENCES §9)
+        y *= self._b  # driving variance Q_d = B²: one-sided PSD B²/(πf) (Kasdin-Walter (39))
         return y
 
 
