@@ -21,9 +21,11 @@ samples is the mean of the continuous output over τ), whatever the rate. Term b
   from the augmented Qd. The sample is drawn as ȳ_k = γ x_k + c w_k + e_k with c = Qxx⁻¹ q_xa
   and e_k independent of w_k of variance q_aa − q_axᵀ c (the conditional Gaussian). The initial
   state is drawn from P0 (stationary for Gauss-Markov states, 0 for random walks). For a
-  diagonal F (all the catalogue's terms) each state is one first-order recursion run by
-  :func:`scipy.signal.lfilter` over a whole block with its state carried; other F fall back to a
-  step-by-step loop (exact, slow).
+  diagonal F (the Gauss-Markov, random-walk and flicker terms) each state is one first-order
+  recursion run by :func:`scipy.signal.lfilter` over a whole block with its state carried; a
+  non-diagonal F (the ``shaped`` term's companion form) runs as one transfer function per
+  noise input (exact impulse response, checked); where that form is not accurate to 1e-9 the
+  step-by-step loop is used (exact, slow).
 * ``white`` (density N): the mean of white noise of two-sided PSD N² over dt has variance N²/dt
   (increment variance N²·dt, IEEE Std 952 Annex C: Allan variance N²/τ). It shares one Gaussian
   stream with the e_k parts of the state-space terms (independent Gaussians add).
@@ -398,6 +400,59 @@ class _StateSpace(_Source):
             if self._independent:
                 self._row = {int(k): j for j, k in enumerate(keep)}
                 self._bs = self._b * np.diag(L)[:, None]
+        self._tf: tuple[list[_FloatArray], _FloatArray, list[int], list[_FloatArray]] | None
+        self._tf = None
+        if not self._diagonal and n:
+            self._init_filters(x0)
+
+    def _init_filters(self, x0: _FloatArray) -> None:
+        """Transfer-function form for a non-diagonal Φ (e.g. a shaping filter in companion
+        form, repeated poles included).
+
+        The period mean is Σ_i T_i(z) z_i for the independent unit normals z_i behind w = L z,
+        T_i(z) = c·L_i + γ (zI − Φ)⁻¹ L_i = b_i(z)/a(z) with a the characteristic polynomial of
+        Φ and b_i = (a * h_i) truncated, h_i the exact impulse response (h_0 = c·L_i,
+        h_k = γ Φ^(k−1) L_i). Each runs as one :func:`scipy.signal.lfilter` with carried
+        state. The initial state adds the free response γ Φ^k x0, which obeys the same
+        recursion a (Cayley-Hamilton): it is put into the first filter's initial state by
+        matching its first n values. The form is kept only if the filters reproduce the exact
+        impulse responses to 1e-9 over 8n samples; otherwise the step loop is used.
+        """
+        from scipy.signal import lfilter
+
+        sm, n = self._sm, self._n
+        a = np.real(np.poly(sm.phi))
+        steps = 8 * n
+        powers = [np.eye(n)]
+        for _ in range(steps):
+            powers.append(sm.phi @ powers[-1])
+        bs, rows = [], []
+        for i in range(self._m):
+            li = self._L[:, i]
+            h = np.array([float(sm.c @ li)] + [float(sm.gamma @ P @ li) for P in powers[:steps]])
+            if not np.any(h):
+                continue
+            b = np.convolve(a, h)[: n + 1]
+            imp = np.zeros(steps + 1)
+            imp[0] = 1.0
+            check = lfilter(b, a, imp)
+            if np.max(np.abs(check - h)) > 1e-9 * np.max(np.abs(h)):
+                return  # not accurate enough in direct form: keep the step loop
+            bs.append(b)
+            rows.append(i)
+        free = np.array([float(sm.gamma @ powers[k] @ x0) for k in range(n)])
+        zis = [np.zeros(n) for _ in bs]
+        if bs and np.any(free):
+            # zero-input response of lfilter is linear in its state: y[:n] = M zi
+            M = np.column_stack(
+                [lfilter(bs[0], a, np.zeros(n), zi=np.eye(n)[j])[0] for j in range(n)]
+            )
+            zis[0] = np.linalg.solve(M, free)
+            if np.max(np.abs(M @ zis[0] - free)) > 1e-9 * np.max(np.abs(free)):
+                return
+        elif np.any(free):
+            return
+        self._tf = (bs, a, rows, zis)
 
     def _block(self, size: int) -> _FloatArray:
         from scipy.signal import lfilter
@@ -417,6 +472,12 @@ class _StateSpace(_Source):
                     continue
                 y, zf = lfilter(b, self._a[i], x, zi=self._zi[i : i + 1])
                 self._zi[i] = zf[0]
+                out += y
+            return out
+        if self._tf is not None:
+            bs, a, rows, zis = self._tf
+            for b, i, zi in zip(bs, rows, zis, strict=True):
+                y, zi[...] = lfilter(b, a, z[i], zi=zi)
                 out += y
             return out
         sm, x = self._sm, self._x
