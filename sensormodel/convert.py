@@ -154,15 +154,20 @@ def axis_terms(ax: AxisSpec, *, basis: str = "typ") -> tuple[list[Term], list[st
             )
         return value, text, used
 
+    # a stated output bandwidth band-limits the white term (DESIGN §3; issue "coloured noise")
+    band = values["bandwidth"].pick("typ")[0] if "bandwidth" in values else None
+    order = (ax.filter_order or 1) if band is not None else None
     walk = "angle_random_walk" if ax.instrument == "gyro" else "velocity_random_walk"
     if walk in values:
         n, text, used = pick(walk)
-        terms.append(White(density=n, meta=_meta(ax, walk, basis, text, used)))
+        terms.append(White(density=n, bandwidth=band, filter_order=order,
+                           meta=_meta(ax, walk, basis, text, used)))
     elif "noise_density" in values:
         n, text, used = pick("noise_density")
         if conv["density_is"] == "one-sided":
             n /= math.sqrt(2.0)
-        terms.append(White(density=n, meta=_meta(ax, "noise_density", basis, text, used)))
+        terms.append(White(density=n, bandwidth=band, filter_order=order,
+                           meta=_meta(ax, "noise_density", basis, text, used)))
     if "bias_instability" in values:
         b, text, used = pick("bias_instability")
         floor = b if conv["bias_instability_is"] == "floor" else b * FLOOR_FACTOR

@@ -198,6 +198,10 @@ def _drift_terms(terms: Sequence[Any], horizon: float) -> list[Any]:
     for t in terms:
         if isinstance(t, Flicker):
             t = replace(t, longest_time=max(t.longest_time or DEFAULT_LONGEST_TIME, horizon))
+        if getattr(t, "type", "") == "white" and getattr(t, "bandwidth", None) is not None:
+            # the output filter (time constant ~1/(2π·bandwidth)) changes the integrated error
+            # by a constant ~N²/(2π·bandwidth), negligible over a navigation horizon
+            t = replace(t, bandwidth=None, filter_order=None)
         out.append(t)
     return out
 

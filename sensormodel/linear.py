@@ -59,7 +59,9 @@ __all__ = [
 R_CONVENTION = (
     "y_k = H x_k + v_k with var(v_k) = R [unit^2]: R = N^2/dt, the variance of the channel's white "
     "term (IEEE Std 952 density N, two-sided PSD N^2) averaged over one step dt, i.e. the "
-    "measurement is the sensor output averaged over the step (for a single raw sample use "
+    "measurement is the sensor output averaged over the step (the white term's output filter, "
+    "if any, is not carried as states: its time constant is far below a filter step; for a "
+    "single raw sample use "
     "dt = 1/sample_rate). Quantization (Q) is not in R: it is carried exactly by two discrete "
     "states [e_k, e_(k-1)] (white angle/velocity error of variance Q^2) seen through "
     "H = [1/dt, -1/dt]."
@@ -574,6 +576,15 @@ class DiscreteModel:
         }
 
 
+def _unfiltered(term: Any) -> Any:
+    """A band-limited white term without its output filter (others unchanged)."""
+    if getattr(term, "type", "") == "white" and getattr(term, "bandwidth", None) is not None:
+        from dataclasses import replace
+
+        return replace(term, bandwidth=None, filter_order=None)
+    return term
+
+
 def discretize(source: Any, dt: float, *, quantization: str = "states") -> DiscreteModel:
     """Exact discrete model of a channel (or of a :class:`StateSpace`) at step dt.
 
@@ -600,11 +611,14 @@ def discretize(source: Any, dt: float, *, quantization: str = "states") -> Discr
         raise AnalysisError(f"dt = {dt!r}", "a positive step in s")
     if quantization not in ("states", "r"):
         raise AnalysisError(f"quantization = {quantization!r}", "'states' or 'r'")
-    ss = (
-        source
-        if isinstance(source, StateSpace)
-        else stack(source.terms, sample_rate=source.sample_rate)
-    )
+    if isinstance(source, StateSpace):
+        ss = source
+    else:
+        # R is the white term averaged over the step; a band-limited white term's output
+        # filter (time constant ~1/(2π·bandwidth), far below any filter step) is not carried
+        # as states: over a step dt ≫ 1/bandwidth the average is that of unfiltered white noise.
+        terms = [_unfiltered(t) for t in source.terms]
+        ss = stack(terms, sample_rate=source.sample_rate)
     phi, qd = van_loan(ss.F, ss.G, ss.Qc, dt)
     h, p0, states = ss.H, ss.P0, list(ss.states)
     r = ss.white / dt

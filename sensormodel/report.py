@@ -99,6 +99,9 @@ def term_rows(channel) -> list[TermRow]:
         for name, value in term.parameters().items():
             rel = type(term).units.get(name, "")
             kind = _param_kind(channel.unit, rel)
+            if rel == "1":  # a plain count (filter order)
+                rows.append(TermRow(term.type, name, f"{value:g}", f"{value:g}", origin))
+                continue
             if isinstance(value, (list, tuple)):  # shaped filter polynomials in s
                 si = "[" + ", ".join(f"{v:.4g}" for v in value) + "] (in s)"
                 rows.append(TermRow(term.type, name, si, "", origin))

@@ -581,7 +581,7 @@ class _ChannelGenerator:
         white_var = 0.0
         quant = 0.0
         for i, term in enumerate(channel.terms):
-            if isinstance(term, White):
+            if isinstance(term, White) and not term.band_limited:
                 white_var += term.density**2 / dt
             elif isinstance(term, Quantization):
                 quant += term.coefficient**2

@@ -217,32 +217,99 @@ class Term:
 
 @dataclass(frozen=True)
 class White(Term):
-    """White noise on the output (angle / velocity random walk).
+    """White noise on the output (angle / velocity random walk), optionally band-limited.
 
     Parameters
     ----------
     density : float
         IEEE Std 952 coefficient N [u·√s] (rad/√s for a gyro, m/s/√s for an accelerometer):
         two-sided PSD N², Allan variance N²/τ.
+    bandwidth : float, optional
+        -3 dB frequency [Hz] of the sensor's output filter, when the datasheet states one. The
+        term is then N·B(s), B the unit-DC-gain Butterworth low-pass of order ``filter_order``:
+        two-sided PSD N²·|B(j2πf)|², variance 2N²·ENBW (DESIGN §3), and an Allan deviation that
+        rolls off below τ ≈ 1/bandwidth as the real sensor's does; at τ ≫ 1/bandwidth it is
+        N²/τ as before.
+    filter_order : int, optional
+        Butterworth order n of that filter (default 1).
     """
 
     type: ClassVar[str] = "white"
-    units: ClassVar[dict[str, str]] = {"density": "u*s**0.5"}
+    units: ClassVar[dict[str, str]] = {
+        "density": "u*s**0.5", "bandwidth": "Hz", "filter_order": "1"
+    }
     density: float
+    bandwidth: float | None = None
+    filter_order: float | None = None
+
+    @classmethod
+    def optional_parameters(cls) -> tuple[str, ...]:
+        return ("bandwidth", "filter_order")
+
+    def __post_init__(self) -> None:
+        super().__post_init__()
+        if self.bandwidth is not None and self.bandwidth <= 0:
+            raise ModelFileError(f"white.bandwidth = {self.bandwidth!r}", "a positive frequency in Hz")
+        if self.filter_order is not None:
+            if self.bandwidth is None:
+                raise ModelFileError("white.filter_order without white.bandwidth",
+                                     "a bandwidth for the output filter")
+            if self.filter_order != int(self.filter_order) or not 1 <= self.filter_order <= 8:
+                raise ModelFileError(f"white.filter_order = {self.filter_order!r}",
+                                     "a whole number from 1 to 8")
+
+    @classmethod
+    def parameter_schema(cls) -> dict[str, Any]:
+        schema = super().parameter_schema()
+        schema["bandwidth"] = {"type": ["number", "null"], "exclusiveMinimum": 0}
+        schema["filter_order"] = {"type": ["integer", "null"], "minimum": 1, "maximum": 8}
+        return schema
+
+    def parameters(self) -> dict[str, Any]:  # type: ignore[override]
+        out: dict[str, Any] = super().parameters()
+        if self.filter_order is not None:
+            out["filter_order"] = int(self.filter_order)
+        return out
+
+    @property
+    def band_limited(self) -> bool:
+        """Whether the term carries an output filter (``bandwidth`` is set)."""
+        return self.bandwidth is not None
+
+    def shaping_filter(self) -> Shaped:
+        """The band-limited term as a :class:`Shaped` filter N·B(s) (requires ``bandwidth``).
+
+        B(s) is the analog Butterworth low-pass of scipy.signal.butter (unit DC gain)."""
+        from scipy.signal import butter
+
+        if self.bandwidth is None:
+            raise AnalysisError("white noise without bandwidth has no shaping filter",
+                                "a band-limited white term")
+        wc = 2.0 * np.pi * self.bandwidth
+        b, a = butter(int(self.filter_order or 1), wc, btype="low", analog=True)
+        return Shaped(numerator=tuple(self.density * np.atleast_1d(b)), denominator=tuple(a))
 
     def _psd2(self, f: _FloatArray, sample_rate: float | None) -> _FloatArray:
-        # Two-sided S(f) = N² (IEEE Std 952 Annex C, angle random walk).
+        # Two-sided S(f) = N² (IEEE Std 952 Annex C, angle random walk), times |B(j2πf)|².
+        if self.bandwidth is not None:
+            return self.shaping_filter()._psd2(f, sample_rate)
         return np.full(f.shape, self.density**2)
 
     def allan_variance(
         self, tau: npt.ArrayLike, *, sample_rate: float | None = None
     ) -> _FloatArray:
-        """Allan variance N²/τ [u²] (IEEE Std 952 Annex C); see :meth:`Term.allan_variance`."""
+        """Allan variance N²/τ [u²] (IEEE Std 952 Annex C); band-limited: exact, from the
+        filter's realization (:meth:`Shaped.allan_variance`)."""
+        if self.bandwidth is not None:
+            return self.shaping_filter().allan_variance(tau, sample_rate=sample_rate)
         return self.density**2 / _positive_array(tau, "tau")
 
     def state_space(self, *, sample_rate: float | None = None) -> StateSpace:
         """No state: white output noise of two-sided PSD N² (``StateSpace.white``); in discrete
-        time it becomes R = N²/dt (:func:`sensormodel.linear.discretize`)."""
+        time it becomes R = N²/dt (:func:`sensormodel.linear.discretize`). Band-limited: the
+        Butterworth states of :meth:`shaping_filter`."""
+        if self.bandwidth is not None:
+            return self.shaping_filter().state_space(sample_rate=sample_rate)
         return _no_state(white=self.density**2, sample_rate=sample_rate)
 
 
