@@ -365,6 +365,176 @@ def drift_command(model_file: str, horizon_text: str, channels: tuple[str, ...],
         save_figure(drift_figure(result, display=display), plot_file, force=force)
         click.echo(f"wrote {plot_file}")
 
+
+# --- acceptance: verify, plan, demo (acceptance.py, report.py, demo.py) -----------------------
+
+EXIT_FAIL = 1
+EXIT_INCONCLUSIVE = 3
+
+_ACCEPTANCE_HELP = (
+    "Exit codes: 0 every term passes, 1 a term fails, 3 otherwise (inconclusive), 2 bad input. "
+    "Caution: acceptance decisions follow the customer's contract and the applicable standards."
+)
+
+
+def _acceptance_channel_map(values: tuple[str, ...]) -> dict[str, str]:
+    from .errors import AnalysisError
+
+    out = {}
+    for v in values:
+        column, sep, channel = v.partition("=")
+        if not sep or not column.strip() or not channel.strip():
+            raise AnalysisError(f"--channel {v}", "COLUMN=CHANNEL_ID, e.g. --channel rate_z=gyro.z")
+        out[column.strip()] = channel.strip()
+    return out
+
+
+def _acceptance_probability(value: float, option: str) -> float:
+    from .errors import AnalysisError
+
+    if not 0.0 < value < 1.0:
+        raise AnalysisError(f"{option} {value}", "a probability between 0 and 1, e.g. 0.9")
+    return value
+
+
+@cli.command("verify", context_settings=_CONTEXT, epilog=_ACCEPTANCE_HELP)
+@click.argument("recording_file", metavar="REC", type=click.Path(dir_okay=False))
+@click.option("--spec", "spec_file", required=True, type=click.Path(dir_okay=False),
+              metavar="DATASHEET", help="The datasheet (TOML) the unit is accepted against.")
+@click.option("--against", type=click.Choice(["max", "typ"]), default="max", show_default=True,
+              help="The datasheet column used as the limit.")
+@click.option("--confidence", type=float, default=0.9, show_default=True,
+              help="Two-sided confidence of the intervals (each one-sided error ≤ (1−C)/2).")
+@click.option("--power", type=float, default=0.8, show_default=True,
+              help="Probability with which the suggested record length decides a term.")
+@click.option("--report", "report_file", type=click.Path(dir_okay=False), default=None,
+              help="Write the HTML report (and one PNG per figure beside it).")
+@click.option("--json", "json_file", type=click.Path(dir_okay=False), default=None,
+              help="Write the verdict report as JSON (schema sensormodel/verdict-report/1, SI).")
+@click.option("--rate", type=float, default=None, help="Sample rate [Hz] if the file has none.")
+@click.option("--unit", default=None, help="Unit of columns that give none, e.g. 'deg/s'.")
+@click.option("--channel", "channel_map", multiple=True, metavar="COLUMN=CHANNEL_ID",
+              help="Map a column to a channel id (repeatable).")
+@click.option("--only", "only", multiple=True, metavar="CHANNEL_ID",
+              help="Verify only this channel (repeatable).")
+@click.option("--gaps", type=click.Choice(["fail", "split"]), default="fail", show_default=True,
+              help="Refuse a record with gaps, or analyse its longest clean segment.")
+@click.option("--seed", type=int, default=0, show_default=True,
+              help="Seed of the identification's random parts (the verdict is reproducible).")
+@_force_option
+@guarded
+def verify_command(recording_file: str, spec_file: str, against: str, confidence: float,
+                   power: float, report_file: str | None, json_file: str | None,
+                   rate: float | None, unit: str | None, channel_map: tuple[str, ...],
+                   only: tuple[str, ...], gaps: str, seed: int, force: bool) -> None:
+    """Does a delivered sensor meet its datasheet? Verdict per channel and term, with
+    confidence: pass (the whole interval within the limit), fail (beyond it) or inconclusive
+    (the limit inside the interval, with the record length that would decide it).
+
+    \b
+    Example:
+      sensormodel verify unit42.csv --spec examples/bw-t900.toml
+      sensormodel verify unit42.npy --spec examples/bw-t900.toml --report unit42.html --json unit42.json
+    """
+    from ._io import check_writable
+    from .acceptance import verify
+    from .datasheet import load_datasheet
+    from .recording import read_recording
+    from .report import verdict_text, write_verdict_html, write_verdict_json
+
+    _acceptance_probability(confidence, "--confidence")
+    _acceptance_probability(power, "--power")
+    for path in (report_file, json_file):
+        if path:
+            check_writable(path, force=force)
+    ds = load_datasheet(spec_file)
+    rec = read_recording(recording_file, rate=rate, unit=unit, gaps=gaps,
+                         channel_map=_acceptance_channel_map(channel_map) or None)
+    result = verify(rec, ds, confidence=confidence, against=against, power=power,
+                    channels=list(only) or None, seed=seed)
+    click.echo(verdict_text(result))
+    if json_file:
+        write_verdict_json(result, json_file, force=force)
+        click.echo(f"wrote {json_file}")
+    if report_file:
+        for path in write_verdict_html(result, report_file, force=force):
+            click.echo(f"wrote {path}")
+    click.get_current_context().exit(result.exit_code)
+
+
+@cli.command("plan", context_settings=_CONTEXT, epilog=_ACCEPTANCE_HELP)
+@click.argument("datasheet", type=click.Path(dir_okay=False))
+@click.option("--confidence", type=float, default=0.9, show_default=True,
+              help="Two-sided confidence of the intervals.")
+@click.option("--precision", type=float, default=0.25, show_default=True,
+              help="Wanted half-width of each term's interval, as a fraction of its value.")
+@click.option("--against", type=click.Choice(["max", "typ"]), default="max", show_default=True,
+              help="The datasheet column to verify.")
+@click.option("--rate", type=float, default=None,
+              help="Sample rate of the planned record [Hz] (default the datasheet's).")
+@guarded
+def plan_command(datasheet: str, confidence: float, precision: float, against: str,
+                 rate: float | None) -> None:
+    """Before any test: how long must a static record be to verify each datasheet term?
+
+    Shows, per term, the averaging time τ it is read at, the Allan-variance degrees of freedom
+    needed there and the record length that gives them, for a unit exactly at its limits.
+
+    \b
+    Example:
+      sensormodel plan examples/bw-t900.toml
+      sensormodel plan examples/bw-t900.toml --confidence 0.95 --precision 0.2
+    """
+    from .acceptance import plan
+    from .errors import AnalysisError
+    from .report import plan_text
+
+    _acceptance_probability(confidence, "--confidence")
+    if not 0.0 < precision < 1.0:
+        raise AnalysisError(f"--precision {precision}", "a fraction between 0 and 1, e.g. 0.25")
+    if rate is not None and not rate > 0:
+        raise AnalysisError(f"--rate {rate}", "a positive rate in Hz")
+    click.echo(plan_text(plan(datasheet, confidence=confidence, precision=precision,
+                              against=against, sample_rate=rate)))
+
+
+@cli.command("demo", context_settings=_CONTEXT)
+@click.option("--out", "out", type=click.Path(file_okay=False), default="demo-output",
+              show_default=True, help="Folder for the demo's files.")
+@_force_option
+@guarded
+def demo_command(out: str, force: bool) -> None:
+    """The whole chain on the bundled invented example, ending in an HTML report.
+
+    Builds the model of examples/bw-t900.toml, simulates a record of a "delivered" unit that
+    deviates from its datasheet on one term, analyses it, verifies it and writes the reports.
+    Exits 0 when the demo ran (whatever the staged unit's verdict).
+
+    \b
+    Example:
+      sensormodel demo --out demo-output
+    """
+    import sys
+
+    from .demo import run_demo
+    from .report import verdict_text
+
+    def progress(text: str) -> None:
+        if sys.stderr.isatty():
+            click.echo(f"… {text}", err=True)
+
+    result = run_demo(out, force=force, progress=progress)
+    click.echo(verdict_text(result.report))
+    click.echo("")
+    click.echo(f"staged deviation: {result.staged}")
+    for what, path in result.files.items():
+        click.echo(f"wrote {what}: {path}")
+    total = sum(result.timings.values())
+    steps = ", ".join(f"{k} {v:.1f} s" for k, v in result.timings.items())
+    click.echo(f"done in {total:.1f} s ({steps}); open {result.files['report (HTML)']} "
+               "in a browser")
+
+
 # --- allan (recording.py reads, allan.py computes, plots.py draws) ----------------------------
 
 
@@ -683,3 +853,210 @@ def simulate_command(model_file: str, duration_text: str, rate: float | None, se
     where = str(paths[0]) if runs == 1 else f"{paths[0]} … {paths[-1]} ({runs} runs)"
     click.echo(f"wrote {where}: {n} {kind} × {what} at {sim_rate:g} Hz "
                f"({_format_time(n / sim_rate)}), seed {seed}, flicker: {flicker}")
+
+
+# --- shape: spectral factorization -----------------------------------------------------------
+
+_SHAPE_QUANTITY = {"gyro": ("angular_rate", "rad/s"), "accelerometer": ("acceleration", "m/s^2")}
+
+
+def _read_spectrum_table(path: str) -> tuple[Any, Any, dict[str, Any]]:
+    """(numerator, denominator) in ω² and the other keys of a rational-PSD TOML file."""
+    import tomllib
+
+    from .errors import AnalysisError, DatasheetError
+    from .spectrum import omega_polynomial_to_omega2
+
+    try:
+        with open(path, "rb") as fh:
+            data = tomllib.load(fh)
+    except tomllib.TOMLDecodeError as exc:
+        raise DatasheetError(f"not valid TOML ({exc})", "a [spectrum] table", source=path) from None
+    table = data.get("spectrum")
+    if not isinstance(table, dict):
+        raise DatasheetError("no [spectrum] table", "a [spectrum] table with numerator and "
+                             "denominator (in ω²) or numerator_omega and denominator_omega",
+                             source=path, field="spectrum")
+    known = {"numerator", "denominator", "numerator_omega", "denominator_omega", "channel",
+             "sample_rate", "name"}
+    for key in table:
+        if key not in known:
+            raise DatasheetError(f"unknown key '{key}'", f"one of {', '.join(sorted(known))}",
+                                 source=path, field=f"spectrum.{key}")
+    out = []
+    for part in ("numerator", "denominator"):
+        if part in table and f"{part}_omega" in table:
+            raise DatasheetError(f"both {part} and {part}_omega", "one of the two",
+                                 source=path, field=f"spectrum.{part}")
+        try:
+            if f"{part}_omega" in table:
+                out.append(omega_polynomial_to_omega2(table[f"{part}_omega"], name=f"{part}_omega"))
+            elif part in table:
+                out.append(table[part])
+            else:
+                raise DatasheetError(f"no {part}", f"{part} = [coefficients in ω², highest first]",
+                                     source=path, field=f"spectrum.{part}")
+        except AnalysisError as exc:
+            raise exc.located(source=path, field=f"spectrum.{part}_omega") from None
+    return out[0], out[1], table
+
+
+def _read_spectrum_csv(path: str) -> tuple[Any, Any]:
+    """Frequency [Hz] and PSD columns of a two-column CSV (a header line is allowed)."""
+    import numpy as np
+
+    from .errors import RecordingError
+
+    rows_f, rows_p = [], []
+    with open(path, encoding="utf-8") as fh:
+        for lineno, line in enumerate(fh, start=1):
+            text = line.strip()
+            if not text or text.startswith("#"):
+                continue
+            parts = [p for p in text.replace(";", ",").replace("\t", ",").split(",") if p.strip()]
+            try:
+                f, p = float(parts[0]), float(parts[1])
+            except (ValueError, IndexError):
+                if not rows_f:  # a header
+                    continue
+                raise RecordingError(f"cannot read '{text}' as frequency, PSD",
+                                     "two numbers per line", source=path,
+                                     field=f"line {lineno}") from None
+            rows_f.append(f)
+            rows_p.append(p)
+    if len(rows_f) < 3:
+        raise RecordingError(f"{len(rows_f)} data lines", "at least 3 lines of frequency, PSD",
+                             source=path)
+    return np.array(rows_f), np.array(rows_p)
+
+
+@cli.command("shape", context_settings=_CONTEXT)
+@click.argument("spectrum_file", metavar="PSD", type=click.Path(dir_okay=False))
+@click.option("-o", "--output", required=True, type=click.Path(dir_okay=False),
+              help="Noise-model JSON to write (holds the shaped term).")
+@click.option("--channel", "channel_id", default=None,
+              help="Channel id of the term (default: the file's 'channel', else gyro.z).")
+@click.option("--rate", type=float, default=None,
+              help="Output rate [Hz] of the channel (default: the file's sample_rate, the "
+                   "recording's rate, or the --add-to model's channel).")
+@click.option("--orders", default="0/2", show_default=True,
+              help="Fit only: numerator/denominator order of H(s), e.g. 1/3.")
+@click.option("--sided", type=click.Choice(["one-sided", "two-sided"]), default="one-sided",
+              show_default=True, help="Fit only: sidedness of the PSD column.")
+@click.option("--from-recording", is_flag=True,
+              help="PSD is a recording: fit its Welch PSD (one channel, see --channel).")
+@click.option("--add-to", "add_to", type=click.Path(dir_okay=False), default=None,
+              help="Add the shaped term to this noise model's channel instead of a new model.")
+@_force_option
+@guarded
+def shape_command(spectrum_file: str, output: str, channel_id: str | None, rate: float | None,
+                  orders: str, sided: str, from_recording: bool, add_to: str | None,
+                  force: bool) -> None:
+    """Turn a coloured spectrum into a stable shaping filter H(s) and a noise model.
+
+    \b
+    PSD is one of
+      - a TOML file with a [spectrum] table: S(ω) = N(ω²)/D(ω²), two-sided per hertz
+        in the channel's SI unit²/Hz, ω in rad/s, coefficients highest power first:
+            [spectrum]
+            numerator = [1.0]            # or numerator_omega = [...] (even powers only)
+            denominator = [1.0, 1.0]
+            channel = "gyro.z"
+            sample_rate = "100 Hz"
+        It is factored exactly: |H(jω)|² = S(ω), poles and zeros in the left half-plane.
+      - a CSV of frequency [Hz], PSD [unit²/Hz] (--sided): a rational PSD of --orders is
+        fitted in log scale and the fit error reported;
+      - with --from-recording, a recording: its Welch PSD is fitted the same way.
+    The term is driven by unit-intensity white noise (two-sided PSD 1 per hertz).
+
+    \b
+    Examples:
+      sensormodel shape examples/gust-spectrum.toml -o gust.json
+      sensormodel shape measured-psd.csv --orders 1/3 --channel accelerometer.z --rate 200 -o vib.json
+      sensormodel shape vib.csv --orders 1/3 --channel accelerometer.z --add-to t900.json -o t900-vib.json
+    """
+    from ._io import check_writable
+    from .errors import AnalysisError
+    from .model import Channel, NoiseModel
+    from .quantities import parse_quantity
+    from .spectrum import factorize, fit_rational_psd, shaped_term, welch
+
+    check_writable(output, force=force)
+    meta: dict[str, Any] = {}
+    fit = None
+    name = None
+    if spectrum_file.lower().endswith(".toml") and not from_recording:
+        num, den, table = _read_spectrum_table(spectrum_file)
+        try:
+            filt = factorize(num, den)
+        except AnalysisError as exc:
+            raise exc.located(source=spectrum_file, field="spectrum") from None
+        channel_id = channel_id or table.get("channel")
+        name = table.get("name")
+        if rate is None and "sample_rate" in table:
+            rate = parse_quantity(table["sample_rate"], "frequency", field="spectrum.sample_rate",
+                                  source=spectrum_file, allow_zero=False)
+        meta["origin"] = "spectral factorization"
+    else:
+        try:
+            n_ord, d_ord = (int(v) for v in orders.split("/"))
+        except ValueError:
+            raise AnalysisError(f"--orders {orders}", "two whole numbers such as 1/3") from None
+        if from_recording:
+            from .recording import read_recording
+
+            rec = read_recording(spectrum_file)
+            channel_id = channel_id or rec.channels[0]
+            if channel_id not in rec.channels:
+                raise AnalysisError(f"no channel '{channel_id}' in the recording",
+                                    f"one of {', '.join(rec.channels)}", source=spectrum_file)
+            rate = rate or rec.rate
+            seg = max(rec.segment_arrays(channel_id), key=len)
+            psd = welch(seg, rec.rate)
+            f, p, sided = psd.f[1:], psd.psd[1:], "one-sided"
+        else:
+            f, p = _read_spectrum_csv(spectrum_file)
+        try:
+            fit = fit_rational_psd(f, p, numerator_order=n_ord, denominator_order=d_ord,
+                                   sided=sided)
+        except AnalysisError as exc:
+            raise exc.located(source=spectrum_file) from None
+        filt = fit.filter
+        meta["origin"] = "rational fit to a measured spectrum"
+        meta["fit"] = {"rms_db": fit.rms_db, "max_db": fit.max_db, "points": fit.n_points,
+                       "orders": [n_ord, d_ord]}
+    channel_id = channel_id or "gyro.z"
+    term = shaped_term(filt, meta=meta)
+    if add_to:
+        base = NoiseModel.load(add_to)
+        ch = base.channel(channel_id)
+        from dataclasses import replace
+
+        model = base.with_channel(replace(ch, terms=(*ch.terms, term)))
+    else:
+        instrument = channel_id.split(".", 1)[0]
+        quantity, unit = _SHAPE_QUANTITY.get(instrument, ("as_recorded", "1"))
+        if rate is None:
+            raise AnalysisError("no output rate for the channel",
+                                "--rate HZ (or sample_rate in the [spectrum] table)")
+        model = NoiseModel(
+            sensor={"name": name or f"shaped noise ({spectrum_file})"},
+            channels=(Channel(id=channel_id, quantity=quantity, unit=unit, sample_rate=rate,
+                              terms=(term,)),),
+            provenance={"created_by": "sensormodel", "from": "spectrum",
+                        "spectrum": {"file": spectrum_file}},
+            conventions={"psd": "shaped: unit-intensity white noise (two-sided PSD 1 per hertz) "
+                                "through H(s); output two-sided PSD |H(j2πf)|²"},
+        )
+    model.save(output, force=force)
+    fmt = ", ".join
+    click.echo(f"H(s) numerator   {fmt(f'{v:.6g}' for v in filt.numerator)}")
+    click.echo(f"     denominator {fmt(f'{v:.6g}' for v in filt.denominator)}")
+    click.echo(f"poles {fmt(f'{p:.6g}' for p in filt.poles)}")
+    if filt.zeros.size:
+        click.echo(f"zeros {fmt(f'{z:.6g}' for z in filt.zeros)}")
+    click.echo(f"variance (Lyapunov) {term.variance():.6g} ({model.channel(channel_id).unit})²")
+    if fit is not None:
+        click.echo(f"fit error over {fit.n_points} points: rms {fit.rms_db:.3g} dB, "
+                   f"worst {fit.max_db:.3g} dB")
+    click.echo(f"wrote {output}: channel {channel_id} with a shaped term")

@@ -272,7 +272,37 @@ def _term_variances(
         q = term.coefficient**2
         tau0 = 1.0 / sample_rate if sample_rate else 0.0
         return np.where(t > 0, 2.0 * q, 0.0), q * (t**2 + t * tau0)
+    if kind == "shaped":
+        return _stationary_integrals(term.state_space(sample_rate=sample_rate), t)
     raise AnalysisError(f"no drift closed form for a '{kind}' term", "a term of DESIGN §4")
+
+
+def _stationary_integrals(ss: Any, t: _FloatArray) -> tuple[_FloatArray, _FloatArray]:
+    """Variances of the single and double integral of a stationary process, by quadrature of
+    its autocovariance R(s) = H e^{Fs} P0 Hᵀ (no closed form for a general shaping filter):
+    Var ∫₀ᵗ y = 2∫₀ᵗ (t − s) R(s) ds and Var ∫₀ᵗ∫₀ᵘ y = 2∫₀ᵗ (t³/3 − s t²/2 + s³/6) R(s) ds
+    (derived from the double integral of R(a − b) over the square)."""
+    from scipy.integrate import quad
+    from scipy.linalg import expm
+
+    h, p0, f = ss.H[0], ss.P0, ss.F
+    decay = 1.0 / max(float(np.min(-np.linalg.eigvals(f).real)), 1e-300)
+
+    def r(s: float) -> float:
+        return float(h @ expm(f * s) @ p0 @ h)
+
+    v1 = np.zeros_like(t)
+    v2 = np.zeros_like(t)
+    for i, ti in enumerate(t):
+        if ti <= 0:
+            continue
+        pts = [x for x in (decay, 10 * decay) if x < ti] or None
+        v1[i] = 2.0 * quad(lambda s: (ti - s) * r(s), 0.0, ti, points=pts, limit=400)[0]
+        v2[i] = 2.0 * quad(
+            lambda s: (ti**3 / 3 - s * ti**2 / 2 + s**3 / 6) * r(s), 0.0, ti, points=pts,
+            limit=400,
+        )[0]
+    return v1, v2
 
 
 def closed_form(
