@@ -971,7 +971,7 @@ def shape_command(spectrum_file: str, output: str, channel_id: str | None, rate:
 
     \b
     Examples:
-      sensormodel shape examples/gust-spectrum.toml -o gust.json
+      sensormodel shape examples/spectra/tern4-mast-sway.toml -o sway.json
       sensormodel shape measured-psd.csv --orders 1/3 --channel accelerometer.z --rate 200 -o vib.json
       sensormodel shape vib.csv --orders 1/3 --channel accelerometer.z --add-to t900.json -o t900-vib.json
     """
