@@ -236,7 +236,9 @@ class White(Term):
 
     type: ClassVar[str] = "white"
     units: ClassVar[dict[str, str]] = {
-        "density": "u*s**0.5", "bandwidth": "Hz", "filter_order": "1"
+        "density": "u*s**0.5",
+        "bandwidth": "Hz",
+        "filter_order": "1",
     }
     density: float
     bandwidth: float | None = None
@@ -249,14 +251,19 @@ class White(Term):
     def __post_init__(self) -> None:
         super().__post_init__()
         if self.bandwidth is not None and self.bandwidth <= 0:
-            raise ModelFileError(f"white.bandwidth = {self.bandwidth!r}", "a positive frequency in Hz")
+            raise ModelFileError(
+                f"white.bandwidth = {self.bandwidth!r}", "a positive frequency in Hz"
+            )
         if self.filter_order is not None:
             if self.bandwidth is None:
-                raise ModelFileError("white.filter_order without white.bandwidth",
-                                     "a bandwidth for the output filter")
+                raise ModelFileError(
+                    "white.filter_order without white.bandwidth",
+                    "a bandwidth for the output filter",
+                )
             if self.filter_order != int(self.filter_order) or not 1 <= self.filter_order <= 8:
-                raise ModelFileError(f"white.filter_order = {self.filter_order!r}",
-                                     "a whole number from 1 to 8")
+                raise ModelFileError(
+                    f"white.filter_order = {self.filter_order!r}", "a whole number from 1 to 8"
+                )
 
     @classmethod
     def parameter_schema(cls) -> dict[str, Any]:
@@ -283,8 +290,9 @@ class White(Term):
         from scipy.signal import butter
 
         if self.bandwidth is None:
-            raise AnalysisError("white noise without bandwidth has no shaping filter",
-                                "a band-limited white term")
+            raise AnalysisError(
+                "white noise without bandwidth has no shaping filter", "a band-limited white term"
+            )
         wc = 2.0 * np.pi * self.bandwidth
         b, a = butter(int(self.filter_order or 1), wc, btype="low", analog=True)
         return Shaped(numerator=tuple(self.density * np.atleast_1d(b)), denominator=tuple(a))
@@ -685,16 +693,19 @@ class Shaped(Term):
         for name in ("numerator", "denominator"):
             value = getattr(self, name)
             if isinstance(value, (str, bytes)) or not hasattr(value, "__len__"):
-                raise ModelFileError(f"shaped.{name} = {value!r}",
-                                     "a list of polynomial coefficients in s")
+                raise ModelFileError(
+                    f"shaped.{name} = {value!r}", "a list of polynomial coefficients in s"
+                )
             try:
                 coeffs = tuple(float(v) for v in value)
             except (TypeError, ValueError):
-                raise ModelFileError(f"shaped.{name} = {value!r}",
-                                     "a list of numbers (coefficients in s)") from None
+                raise ModelFileError(
+                    f"shaped.{name} = {value!r}", "a list of numbers (coefficients in s)"
+                ) from None
             if not coeffs or not all(math.isfinite(c) for c in coeffs):
-                raise ModelFileError(f"shaped.{name} = {list(coeffs)}",
-                                     "a non-empty list of finite coefficients")
+                raise ModelFileError(
+                    f"shaped.{name} = {list(coeffs)}", "a non-empty list of finite coefficients"
+                )
             coeffs = tuple(np.trim_zeros(np.array(coeffs), "f").tolist()) or (0.0,)
             object.__setattr__(self, name, coeffs)
         if self.denominator == (0.0,):
@@ -765,9 +776,7 @@ class Shaped(Term):
 #: Term type name (as in the noise-model JSON) -> class.
 TERM_TYPES: dict[str, type[Term]] = {
     cls.type: cls
-    for cls in (
-        White, Flicker, RandomWalk, GaussMarkov, Quantization, Ramp, RandomConstant, Shaped
-    )
+    for cls in (White, Flicker, RandomWalk, GaussMarkov, Quantization, Ramp, RandomConstant, Shaped)
 }
 
 

@@ -162,7 +162,7 @@ def test_shaped_round_trip_and_refusals():
             term_from_dict({"type": "shaped", **bad})
 
 
-# --- band-limited white noise ----------------------------------------------------------------------
+# --- band-limited white noise ---------------------------------------------------------------
 
 
 @pytest.mark.parametrize("order", [1, 2, 3, 4])
@@ -269,7 +269,7 @@ def test_simulated_shaped_record_has_the_target_variance():
     assert lo < np.var(y) / term.variance() < hi
 
 
-# --- command line ---------------------------------------------------------------------------------
+# --- command line ----------------------------------------------------------------------------
 
 
 def test_shape_command_factorizes_the_example(runner, examples_dir, tmp_path):
