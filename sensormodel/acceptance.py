@@ -93,6 +93,7 @@ __all__ = [
     "required_duration",
     "allan_edf",
     "reading_tau",
+    "fit_terms",
     "TermVerdict",
     "CurveCheck",
     "ChannelVerdict",
@@ -885,16 +886,20 @@ def _fit_reading(spec_type: str, fitted_types: set[str]) -> tuple[str, str, floa
     raise AnalysisError(f"term type {spec_type!r} has no acceptance rule")  # pragma: no cover
 
 
-#: Terms always fitted beside the datasheet's, so that an unlisted term does not bias the rest.
-_BASE_FIT = ("white", "flicker", "random_walk")
+def fit_terms(ax: AxisSpec) -> tuple[str, ...]:
+    """The term types fitted to verify a channel.
 
-
-def _fit_terms(limits: Sequence[SpecLimit], ax: AxisSpec) -> tuple[str, ...]:
-    wanted = set(_BASE_FIT)
+    The datasheet's own terms (each term it prints, whatever the column) and white noise. A
+    bias printed with a correlation time is a Gauss-Markov term, and then nothing else is
+    added: below its correlation time a Gauss-Markov Allan deviation rises like a random
+    walk's, so an unprinted random walk would take part of the bias from it. Otherwise a
+    flicker bias and a random walk are always fitted (their Allan-deviation slopes, 0 and +½,
+    tell them apart), so that a unit with such a term unprinted does not bias the others.
+    """
     terms, _ = axis_terms(ax, basis="max")
-    for t in terms:
-        if t.type != "random_constant":
-            wanted.add(t.type)
+    wanted = {"white"} | {t.type for t in terms if t.type != "random_constant"}
+    if "gauss_markov" not in wanted:
+        wanted |= {"flicker", "random_walk"}
     order = ("quantization", "white", "flicker", "gauss_markov", "random_walk", "ramp")
     return tuple(t for t in order if t in wanted)
 
@@ -916,6 +921,7 @@ def verify_curve(
     power: float = DEFAULT_POWER,
     identification: Any | None = None,
     seed: int | None = None,
+    n_boot: int | None = None,
 ) -> ChannelVerdict:
     """Verdicts for one channel from its measured Allan curve.
 
@@ -938,6 +944,8 @@ def verify_curve(
         datasheet's term types (and white, flicker, random walk).
     seed : int, optional
         Seed passed to the identification.
+    n_boot : int, optional
+        Bootstrap records of the identification (default its own, 200).
     """
     limits, skipped = spec_limits(ax, against=against)
     rate = float(curve.sample_rate)
@@ -945,7 +953,7 @@ def verify_curve(
         from .identify import fit
 
         identification = fit(
-            curve, terms=list(_fit_terms(limits, ax)), confidence=confidence, seed=seed
+            curve, terms=list(fit_terms(ax)), confidence=confidence, seed=seed, n_boot=n_boot
         )
     fitted_types = {ft.term for ft in identification.terms}
     model = identification.to_channel() if hasattr(identification, "to_channel") else None
@@ -1035,6 +1043,37 @@ def _edf_at(curve: Any, tau: float, alpha: int, duration: float) -> float | None
     return None
 
 
+def _worker_count(workers: int | None, n_jobs: int) -> int:
+    """Processes for the identification: ``workers`` (None or 1: none), at most one per job
+    and per usable CPU."""
+    import os
+
+    if workers is None or workers <= 1 or n_jobs <= 1:
+        return 1
+    try:
+        cpus = len(os.sched_getaffinity(0))
+    except AttributeError:  # pragma: no cover - not Linux
+        cpus = os.cpu_count() or 1
+    return max(1, min(int(workers), n_jobs, cpus))
+
+
+def _channel_seed(seed: int | None, ax: AxisSpec) -> int | None:
+    """A seed per channel derived from ``seed`` and the channel id (independent streams)."""
+    if seed is None:
+        return None
+    import zlib
+
+    key = zlib.crc32(ax.channel_id.encode("utf-8"))
+    return int(np.random.SeedSequence(seed, spawn_key=(key,)).generate_state(1)[0])
+
+
+def _verify_job(
+    curve: Any, ax: AxisSpec, length: float, seed: int | None, options: dict[str, Any]
+) -> ChannelVerdict:
+    """One channel's verification (a picklable job for a worker process)."""
+    return verify_curve(curve, ax, duration=length, seed=seed, **options)
+
+
 def _key(channel_id: str) -> str:
     return channel_id.replace("_", ".").lower()
 
@@ -1049,6 +1088,8 @@ def verify(
     channels: Sequence[str] | None = None,
     duration: float | None = None,
     seed: int | None = None,
+    n_boot: int | None = None,
+    workers: int | None = None,
     progress: Any = None,
 ) -> VerdictReport:
     """Acceptance verdicts of a recording (or of Allan curves) against a datasheet.
@@ -1073,6 +1114,11 @@ def verify(
         Record length [s] (for curves; a Recording knows its own).
     seed : int, optional
         Seed for the identification's random parts.
+    n_boot : int, optional
+        Bootstrap records of the identification (default its own, 200); fewer are quicker.
+    workers : int, optional
+        Identify the channels in this many processes (at most the usable CPUs; default one,
+        in this process). The results do not depend on it.
     progress : callable, optional
         Called as ``progress(channel_id)`` before each channel.
 
@@ -1132,27 +1178,41 @@ def verify(
         notes.append(f"not in the recording, not verified: {', '.join(missing)}")
     if extra:
         notes.append(f"in the recording but not on the datasheet, ignored: {', '.join(extra)}")
-    results = []
+    jobs = []
     for k in order:
         ax = specs[k]
         if progress is not None:
             progress(ax.channel_id)
-        item = curves[k]
         psd = None
         if isinstance(source, Mapping):
-            curve, length = item, lengths[k]
+            curve, length = curves[k], lengths[k]
         else:
             curve, length, psd = _analyse(source, k, ax, confidence=confidence)
-        cv = verify_curve(
-            curve,
-            ax,
-            duration=length,
-            confidence=confidence,
-            against=against,
-            power=power,
-            seed=seed,
-        )
-        results.append(replace(cv, psd=psd))
+        jobs.append((curve, ax, length, psd))
+    options = {
+        "confidence": confidence,
+        "against": against,
+        "power": power,
+        "n_boot": n_boot,
+    }
+    n_workers = _worker_count(workers, len(jobs))
+    if n_workers > 1:
+        import multiprocessing
+        from concurrent.futures import ProcessPoolExecutor
+
+        context = multiprocessing.get_context("spawn")
+        with ProcessPoolExecutor(max_workers=n_workers, mp_context=context) as pool:
+            futures = [
+                pool.submit(_verify_job, curve, ax, length, _channel_seed(seed, ax), options)
+                for curve, ax, length, _ in jobs
+            ]
+            cvs = [f.result() for f in futures]
+    else:
+        cvs = [
+            _verify_job(curve, ax, length, _channel_seed(seed, ax), options)
+            for curve, ax, length, _ in jobs
+        ]
+    results = [replace(cv, psd=job[3]) for cv, job in zip(cvs, jobs, strict=True)]
     if not any(c.terms for c in results):
         raise DatasheetError(
             f"no term of the datasheet has a {against} value to verify against",
@@ -1176,12 +1236,17 @@ def verify(
 
 
 def _welch(y: npt.NDArray[np.float64], rate: float) -> tuple[Any, Any]:
-    """One-sided PSD [u²/Hz] of a record by Welch's method (Hann window, half overlap,
-    segments of 2^k ≤ N/8 samples, at most 2^16; mean removed per segment)."""
+    """One-sided PSD [u²/Hz] of a record by Welch's method, averaged in log-frequency bins.
+
+    Welch (scipy.signal.welch): Hann window, half overlap, segments of 2^k ≤ N/4 samples (at
+    most 2^18), mean removed per segment. Above the lowest bins the estimates are averaged in
+    bins 1/20 of a decade wide (each bin's mean frequency and mean PSD), which keeps the
+    estimate unbiased and shows the slopes; a figure then has some 20 points per decade.
+    """
     from scipy.signal import welch
 
     n = len(y)
-    nper = int(2 ** min(16, max(4, math.floor(math.log2(max(16, n / 8))))))
+    nper = int(2 ** min(18, max(4, math.floor(math.log2(max(16, n / 4))))))
     f, s = welch(
         np.asarray(y, dtype=float),
         fs=rate,
@@ -1190,7 +1255,16 @@ def _welch(y: npt.NDArray[np.float64], rate: float) -> tuple[Any, Any]:
         return_onesided=True,
         scaling="density",
     )
-    return f[1:], s[1:]
+    f, s = f[1:], s[1:]
+    if f.size < 40:
+        return f, s
+    edges = np.geomspace(f[0], f[-1] * (1 + 1e-12), int(20 * math.log10(f[-1] / f[0])) + 2)
+    idx = np.clip(np.searchsorted(edges, f, side="right") - 1, 0, edges.size - 2)
+    counts = np.bincount(idx, minlength=edges.size - 1)
+    keep = counts > 0
+    fb = np.bincount(idx, weights=f, minlength=edges.size - 1)[keep] / counts[keep]
+    sb = np.bincount(idx, weights=s, minlength=edges.size - 1)[keep] / counts[keep]
+    return fb, sb
 
 
 def _analyse(

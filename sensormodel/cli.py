@@ -434,7 +434,8 @@ def verify_command(recording_file: str, spec_file: str, against: str, confidence
     \b
     Example:
       sensormodel verify unit42.csv --spec examples/bw-t900.toml
-      sensormodel verify unit42.npy --spec examples/bw-t900.toml --report unit42.html --json unit42.json
+      sensormodel verify unit42.npy --spec examples/bw-t900.toml --report unit42.html \
+          --json unit42.json
     """
     from ._io import check_writable
     from .acceptance import verify

@@ -1,0 +1,197 @@
+"""The verify and plan commands: verdicts and exit codes on recordings they have never seen,
+the JSON and HTML reports, and the one-line errors on bad input."""
+
+from __future__ import annotations
+
+import json
+import pathlib
+from dataclasses import replace
+
+import jsonschema
+import pytest
+from conftest import SCHEMAS
+
+from sensormodel.cli import cli
+from sensormodel.datasheet import load_datasheet
+from sensormodel.model import NoiseModel
+from sensormodel.simulate import write_record
+
+SHEET = """
+[sensor]
+name = "CLI study unit"
+sample_rate = "1 Hz"
+axes = ["z"]
+[gyro]
+angle_random_walk = { typ = "0.05 deg/rt-hr", max = "0.1 deg/rt-hr" }
+bias_instability = { typ = "1 deg/h", max = "3 deg/h" }
+bias_repeatability = "10 deg/h"
+"""
+
+
+def _record(
+    tmp_path: pathlib.Path, name: str, *, white_factor: float, n: int, seed: int
+) -> pathlib.Path:
+    """A record of the typical unit with its white density scaled by ``white_factor``."""
+    sheet = tmp_path / "sheet.toml"
+    if not sheet.exists():
+        sheet.write_text(SHEET, encoding="utf-8")
+    model = NoiseModel.from_datasheet(load_datasheet(sheet))
+    ch = model.channels[0]
+    terms = tuple(
+        replace(t, density=t.density * white_factor) if t.type == "white" else t for t in ch.terms
+    )
+    model = model.with_channel(replace(ch, terms=terms))
+    out = tmp_path / name
+    write_record(out, model, n, 1.0, seed=seed)
+    return out
+
+
+@pytest.fixture
+def sheet(tmp_path: pathlib.Path) -> pathlib.Path:
+    p = tmp_path / "sheet.toml"
+    p.write_text(SHEET, encoding="utf-8")
+    return p
+
+
+def _validate(path: pathlib.Path) -> dict:
+    schema = json.loads((SCHEMAS / "verdict-report.schema.json").read_text(encoding="utf-8"))
+    doc = json.loads(path.read_text(encoding="utf-8"))
+    jsonschema.Draft202012Validator(schema).validate(doc)
+    return doc
+
+
+def test_verify_pass_exit_0(runner, sheet, tmp_path) -> None:
+    # typical unit (ARW half its max, bias instability a third of it), 4000 s at 1 Hz
+    rec = _record(tmp_path, "good.csv", white_factor=1.0, n=4000, seed=1)
+    out = tmp_path / "good.json"
+    result = runner.invoke(cli, ["verify", str(rec), "--spec", str(sheet), "--json", str(out)])
+    assert result.exit_code == 0, result.output
+    assert "overall: pass" in result.stdout
+    doc = _validate(out)
+    assert doc["overall"] == "pass" and doc["exit_code"] == 0
+    assert {t["term"] for t in doc["channels"][0]["terms"]} == {
+        "angle_random_walk",
+        "bias_instability",
+    }
+
+
+def test_verify_fail_exit_1_with_report(runner, sheet, tmp_path) -> None:
+    # white noise 4 × the typical, i.e. twice the max: fail
+    rec = _record(tmp_path, "bad.npy", white_factor=4.0, n=4000, seed=2)
+    html = tmp_path / "bad.html"
+    out = tmp_path / "bad.json"
+    result = runner.invoke(
+        cli, ["verify", str(rec), "--spec", str(sheet), "--report", str(html), "--json", str(out)]
+    )
+    assert result.exit_code == 1, result.output
+    doc = _validate(out)
+    arw = next(t for t in doc["channels"][0]["terms"] if t["term"] == "angle_random_walk")
+    assert arw["verdict"] == "fail"
+    assert arw["display"]["low"] > 0.1  # the whole interval beyond 0.1 deg/rt-hr
+    page = html.read_text(encoding="utf-8")
+    assert page.count("data:image/png;base64,") == 2
+    assert (tmp_path / "bad-gyro.z-allan.png").is_file()
+    assert (tmp_path / "bad-gyro.z-psd.png").is_file()
+
+
+def test_verify_inconclusive_exit_3(runner, sheet, tmp_path) -> None:
+    # white noise 2.04 × typical = 1.02 × max, 300 s: the interval straddles the limit
+    rec = _record(tmp_path, "short.csv", white_factor=2.04, n=300, seed=3)
+    result = runner.invoke(cli, ["verify", str(rec), "--spec", str(sheet)])
+    assert result.exit_code == 3, result.output
+    assert "inconclusive" in result.stdout and "needs a record of" in result.stdout
+
+
+def test_verify_against_typ(runner, sheet, tmp_path) -> None:
+    # the same good unit against the typical values: its ARW equals typ, so it is no pass
+    rec = _record(tmp_path, "good.csv", white_factor=1.0, n=4000, seed=1)
+    result = runner.invoke(cli, ["verify", str(rec), "--spec", str(sheet), "--against", "typ"])
+    assert result.exit_code in (1, 3), result.output
+    assert "(typ values)" in result.stdout
+
+
+@pytest.mark.parametrize(
+    ("args", "message"),
+    [
+        (["--confidence", "1.5"], "error: --confidence 1.5"),
+        (["--power", "0"], "error: --power 0"),
+    ],
+)
+def test_verify_bad_options(runner, sheet, tmp_path, args, message) -> None:
+    rec = _record(tmp_path, "r.csv", white_factor=1.0, n=500, seed=4)
+    result = runner.invoke(cli, ["verify", str(rec), "--spec", str(sheet), *args])
+    assert result.exit_code == 2
+    assert result.stderr.startswith(message)
+    assert "Traceback" not in result.stderr
+
+
+def test_verify_missing_file(runner, sheet, tmp_path) -> None:
+    result = runner.invoke(cli, ["verify", str(tmp_path / "none.csv"), "--spec", str(sheet)])
+    assert result.exit_code == 2
+    assert result.stderr.startswith("error: ") and len(result.stderr.strip().splitlines()) == 1
+
+
+def test_verify_unitless_column(runner, sheet, tmp_path) -> None:
+    rec = tmp_path / "raw.csv"
+    rec.write_text(
+        "time [s],gyro_z\n" + "".join(f"{i},{(i * 7919) % 13 - 6}\n" for i in range(400)),
+        encoding="utf-8",
+    )
+    result = runner.invoke(cli, ["verify", str(rec), "--spec", str(sheet)])
+    assert result.exit_code == 2
+    assert "physical unit" in result.stderr and "--unit" in result.stderr
+
+
+def test_verify_no_common_channel(runner, sheet, tmp_path) -> None:
+    rec = tmp_path / "acc.csv"
+    rec.write_text(
+        "time [s],accelerometer_x [m/s^2]\n"
+        + "".join(f"{i},{((i * 7919) % 13 - 6) * 1e-4}\n" for i in range(400)),
+        encoding="utf-8",
+    )
+    result = runner.invoke(cli, ["verify", str(rec), "--spec", str(sheet)])
+    assert result.exit_code == 2
+    assert "no channel in common" in result.stderr
+
+
+def test_verify_existing_report_refused(runner, sheet, tmp_path) -> None:
+    rec = _record(tmp_path, "r.csv", white_factor=1.0, n=500, seed=5)
+    out = tmp_path / "exists.json"
+    out.write_text("{}", encoding="utf-8")
+    result = runner.invoke(cli, ["verify", str(rec), "--spec", str(sheet), "--json", str(out)])
+    assert result.exit_code == 2 and "--force" in result.stderr
+    assert out.read_text(encoding="utf-8") == "{}"
+
+
+# ---------------------------------------------------------------------------------------------
+# plan
+# ---------------------------------------------------------------------------------------------
+
+
+def test_plan_command(runner, examples_dir) -> None:
+    result = runner.invoke(cli, ["plan", str(examples_dir / "bw-t900.toml")])
+    assert result.exit_code == 0, result.output
+    out = result.stdout
+    assert "read at τ" in out and "EDF needed" in out and "why:" in out
+    assert "longest: gyro.x bias_instability" in out
+    assert "rate_random_walk *" in out  # typ only: shown for information
+    assert "not verifiable from a single run" in out
+
+
+def test_plan_precision_changes_length(runner, examples_dir) -> None:
+    a = runner.invoke(cli, ["plan", str(examples_dir / "bw-t900.toml")])
+    b = runner.invoke(cli, ["plan", str(examples_dir / "bw-t900.toml"), "--precision", "0.1"])
+    assert a.exit_code == b.exit_code == 0
+    assert a.stdout != b.stdout and "±10 %" in b.stdout
+
+
+@pytest.mark.parametrize("args", [["--precision", "2"], ["--confidence", "0"], ["--rate", "-1"]])
+def test_plan_bad_options(runner, examples_dir, args) -> None:
+    result = runner.invoke(cli, ["plan", str(examples_dir / "bw-t900.toml"), *args])
+    assert result.exit_code == 2 and result.stderr.startswith("error: ")
+
+
+def test_plan_nothing_to_verify(runner, examples_dir) -> None:
+    result = runner.invoke(cli, ["plan", str(examples_dir / "bw-g30.toml")])
+    assert result.exit_code == 0
+    assert "nothing to verify" in result.stdout
