@@ -125,6 +125,9 @@ _MAX_DOF = 1e12
 #: A record must be at least this many times the τ a term is read at (common practice: the
 #: longest τ of an Allan analysis is a small fraction of the record).
 _MIN_RECORD_OVER_TAU = 8.0
+#: Below this many samples in all (channels together) the identification runs in this
+#: process: starting worker processes would take longer than the work.
+_PARALLEL_MIN_SAMPLES = 1 << 17
 #: A plan reads no term below this many sample periods (common practice: the first points of
 #: an Allan curve carry the output filter and aliasing, not the noise terms alone).
 _MIN_TAU_SAMPLES = 10.0
@@ -559,6 +562,15 @@ def _duration_for_edf(alpha: int, tau: float, edf: float, rate: float) -> float:
     return ((r + 2.0) * m - 1.0) / rate
 
 
+def _term_curves(
+    terms: Sequence[Any], *, rate: float, tau_min: float, tau_max: float
+) -> tuple[npt.NDArray[np.float64], npt.NDArray[np.float64]]:
+    """A log τ grid (12 points per decade) and each term's Allan variance on it [u²]."""
+    n = max(12, int(math.ceil(12 * math.log10(tau_max / tau_min))) + 1)
+    tau = np.geomspace(tau_min, tau_max, n)
+    return tau, np.array([t.allan_variance(tau, sample_rate=rate) for t in terms])
+
+
 @dataclass(frozen=True)
 class Reading:
     """Where a term is read on the Allan curve and what that takes (see :func:`reading_tau`)."""
@@ -579,6 +591,7 @@ def reading_tau(
     dof: float,
     tau_min: float | None = None,
     tau_max: float = 1e7,
+    curves: tuple[Any, Any] | None = None,
 ) -> Reading:
     """The τ at which a term is best read, and the record length that gives it ``dof``.
 
@@ -599,10 +612,14 @@ def reading_tau(
     dof : float
         Effective degrees of freedom wanted for the term.
     tau_min, tau_max : float
-        τ range searched [s] (default from one sample period).
+        τ range searched [s] (default from one sample period), 12 points per decade.
+    curves : (ndarray, ndarray), optional
+        (τ grid, Allan variance of each term on it, shape (terms, τ)) already computed
+        (:func:`_term_curves`), to read several terms of one channel without recomputing.
     """
-    tau = np.geomspace(tau_min or 1.0 / rate, tau_max, 400)
-    parts = np.array([t.allan_variance(tau, sample_rate=rate) for t in terms])
+    if curves is None:
+        curves = _term_curves(terms, rate=rate, tau_min=tau_min or 1.0 / rate, tau_max=tau_max)
+    tau, parts = curves
     total = parts.sum(axis=0)
     share = np.divide(parts[index], total, out=np.zeros_like(total), where=total > 0)
     slope = np.gradient(np.log(np.maximum(total, 1e-300)), np.log(tau))
@@ -959,6 +976,7 @@ def verify_curve(
     model = identification.to_channel() if hasattr(identification, "to_channel") else None
     model_terms = [t for t in getattr(model, "terms", ()) if t.type != "random_constant"]
     verdicts = []
+    model_curves = None
     for spec in limits:
         name, parameter, factor = _fit_reading(spec.type, fitted_types)
         ft = _fitted(identification, name, parameter)
@@ -987,12 +1005,15 @@ def verify_curve(
         read_at = edf = None
         idx = next((i for i, t in enumerate(model_terms) if t.type == name), None)
         if idx is not None:
+            if model_curves is None:
+                model_curves = _term_curves(model_terms, rate=rate, tau_min=1.0 / rate, tau_max=1e7)
             try:
                 reading = reading_tau(
                     model_terms,
                     idx,
                     rate=rate,
                     dof=dof_for_precision(DEFAULT_PRECISION, confidence),
+                    curves=model_curves,
                 )
                 read_at = reading.tau
                 edf = _edf_at(curve, read_at, reading.alpha, duration)
@@ -1117,8 +1138,9 @@ def verify(
     n_boot : int, optional
         Bootstrap records of the identification (default its own, 200); fewer are quicker.
     workers : int, optional
-        Identify the channels in this many processes (at most the usable CPUs; default one,
-        in this process). The results do not depend on it.
+        Identify the channels in this many processes (at most the usable CPUs, and only for
+        records of at least 2^17 samples in all; default one, in this process). The results
+        do not depend on it.
     progress : callable, optional
         Called as ``progress(channel_id)`` before each channel.
 
@@ -1195,7 +1217,8 @@ def verify(
         "power": power,
         "n_boot": n_boot,
     }
-    n_workers = _worker_count(workers, len(jobs))
+    total = sum(int(getattr(c, "n_samples", None) or 0) for c, *_ in jobs)
+    n_workers = _worker_count(workers, len(jobs)) if total >= _PARALLEL_MIN_SAMPLES else 1
     if n_workers > 1:
         import multiprocessing
         from concurrent.futures import ProcessPoolExecutor
@@ -1410,15 +1433,14 @@ def plan(
         rate_used = rate
         ch = limit_channel(ax, rate=rate, against=against)
         terms = list(ch.terms)
+        curves = _term_curves(terms, rate=rate, tau_min=_MIN_TAU_SAMPLES / rate, tau_max=1e9)
         for spec in limits:
             idx = next(
                 i
                 for i, t in enumerate(terms)
                 if t.type == spec.type and t.meta.get("datasheet", {}).get("field") == spec.field
             )
-            r = reading_tau(
-                terms, idx, rate=rate, dof=nu, tau_min=_MIN_TAU_SAMPLES / rate, tau_max=1e9
-            )
+            r = reading_tau(terms, idx, rate=rate, dof=nu, curves=curves)
             rows.append(
                 PlanRow(
                     spec=spec,

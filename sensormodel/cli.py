@@ -421,12 +421,16 @@ def _acceptance_probability(value: float, option: str) -> float:
               help="Refuse a record with gaps, or analyse its longest clean segment.")
 @click.option("--seed", type=int, default=0, show_default=True,
               help="Seed of the identification's random parts (the verdict is reproducible).")
+@click.option("--bootstrap", "n_boot", type=click.IntRange(min=1), default=None,
+              help="Bootstrap records per channel for the intervals (default 200; fewer is "
+                   "quicker and rougher).")
 @_force_option
 @guarded
 def verify_command(recording_file: str, spec_file: str, against: str, confidence: float,
                    power: float, report_file: str | None, json_file: str | None,
                    rate: float | None, unit: str | None, channel_map: tuple[str, ...],
-                   only: tuple[str, ...], gaps: str, seed: int, force: bool) -> None:
+                   only: tuple[str, ...], gaps: str, seed: int, n_boot: int | None,
+                   force: bool) -> None:
     """Does a delivered sensor meet its datasheet? Verdict per channel and term, with
     confidence: pass (the whole interval within the limit), fail (beyond it) or inconclusive
     (the limit inside the interval, with the record length that would decide it).
@@ -452,7 +456,7 @@ def verify_command(recording_file: str, spec_file: str, against: str, confidence
     rec = read_recording(recording_file, rate=rate, unit=unit, gaps=gaps,
                          channel_map=_acceptance_channel_map(channel_map) or None)
     result = verify(rec, ds, confidence=confidence, against=against, power=power,
-                    channels=list(only) or None, seed=seed)
+                    channels=list(only) or None, seed=seed, n_boot=n_boot, workers=2)
     click.echo(verdict_text(result))
     if json_file:
         write_verdict_json(result, json_file, force=force)

@@ -44,7 +44,7 @@ __all__ = [
 #: The example datasheet the demo starts from.
 DEMO_DATASHEET = "bw-t900.toml"
 #: Sample rate of the demo record [Hz] (reduced from the datasheet's 400 Hz to keep it quick).
-DEMO_RATE = 10.0
+DEMO_RATE = 5.0
 #: Length of the demo record [s] (3 h).
 DEMO_DURATION = 3 * 3600.0
 #: Seed of the demo record (the demo is reproducible).
@@ -167,7 +167,7 @@ def run_demo(
     -------
     DemoResult
     """
-    from ._io import check_writable
+    from ._io import atomic_writer, check_writable
     from .acceptance import plan as make_plan
     from .acceptance import verify
     from .datasheet import load_datasheet
@@ -187,6 +187,7 @@ def run_demo(
         raise AnalysisError("is a file", "a folder for the demo's output", source=str(folder))
     folder.mkdir(parents=True, exist_ok=True)
     files = {
+        "datasheet (copy of the bundled example)": folder / DEMO_DATASHEET,
         "datasheet model": folder / "bw-t900-model.json",
         "delivered unit (truth)": folder / "delivered-unit-model.json",
         "recording": folder / "delivered-unit.npy",
@@ -204,7 +205,9 @@ def run_demo(
     timings: dict[str, float] = {}
     t0 = time.perf_counter()
     say(f"building the model of {DEMO_DATASHEET}")
-    sheet = example_path(DEMO_DATASHEET)
+    sheet = files["datasheet (copy of the bundled example)"]
+    with atomic_writer(sheet, force=force, binary=True) as fh:
+        fh.write(example_path(DEMO_DATASHEET).read_bytes())
     ds = load_datasheet(sheet)
     model = NoiseModel.from_datasheet(ds)
     model.save(files["datasheet model"], force=force)
@@ -274,10 +277,9 @@ def _write_text(path: pathlib.Path, text: str, *, force: bool) -> None:
 
 def _write_analysis(report: Any, files: dict[str, pathlib.Path], *, force: bool) -> None:
     """Write the measured Allan curves and the identified model of every channel."""
-    from .model import NoiseModel
-
     from ._io import write_json
     from .allan import SCHEMA_FILE, curves_to_json
+    from .model import NoiseModel
 
     curves = [ch.allan for ch in report.channels]
     write_json(files["Allan deviation"], curves_to_json(curves), force=force, schema=SCHEMA_FILE)

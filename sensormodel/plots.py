@@ -238,7 +238,7 @@ def verdict_allan_figure(verdict: Any, *, display: tuple[str, float] | None = No
     ax.fill_between(tau, check.ci_low * factor, check.ci_high * factor, color="tab:blue",
                     alpha=0.22, lw=0, label=f"{100 * check.confidence:.0f} % interval")
     ax.loglog(tau, check.adev * factor, "o", ms=3.5, color="tab:blue", label="measured")
-    t_fine = np.geomspace(tau[0], tau[-1], 300)
+    t_fine = np.geomspace(tau[0], tau[-1], 120)
     fitted = getattr(verdict.identification, "fitted_adev", None)
     if fitted is not None:
         ax.loglog(t_fine, np.asarray(fitted(t_fine)) * factor, "k-", lw=1.6, label="fitted model")
@@ -287,7 +287,7 @@ def verdict_psd_figure(verdict: Any, *, display: tuple[str, float] | None = None
                   label="measured (Welch)")
         if np.any(keep):
             f_lo = float(f[keep][0])
-    f_grid = np.geomspace(f_lo, f_hi, 300)
+    f_grid = np.geomspace(f_lo, f_hi, 160)
     lim = verdict.limit_channel.psd(f_grid, sided="one-sided") * factor**2
     ax.loglog(f_grid, np.where(lim > 0, lim, np.nan), "--", color="tab:red", lw=1.8,
               label="datasheet limit")

@@ -57,6 +57,7 @@ def test_demo_runs(demo) -> None:
 def test_demo_files(demo) -> None:
     out, *_ = demo
     for name in (
+        "bw-t900.toml",
         "bw-t900-model.json",
         "delivered-unit-model.json",
         "delivered-unit.npy",
