@@ -20,15 +20,27 @@ samples is the mean of the continuous output over τ), whatever the rate. Term b
   ȳ_k = γ x_k + v_k and the next state x_{k+1} = Φ x_k + w_k are jointly Gaussian: cov(w, v)
   from the augmented Qd. The sample is drawn as ȳ_k = γ x_k + c w_k + e_k with c = Qxx⁻¹ q_xa
   and e_k independent of w_k of variance q_aa − q_axᵀ c (the conditional Gaussian). The initial
-  state is drawn from P0 (stationary for Gauss-Markov states, 0 for random walks). For a
-  diagonal F (the Gauss-Markov, random-walk and flicker terms) each state is one first-order
-  recursion run by :func:`scipy.signal.lfilter` over a whole block with its state carried; a
-  non-diagonal F (the ``shaped`` term's companion form) runs as one transfer function per
-  noise input (exact impulse response, checked); where that form is not accurate to 1e-9 the
-  step-by-step loop is used (exact, slow).
+  state is drawn from P0 (stationary for Gauss-Markov states, 0 for random walks). Stationary
+  first-order states (Gauss-Markov, flicker) join the channel's white stream (next items). A
+  random walk (any diagonal F not stationary from t = 0) is one first-order recursion per state
+  (:func:`scipy.signal.lfilter`; a running sum for φ = 1) over a whole block with its state
+  carried; a non-diagonal F (the ``shaped`` term's companion form, band-limited white) runs as
+  one transfer function per noise input (exact impulse response, checked); where that form is
+  not accurate to 1e-9 the step-by-step loop is used (exact, slow).
 * ``white`` (density N): the mean of white noise of two-sided PSD N² over dt has variance N²/dt
   (increment variance N²·dt, IEEE Std 952 Annex C: Allan variance N²/τ). It shares one Gaussian
   stream with the e_k parts of the state-space terms (independent Gaussians add).
+* **The stationary part in one stream**: white noise, the e_k residuals and every stationary
+  first-order state together are one stationary Gaussian sequence. It is simulated in its
+  *innovations form* (the steady-state Kalman predictor: one white innovation of variance Λ
+  through a filter H(z) with the model's poles, started from its stationary state;
+  :func:`innovations_filter`), which has exactly the model's autocovariance, with one normal
+  deviate per sample instead of one per state; H runs as second-order sections
+  (:func:`scipy.signal.sosfilt`). Built once per channel, it is checked against the model:
+  spectrum and variance within :data:`INNOVATIONS_TOLERANCE` (1e-7; typically 1e-12 to 1e-8,
+  the float64 rounding of the section coefficients), else the channel runs one stream per
+  state. That error is far below what a record resolves: the Allan variance of 10⁹ samples has
+  a relative standard error of 4·10⁻⁵ at best.
 * ``quantization`` (Q): a white error e_k on the integrated output (angle / velocity), of
   variance Q², **uniform** on ±√3·Q as the rounding error of a quantizer is (Q = s/√12 for a
   quantum s). The increment carries e_{k+1} − e_k, the rate sample (e_{k+1} − e_k)/dt; the
@@ -39,7 +51,8 @@ samples is the mean of the continuous output over τ), whatever the rate. Term b
   turn-on (t = 0); the sample k is its mean s·(k + ½)·dt over [k dt, (k+1) dt].
 * ``random_constant`` (σ): one N(0, σ²) draw per run and channel, constant over the record.
 
-The channel's output filter (``bandwidth``, ``filter_order``) is **not** applied: samples are
+The channel's output filter (``bandwidth``, ``filter_order``) is **not** applied (a white term
+that carries its own ``bandwidth`` is simulated through its Butterworth realization): samples are
 period means (equivalent noise bandwidth rate/2, per-sample variance N²·rate). The Allan variance at
 τ ≫ 1/bandwidth does not depend on it.
 
@@ -66,7 +79,18 @@ term) has its own generator from ``SeedSequence(seed, spawn_key=(run, channel, s
 the channel keyed by a CRC-32 of its id (so selecting channels does not change a channel's
 record). Random numbers are drawn in a fixed schedule of internal blocks (FIRST_BLOCK samples,
 doubling up to BLOCK), so the record is bit-for-bit the same whatever the chunk size it is read
-in, and a longer record starts with the shorter one.
+in, and a longer record starts with the shorter one. Channels are generated in parallel
+threads (``threads``); the record does not depend on their number. Normal deviates come from
+the Box-Muller transform of the generator's uniforms (:class:`_Normals`: 2-3× faster than its
+ziggurat ``standard_normal``).
+
+Speed
+-----
+Per sample and channel: one normal deviate for the stationary part (white, Gauss-Markov,
+flicker), one per random-walk or shaped-term noise input, one uniform for quantization, the
+second-order sections of the stationary part, and an FFT for power-law flicker.
+``tests/benchmarks/bench_simulate.py`` prints samples per second for typical model mixes
+(DEVELOPERS.md, Benchmarks).
 """
 
 from __future__ import annotations
@@ -74,6 +98,7 @@ from __future__ import annotations
 import math
 import os
 import pathlib
+import threading
 import zlib
 from collections.abc import Callable, Iterator, Sequence
 from dataclasses import dataclass
@@ -107,6 +132,9 @@ __all__ = [
     "kasdin_coefficients",
     "StepModel",
     "step_model",
+    "InnovationsFilter",
+    "innovations_filter",
+    "INNOVATIONS_TOLERANCE",
 ]
 
 _FloatArray = npt.NDArray[np.float64]
@@ -121,7 +149,8 @@ FIRST_BLOCK = 1 << 10
 _DOUBLINGS = 6  # FIRST_BLOCK << 6 == BLOCK
 
 #: Default largest number of taps of the Kasdin-Walter filter (2^20 ≈ 1.05 M: about 17 min of
-#: 1/f memory at 1 kHz, 2.9 h at 100 Hz; some 50 MB of working memory per flicker channel).
+#: 1/f memory at 1 kHz, 2.9 h at 100 Hz; some 100 MB of working memory per flicker channel
+#: while a block is transformed: FFTs of 4× the filter length).
 DEFAULT_MAX_TAPS = 1 << 20
 
 # Stream slots of one channel: spawn key (run, channel key, slot, index of the term in the
@@ -287,6 +316,42 @@ def _block_size(index: int) -> int:
     return FIRST_BLOCK << index if index < _DOUBLINGS else BLOCK
 
 
+class _Normals:
+    """Independent standard normal deviates from one generator, by the Box-Muller transform.
+
+    G. E. P. Box and M. E. Muller, "A note on the generation of random normal deviates", Ann.
+    Math. Statist. 29(2):610-611, 1958: for independent uniforms u₁ ∈ (0, 1], u₂ ∈ [0, 1),
+    r = √(−2 ln u₁) and θ = 2πu₂ give two independent N(0, 1) deviates r·cos θ and r·sin θ.
+    Here u₁ is a 53-bit float64 uniform (the radius, hence the tails, to double precision:
+    the largest deviate is √(2·53 ln 2) = 8.57, exceeded with probability 1e-17) and u₂ a 24-bit
+    float32 uniform whose cosine and sine are taken in float32 (relative error ~1e-7 of a
+    deviate, far below anything a record of 10⁹ samples resolves); the products are float64.
+    Two to three times faster than :meth:`numpy.random.Generator.standard_normal` (ziggurat);
+    the deviates of the pair go to the two halves of a request, so a request of 2m values uses
+    m float64 then m float32 uniforms from the generator, in that order.
+    """
+
+    _TWO_PI = np.float32(2.0 * np.pi)
+
+    def __init__(self, rng: np.random.Generator) -> None:
+        self._rng = rng
+
+    def normal(self, n: int, scale: float = 1.0) -> _FloatArray:
+        """``n`` independent N(0, scale²) deviates, float64 (a fresh array)."""
+        m = (n + 1) // 2
+        r = self._rng.random(m)
+        np.subtract(1.0, r, out=r)  # (0, 1]: the logarithm stays finite
+        np.log(r, out=r)
+        r *= -2.0 * scale * scale
+        np.sqrt(r, out=r)
+        a = self._rng.random(m, dtype=np.float32)
+        a *= self._TWO_PI
+        out = np.empty(2 * m)
+        np.multiply(r, np.cos(a), out=out[:m])
+        np.multiply(r, np.sin(a), out=out[m:])
+        return out[:n] if n != 2 * m else out
+
+
 class _Source:
     """A contribution to one channel, produced in fixed internal blocks and served in any
     chunk size (so the output does not depend on the chunking)."""
@@ -304,9 +369,10 @@ class _Source:
         self._index += 1
         return self._block(size)
 
-    def take(self, n: int) -> _FloatArray:
-        """The next ``n`` period means [u]."""
-        out = np.empty(n)
+    def take(self, n: int, out: _FloatArray | None = None) -> _FloatArray:
+        """The next ``n`` period means [u] (written into ``out`` when given)."""
+        if out is None:
+            out = np.empty(n)
         filled = 0
         while filled < n:
             if self._pos >= self._buf.size:
@@ -322,12 +388,10 @@ class _Source:
 class _White(_Source):
     def __init__(self, std: float, rng: np.random.Generator) -> None:
         super().__init__()
-        self._std, self._rng = std, rng
+        self._std, self._normals = std, _Normals(rng)
 
     def _block(self, size: int) -> _FloatArray:
-        z = self._rng.standard_normal(size)
-        z *= self._std
-        return z  # a fresh array: take() may still hold the previous block
+        return self._normals.normal(size, self._std)  # fresh: take() may hold the last block
 
 
 class _Quantization(_Source):
@@ -348,15 +412,6 @@ class _Quantization(_Source):
         return np.diff(e) / self._dt
 
 
-class _Constant(_Source):
-    def __init__(self, value: float) -> None:
-        super().__init__()
-        self._value = value
-
-    def _block(self, size: int) -> _FloatArray:
-        return np.full(size, self._value)
-
-
 class _Ramp(_Source):
     def __init__(self, slope: float, dt: float) -> None:
         super().__init__()
@@ -371,14 +426,15 @@ class _Ramp(_Source):
 class _StateSpace(_Source):
     """Exact period means of a realization (see :func:`step_model`)."""
 
-    def __init__(self, ss: Any, sm: StepModel, rng: np.random.Generator) -> None:
+    def __init__(self, ss: Any, sm: StepModel, rng: Any) -> None:
         super().__init__()
-        self._rng = rng
+        # ``rng``: a generator, or anything with ``normal(n)`` (a stand-in in the tests)
+        self._normals = _Normals(rng) if isinstance(rng, np.random.Generator) else rng
         self.residual = sm.residual
         n = sm.phi.shape[0]
         self._n = n
         # initial state from P0 (drawn first, so the stream's layout is fixed)
-        x0 = _sqrt_psd(np.asarray(ss.P0, dtype=float)) @ rng.standard_normal(n)
+        x0 = _sqrt_psd(np.asarray(ss.P0, dtype=float)) @ self._normals.normal(n)
         L = _sqrt_psd(sm.qxx)
         keep = np.flatnonzero(np.any(L != 0.0, axis=0))  # noise directions actually present
         self._L = L[:, keep]
@@ -457,23 +513,39 @@ class _StateSpace(_Source):
     def _block(self, size: int) -> _FloatArray:
         from scipy.signal import lfilter
 
-        z = self._rng.standard_normal((self._m, size))
-        out = np.zeros(size)
+        z = self._normals.normal(self._m * size).reshape(self._m, size)
         if self._diagonal:
             w = None if self._independent else self._L @ z
-            zero = np.zeros(size)
+            acc: _FloatArray | None = None
             for i in range(self._n):
                 if self._independent:
                     j = self._row.get(i)
-                    b, x = (self._bs[i], z[j]) if j is not None else (self._b[i], zero)
+                    b, x = (self._bs[i], z[j]) if j is not None else (self._b[i], None)
                 else:
                     b, x = self._b[i], w[i]  # type: ignore[index]
                 if not (b[0] or b[1] or self._zi[i]):
                     continue
-                y, zf = lfilter(b, self._a[i], x, zi=self._zi[i : i + 1])
-                self._zi[i] = zf[0]
-                out += y
-            return out
+                if x is None:
+                    x = np.zeros(size)  # no noise: the free response only
+                if self._a[i, 1] == -1.0:
+                    # φ = 1 (random walk): the same recursion as a running sum (faster):
+                    # y_k = s_k + b₀x_k, s_{k+1} = s_k + (b₀ + b₁)x_k.
+                    y = np.cumsum(x)
+                    s_end = self._zi[i] + (b[0] + b[1]) * y[-1]
+                    y *= b[0] + b[1]
+                    x *= b[1]
+                    y -= x
+                    y += self._zi[i]
+                    self._zi[i] = s_end
+                else:
+                    y, zf = lfilter(b, self._a[i], x, zi=self._zi[i : i + 1])
+                    self._zi[i] = zf[0]
+                if acc is None:
+                    acc = y
+                else:
+                    acc += y
+            return np.zeros(size) if acc is None else acc
+        out = np.zeros(size)
         if self._tf is not None:
             bs, a, rows, zis = self._tf
             for b, i, zi in zip(bs, rows, zis, strict=True):
@@ -517,14 +589,19 @@ def kasdin_coefficients(alpha: float, n: int) -> _FloatArray:
 class _PowerLaw(_Source):
     """Kasdin-Walter flicker (α = 1, Q_d = B²) by FFT overlap-save of the truncated filter."""
 
-    def __init__(self, coefficient: float, taps: int, rng: np.random.Generator) -> None:
+    def __init__(self, coefficient: float, taps: int, rng: Any) -> None:
         super().__init__()
-        self._rng, self._b, self._taps = rng, coefficient, taps
-        nfft = max(1 << 15, 1 << int(math.ceil(math.log2(2 * taps))))
+        # ``rng``: a generator, or anything with ``normal(n)`` (a stand-in in the tests)
+        self._normals = _Normals(rng) if isinstance(rng, np.random.Generator) else rng
+        self._b, self._taps = coefficient, taps
+        # An FFT of 4× the filter length: 3/4 of each transform is new output (2×: 1/2),
+        # 1.2-1.3× faster per sample for 2^20 taps, measured (tests/benchmarks).
+        nfft = max(1 << 15, 1 << int(math.ceil(math.log2(4 * taps))))
         self._nfft = nfft
         self._m = nfft - (taps - 1)  # new samples per block
         self._H = _kasdin_spectrum(taps, nfft)
-        self._hist = rng.standard_normal(taps - 1)  # fill the filter's memory: stationary start
+        # fill the filter's memory: stationary start
+        self._hist = self._normals.normal(taps - 1)
 
     def _next(self) -> _FloatArray:  # the overlap-save length fixes this source's blocks
         return self._block(self._m)
@@ -534,9 +611,11 @@ class _PowerLaw(_Source):
 
         seg = np.empty(self._nfft)
         seg[: self._taps - 1] = self._hist
-        seg[self._taps - 1 :] = self._rng.standard_normal(self._m)
+        seg[self._taps - 1 :] = self._normals.normal(self._m)
         self._hist = seg[self._nfft - (self._taps - 1) :].copy()
-        y = fft.irfft(fft.rfft(seg) * self._H, self._nfft)[self._taps - 1 :]
+        spec = fft.rfft(seg)
+        spec *= self._H
+        y = fft.irfft(spec, self._nfft, overwrite_x=True)[self._taps - 1 :]
         y *= self._b  # driving variance Q_d = B²: one-sided PSD B²/(πf) (Kasdin-Walter (39))
         return y
 
@@ -558,6 +637,347 @@ def _kasdin_taps(term: Any, rate: float, max_taps: int) -> int:
     return int(max(2, min(max_taps, math.ceil(longest * rate))))
 
 
+# -- the stationary part of a channel in one Gaussian stream ----------------------------------
+
+
+@dataclass(frozen=True)
+class InnovationsFilter:
+    """One channel's stationary Gaussian part as a single innovation stream through a filter.
+
+    The output is ``std · H(z) ε`` with ε unit white and H(z) = Π_k N_k(z⁻¹)/D_k(z⁻¹) the
+    second-order sections ``sos`` (each b₀ = a₀ = 1); the filter's state starts from its
+    stationary law (covariance factor ``init``), so the record is stationary from its first
+    sample.
+
+    Attributes
+    ----------
+    std : float
+        √Λ, the standard deviation of the innovation [u].
+    sos : ndarray, shape (n_sections, 6) or (0, 6)
+        Second-order sections as :func:`scipy.signal.sosfilt` takes them (none: white only).
+    init : ndarray, shape (m, m)
+        A square root of the stationary covariance of the filter's state, in units of the
+        innovation (the state is ``std · init @ z``, z unit normals).
+    state_index : ndarray of int, shape (m,)
+        Positions (in the flattened (n_sections, 2) state) of the m states that can be non-zero.
+    poles, zeros : ndarray
+        The poles (eigenvalues of Φ) and zeros of H (ascending).
+    spectrum_error : float
+        Largest relative difference between the filter's spectrum and the model's, over the
+        check frequencies (from 1/100 of the slowest pole's bandwidth to Nyquist).
+    variance_error : float
+        Relative difference of the filter's stationary output variance and the model's.
+    """
+
+    std: float
+    sos: _FloatArray
+    init: _FloatArray
+    state_index: npt.NDArray[np.intp]
+    poles: _FloatArray
+    zeros: _FloatArray
+    spectrum_error: float
+    variance_error: float
+
+
+#: Accepted relative error of the innovations filter's spectrum against the model's (or the
+#: float64 resolution of the slowest pole, 16 ε/(1 − p), when that is coarser).
+INNOVATIONS_TOLERANCE = 1e-7
+
+
+def innovations_filter(
+    phi: npt.ArrayLike,
+    gamma: npt.ArrayLike,
+    qxx: npt.ArrayLike,
+    c: npt.ArrayLike,
+    white: float,
+) -> InnovationsFilter | None:
+    """The innovations form of a sum of stationary first-order states and white noise.
+
+    The period means of the channel's stationary terms (states with Φ = diag(p), 0 < p < 1,
+    x_{k+1} = Φ x_k + w_k, ȳ_k = γ·x_k + c·w_k + e_k, cov w = Qxx, e white of variance
+    ``white``: the white term and the terms' independent residuals) form a stationary Gaussian
+    sequence with autocovariance C(0) = γΣγᵀ + R, C(j) = γΦ^{j−1}M (Σ = ΦΣΦ + Qxx, R = cᵀQxx c
+    + white, M = ΦΣγᵀ + Qxx c). The steady-state Kalman predictor gives an innovations model
+    x̂_{k+1} = Φx̂_k + Kε_k, ȳ_k = γx̂_k + ε_k, var ε = Λ, whose output has *the same*
+    autocovariance when x̂ starts from its stationary covariance Σ − P, P the stabilizing
+    solution of the discrete algebraic Riccati equation (B. D. O. Anderson and J. B. Moore,
+    "Optimal Filtering", Prentice-Hall 1979, ch. 9; the stationary-covariance identities are
+    checked here). One Gaussian stream then drives the whole stationary part instead of one
+    per state. Its transfer function H(z) = 1 + Σᵢ gᵢ/(z − pᵢ), gᵢ = γᵢKᵢ, has its zeros
+    between consecutive poles (gᵢ > 0); they are found one by one from the secular equation
+    in the offset t = pᵢ − z (relative accuracy), and H runs as second-order sections pairing
+    the slowest remaining pole with the fastest (well separated poles keep the section
+    coefficients well conditioned).
+
+    The filter is checked against the model: its spectrum Λ|H|² against the model's
+    Σ_j C(j) e^{−iωj} at 200 frequencies, and its stationary output variance against C(0).
+
+    Parameters
+    ----------
+    phi : array_like, shape (n,)
+        Pole of each state, e^{−dt/T} (0 < p < 1).
+    gamma : array_like, shape (n,)
+        Mean-output gain of each state.
+    qxx : array_like, shape (n, n)
+        Covariance of the state noise over a step.
+    c : array_like, shape (n,)
+        Regression of the step's output-mean noise on the state noise.
+    white : float
+        Variance of the independent white part of the period mean [u²].
+
+    Returns
+    -------
+    InnovationsFilter or None
+        ``None`` when the construction does not apply (repeated or non-positive weights, a
+        failed check): the caller then simulates state by state.
+    """
+    import scipy.linalg as sl
+    from scipy.optimize import brentq
+
+    p = np.asarray(phi, dtype=float).ravel()
+    g_ = np.asarray(gamma, dtype=float).ravel()
+    Q = np.asarray(qxx, dtype=float)
+    cc = np.asarray(c, dtype=float).ravel()
+    n = p.size
+    empty = np.zeros((0, 6))
+    if n == 0:
+        if not white > 0:
+            return None
+        return InnovationsFilter(
+            math.sqrt(white), empty, np.zeros((0, 0)), np.zeros(0, np.intp),
+            np.zeros(0), np.zeros(0), 0.0, 0.0,
+        )  # fmt: skip
+    if not (np.all(p > 0) and np.all(p < 1) and np.all(np.isfinite(Q))):
+        return None
+    Sigma = Q / (1.0 - np.outer(p, p))
+    S = Q @ cc
+    R = float(cc @ S) + float(white)
+    C0 = float(g_ @ Sigma @ g_) + R
+    M = p * (Sigma @ g_) + S
+    if not (C0 > 0 and R > 0):
+        return None
+    s0 = C0  # scale: the Riccati equation in units of the output variance
+    Ph = np.diag(p)
+    try:
+        P = sl.solve_discrete_are(Ph, g_[:, None], Q / s0, np.array([[R / s0]]), s=S[:, None] / s0)
+    except (np.linalg.LinAlgError, ValueError):
+        return None
+    Sh = Sigma / s0 - P  # stationary covariance of the predictor state, scaled
+    Mn, C0n = M / s0, C0 / s0
+
+    def faurre(sh: _FloatArray) -> tuple[_FloatArray, _FloatArray, float]:
+        lam = C0n - float(g_ @ sh @ g_)
+        k = (Mn - p * (sh @ g_)) / lam
+        return Ph @ sh @ Ph + lam * np.outer(k, k) - sh, k, lam
+
+    # Newton steps on the Riccati equation in Σ − P (its derivative is the closed-loop
+    # Lyapunov operator) polish the solver's result.
+    for _ in range(3):
+        res, K, lam = faurre(Sh)
+        A = Ph - np.outer(K, g_)
+        try:
+            Sh = Sh + sl.solve_discrete_lyapunov(A, res)
+        except (np.linalg.LinAlgError, ValueError):
+            return None
+        Sh = 0.5 * (Sh + Sh.T)
+    _, K, lam = faurre(Sh)
+    if not (lam > 0 and np.all(np.isfinite(K))):
+        return None
+    # Equal poles (e.g. two Gauss-Markov terms of one time constant) act as one.
+    poles, inv = np.unique(p, return_inverse=True)
+    g = np.bincount(inv, weights=g_ * K)
+    m = poles.size
+    if not np.all(g > 0):
+        return None
+
+    def secular(i: int) -> Callable[[float], float]:
+        dp = poles[i] - poles  # exact for neighbouring poles (Sterbenz)
+        others = np.arange(m) != i
+        go, do = g[others], dp[others]
+
+        def h(t: float) -> float:
+            return 1.0 - g[i] / t + float(np.sum(go / (do - t)))
+
+        return h
+
+    zeros = np.empty(m)
+    for i in range(m):
+        h = secular(i)
+        hi = (poles[i] - poles[i - 1]) if i else max(1.0, 4.0 * g[i])
+        lo_t, hi_t = hi * 0.5, hi * 0.5
+        for _ in range(1100):  # h(0+) = −∞, h(hi−) = +∞ (or 1 at −∞ for the first zero)
+            if h(lo_t) < 0:
+                break
+            lo_t *= 0.5
+        else:
+            return None
+        for _ in range(1100):
+            if h(hi_t) > 0:
+                break
+            hi_t = hi - (hi - hi_t) * 0.5 if i else hi_t * 2.0
+        else:
+            return None
+        t = brentq(h, lo_t, hi_t, xtol=1e-300, rtol=4 * np.finfo(float).eps, maxiter=500)
+        zeros[i] = poles[i] - t
+    # Sections: the slowest remaining pole (and its zero) with the fastest one.
+    sections = []
+    i, j = 0, m - 1
+    while i <= j:
+        if i == j:
+            sections.append([1.0, -zeros[i], 0.0, 1.0, -poles[i], 0.0])
+        else:
+            sections.append(
+                [
+                    1.0, -(zeros[i] + zeros[j]), zeros[i] * zeros[j],
+                    1.0, -(poles[i] + poles[j]), poles[i] * poles[j],
+                ]
+            )  # fmt: skip
+        i, j = i + 1, j - 1
+    sos = np.array(sections)
+    # Stationary start: the innovations model's state x̂ has the stationary covariance
+    # Λ K Kᵀ/(1 − p pᵀ) (elementwise: Φ is diagonal). Its free response γΦ^k x̂ = Σ_m u_m p_m^k
+    # (u_m the sum of γ_i x̂_i over the states of pole m) is given to the filter as the state
+    # W u whose zero-input response it is; cov(u)/Λ = g gᵀ/(1 − p pᵀ).
+    one_m = 1.0 - poles
+    cauchy = 1.0 / (one_m[:, None] + poles[:, None] * one_m[None, :])  # 1/(1 − p_m p_l)
+    cov_u = np.outer(g, g) * cauchy
+    var_err = abs(lam * (1.0 + float(np.sum(cov_u))) / C0n - 1.0)
+    mapped = _filter_state_map(sos, poles)
+    if mapped is None:
+        return None
+    W, index = mapped
+    init = W @ _sqrt_psd(0.5 * (cov_u + cov_u.T))
+    # Spectrum check.
+    w = np.geomspace(max(1e-300, 0.01 * float(1.0 - poles[-1])), np.pi, 200)
+    zi = np.exp(-1j * w)
+    model = C0 + 2.0 * np.real(np.sum(g_ * M * zi[:, None] / (1.0 - p * zi[:, None]), axis=1))
+    hz = np.ones(w.size, dtype=complex)
+    for sec in sos:
+        hz *= (1.0 + sec[1] * zi + sec[2] * zi**2) / (1.0 + sec[4] * zi + sec[5] * zi**2)
+    spec_err = float(np.max(np.abs(lam * s0 * np.abs(hz) ** 2 / model - 1.0)))
+    tol = max(INNOVATIONS_TOLERANCE, 16 * np.finfo(float).eps / float(1.0 - poles[-1]))
+    if not (spec_err <= tol and var_err <= tol):
+        return None
+    return InnovationsFilter(
+        std=math.sqrt(lam * s0),
+        sos=sos,
+        init=init,
+        state_index=index,
+        poles=poles,
+        zeros=zeros,
+        spectrum_error=spec_err,
+        variance_error=var_err,
+    )
+
+
+def _filter_state_map(
+    sos: _FloatArray, poles: _FloatArray
+) -> tuple[_FloatArray, npt.NDArray[np.intp]] | None:
+    """The states of ``sosfilt(sos, ·)`` whose zero-input responses are p_m^k, one per pole.
+
+    The filter's state map z' = A z + B ε, y = C z + D ε is read off single filter steps
+    (exact: no accumulation); states that stay zero (the second state of a first-order
+    section) are dropped. Column m of W solves A w = p_m w, C w = 1 (a bordered least-squares
+    problem, accurate to ε/gap with the exact pole, where a general eigen-solver would move
+    close poles by ~ε·cond). Checked: A W = W diag(p) and C W = 1.
+
+    Returns
+    -------
+    (W, index) or None
+        W, shape (live states, poles); index: their positions in the flattened state.
+    """
+    from scipy.signal import sosfilt
+
+    ns = sos.shape[0]
+    dim = 2 * ns
+    A = np.zeros((dim, dim))
+    C = np.zeros(dim)
+    for j in range(dim):
+        z = np.zeros(dim)
+        z[j] = 1.0
+        y, zf = sosfilt(sos, [0.0], zi=z.reshape(ns, 2))
+        A[:, j], C[j] = zf.ravel(), y[0]
+    _, zf = sosfilt(sos, [1.0], zi=np.zeros((ns, 2)))
+    B = zf.ravel()
+    live = np.flatnonzero(np.any(A != 0.0, axis=1) | (B != 0.0))
+    A, B, C = A[np.ix_(live, live)], B[live], C[live]
+    k = live.size
+    if k != poles.size:
+        return None
+    W = np.empty((k, k))
+    rhs = np.zeros(k + 1)
+    rhs[-1] = 1.0
+    for m, pm in enumerate(poles):
+        bordered = np.vstack([A - pm * np.eye(k), C[None, :]])
+        W[:, m] = np.linalg.lstsq(bordered, rhs, rcond=None)[0]
+    scale = float(np.max(np.abs(W)))
+    # (B = W g holds to the rounding of the section coefficients; what that rounding does to
+    # the output is what the caller's spectrum check measures.)
+    err = max(float(np.max(np.abs(A @ W - W * poles))) / scale, float(np.max(np.abs(C @ W - 1.0))))
+    if not (np.all(np.isfinite(W)) and err <= 1e-9):
+        return None
+    return W, live
+
+
+class _Innovations(_Source):
+    """The stationary part of a channel from one normal stream (:func:`innovations_filter`)."""
+
+    def __init__(self, design: InnovationsFilter, rng: Any) -> None:
+        super().__init__()
+        self._normals = _Normals(rng) if isinstance(rng, np.random.Generator) else rng
+        self._std = design.std
+        self._sos = design.sos
+        self._zi: _FloatArray | None = None
+        if design.sos.shape[0]:
+            # initial state from the filter's stationary law (drawn first: fixed layout)
+            z = np.zeros(design.sos.shape[0] * 2)
+            z[design.state_index] = design.init @ self._normals.normal(design.init.shape[0])
+            self._zi = (z * design.std).reshape(-1, 2)
+
+    def _block(self, size: int) -> _FloatArray:
+        from scipy.signal import sosfilt
+
+        e = self._normals.normal(size, self._std)
+        if self._zi is None:
+            return e
+        y, self._zi = sosfilt(self._sos, e, zi=self._zi)
+        return y  # type: ignore[no-any-return]
+
+
+def _is_stationary_diagonal(ss: Any, sm: StepModel) -> bool:
+    """A realization whose states are first-order and stationary from t = 0 (Gauss-Markov,
+    flicker): Φ diagonal with 0 < p < 1, P0 the stationary covariance of the step."""
+    n = sm.phi.shape[0]
+    if n == 0 or np.count_nonzero(sm.phi - np.diag(np.diag(sm.phi))):
+        return False
+    p = np.diag(sm.phi)
+    if not (np.all(p > 0) and np.all(p < 1)):
+        return False
+    sigma = sm.qxx / (1.0 - np.outer(p, p))
+    P0 = np.asarray(ss.P0, dtype=float)
+    return bool(np.allclose(P0, sigma, rtol=1e-9, atol=1e-12 * float(np.max(np.abs(sigma)))))
+
+
+@lru_cache(maxsize=256)
+def _channel_innovations(
+    terms: tuple[Term, ...], sample_rate: float, dt: float, white: float
+) -> InnovationsFilter | None:
+    """:func:`innovations_filter` of the stationary terms of a channel (cached: the runs of an
+    ensemble and the channels with the same terms share it)."""
+    if not terms:
+        return innovations_filter(np.zeros(0), np.zeros(0), np.zeros((0, 0)), np.zeros(0), white)
+    sms = [_term_step(t, sample_rate, dt)[1] for t in terms]
+    from .linear import _block_diag
+
+    return innovations_filter(
+        np.concatenate([np.diag(sm.phi) for sm in sms]),  # type: ignore[union-attr]
+        np.concatenate([sm.gamma for sm in sms]),  # type: ignore[union-attr]
+        _block_diag([sm.qxx for sm in sms]),  # type: ignore[union-attr]
+        np.concatenate([sm.c for sm in sms]),  # type: ignore[union-attr]
+        white,
+    )
+
+
 # -- one channel ------------------------------------------------------------------------------
 
 
@@ -569,17 +989,23 @@ def _term_step(term: Term, sample_rate: float, dt: float) -> tuple[Any, StepMode
     return ss, (step_model(ss.F, ss.G, ss.Qc, ss.H, dt) if ss.n else None)
 
 
-class _ChannelGenerator:
+class _ChannelGenerator(_Source):
+    """One channel: the sum of its sources, block by block on the shared schedule."""
+
     def __init__(
         self, channel: Channel, rate: float, *, seed: int, run: int, flicker: str, max_taps: int
     ) -> None:
         from .terms import Flicker, Quantization, Ramp, RandomConstant, White
 
+        super().__init__()
         dt = 1.0 / rate
         cid = channel.id
-        self.sources: list[_Source] = []
+        self.sources: list[_Source] = []  # on the shared block schedule
+        self.own: list[_Source] = []  # with their own block length (power-law flicker)
+        self.offset = 0.0  # random constants
         white_var = 0.0
         quant = 0.0
+        stationary: list[tuple[int, Term]] = []
         for i, term in enumerate(channel.terms):
             if isinstance(term, White) and not term.band_limited:
                 white_var += term.density**2 / dt
@@ -587,10 +1013,9 @@ class _ChannelGenerator:
                 quant += term.coefficient**2
             elif isinstance(term, RandomConstant):
                 if term.sigma:
-                    value = term.sigma * float(
+                    self.offset += term.sigma * float(
                         _rng(seed, run, cid, _CONST_SLOT, i).standard_normal()
                     )
-                    self.sources.append(_Constant(value))
             elif isinstance(term, Ramp):
                 if term.slope:
                     sign = 1.0 if _rng(seed, run, cid, _RAMP_SLOT, i).random() < 0.5 else -1.0
@@ -598,7 +1023,7 @@ class _ChannelGenerator:
             elif isinstance(term, Flicker) and flicker == "power-law":
                 if term.coefficient:
                     taps = _kasdin_taps(term, rate, max_taps)
-                    self.sources.append(
+                    self.own.append(
                         _PowerLaw(term.coefficient, taps, _rng(seed, run, cid, _TERM_SLOT, i))
                     )
             else:
@@ -607,20 +1032,49 @@ class _ChannelGenerator:
                     white_var += ss.white / dt
                     quant += ss.quantization
                 if ss.n:
-                    src = _StateSpace(ss, sm, _rng(seed, run, cid, _TERM_SLOT, i))
-                    white_var += src.residual
-                    self.sources.append(src)
+                    assert sm is not None
+                    white_var += sm.residual
+                    if _is_stationary_diagonal(ss, sm):
+                        stationary.append((i, term))
+                    else:
+                        self.sources.append(
+                            _StateSpace(ss, sm, _rng(seed, run, cid, _TERM_SLOT, i))
+                        )
         if quant:
             self.sources.append(
                 _Quantization(math.sqrt(quant), dt, _rng(seed, run, cid, _QUANT_SLOT))
             )
-        if white_var:
-            self.sources.append(_White(math.sqrt(white_var), _rng(seed, run, cid, _WHITE_SLOT)))
+        # White noise, the terms' independent residuals and the stationary Gauss-Markov and
+        # flicker states: one innovation stream (module notes), or state by state if the
+        # innovations form does not apply.
+        design = None
+        if white_var or stationary:
+            design = _channel_innovations(
+                tuple(t for _, t in stationary), channel.sample_rate, dt, white_var
+            )
+        if design is not None:
+            self.sources.append(_Innovations(design, _rng(seed, run, cid, _WHITE_SLOT)))
+        else:
+            for i, term in stationary:
+                ss, sm = _term_step(term, channel.sample_rate, dt)
+                self.sources.append(
+                    _StateSpace(ss, sm, _rng(seed, run, cid, _TERM_SLOT, i))  # type: ignore[arg-type]
+                )
+            if white_var:
+                self.sources.append(_White(math.sqrt(white_var), _rng(seed, run, cid, _WHITE_SLOT)))
+        self.innovations = design
 
-    def take(self, n: int) -> _FloatArray:
-        out = np.zeros(n)
-        for s in self.sources:
-            out += s.take(n)
+    def _block(self, size: int) -> _FloatArray:
+        if not self.sources:
+            out = np.zeros(size)
+        else:
+            out = self.sources[0]._block(size)
+            for src in self.sources[1:]:
+                out += src._block(size)
+        for src in self.own:
+            out += src.take(size)
+        if self.offset:
+            out += self.offset
         return out
 
 
@@ -688,6 +1142,32 @@ def _common_rate(model: NoiseModel, rate: float | None) -> float:
     return _check_rate(rates[0], "sample_rate")
 
 
+#: Reads shorter than this many rows run the channels one after the other (thread overhead).
+_THREADED_READ = 4096
+_EXECUTOR: Any = None
+_EXECUTOR_LOCK = threading.Lock()
+
+
+def _available_cores() -> int:
+    try:
+        return len(os.sched_getaffinity(0))
+    except AttributeError:  # pragma: no cover - not on Linux
+        return os.cpu_count() or 1
+
+
+def _executor() -> Any:
+    """The module's worker threads (one per available core), created on first use."""
+    global _EXECUTOR
+    with _EXECUTOR_LOCK:
+        if _EXECUTOR is None:
+            from concurrent.futures import ThreadPoolExecutor
+
+            _EXECUTOR = ThreadPoolExecutor(
+                max_workers=_available_cores(), thread_name_prefix="sensormodel-simulate"
+            )
+        return _EXECUTOR
+
+
 class Simulator:
     """A streaming noise generator for the channels of a model (one run).
 
@@ -710,6 +1190,9 @@ class Simulator:
         Channel ids to simulate (default all).
     max_taps : int
         Largest Kasdin-Walter filter length (``flicker="power-law"``).
+    threads : int, optional
+        Channels generated at once, in threads (default: one per available core, at most one
+        per channel). The record does not depend on it: every channel has its own streams.
 
     Attributes
     ----------
@@ -734,6 +1217,7 @@ class Simulator:
         flicker: str = "realization",
         channels: Sequence[str] | None = None,
         max_taps: int = DEFAULT_MAX_TAPS,
+        threads: int | None = None,
     ) -> None:
         model = model.select(list(channels) if channels else None)
         self.rate = _common_rate(model, rate)
@@ -751,6 +1235,8 @@ class Simulator:
             )
             for c in model.channels
         ]
+        cores = _available_cores() if threads is None else _check_count(threads, "threads")
+        self.threads = max(1, min(cores, len(self._gens)))
 
     @property
     def dt(self) -> float:
@@ -767,11 +1253,17 @@ class Simulator:
         """
         n = _check_count(n, "n", minimum=0)
         out = np.empty((n, len(self._gens)))
-        for j, g in enumerate(self._gens):
-            col = g.take(n)
-            if self.increments:
-                col *= self.dt
-            out[:, j] = col
+        if self.threads > 1 and n >= _THREADED_READ:
+            # numpy's generators, its ufuncs and scipy's filters release the GIL: channels
+            # run in parallel; each is gathered into the (row-major) record by this thread.
+            jobs = [_executor().submit(g.take, n) for g in self._gens]
+            for j, job in enumerate(jobs):
+                out[:, j] = job.result()
+        else:
+            for j, g in enumerate(self._gens):
+                g.take(n, out[:, j])
+        if self.increments:
+            out *= self.dt
         self.position += n
         return out
 
