@@ -65,6 +65,7 @@ from __future__ import annotations
 import math
 from collections.abc import Mapping, Sequence
 from dataclasses import dataclass, field, replace
+from functools import lru_cache
 from typing import Any
 
 import numpy as np
@@ -387,7 +388,7 @@ def _solve_dof(fun: Any, target: float, *, increasing: bool) -> float | None:
         return math.exp(lo)
     if ghi < 0:
         return None
-    return math.exp(brentq(g, lo, hi, xtol=1e-10, rtol=1e-10))
+    return math.exp(brentq(g, lo, hi, xtol=1e-9, rtol=1e-9))
 
 
 def dof_from_interval(low: float, high: float, confidence: float) -> float | None:
@@ -409,6 +410,7 @@ def dof_from_interval(low: float, high: float, confidence: float) -> float | Non
     return _solve_dof(width, ratio, increasing=False) or _MAX_DOF
 
 
+@lru_cache(maxsize=64)
 def dof_for_precision(precision: float, confidence: float) -> float:
     """Degrees of freedom at which the chi-square interval of a deviation has a half-width of
     ``precision`` (a fraction of the estimate): (hi − lo)/2 = precision."""
@@ -1210,6 +1212,12 @@ def verify(
             curve, length = curves[k], lengths[k]
         else:
             curve, length, psd = _analyse(source, k, ax, confidence=confidence)
+            n_seg = len(source.segments.get(next(c for c in source.channels if _key(c) == k), ()))
+            if n_seg > 1:
+                notes.append(
+                    f"{ax.channel_id}: the recording has {n_seg} clean segments; the longest "
+                    f"({length:.6g} s of {source.duration:.6g} s) was analysed"
+                )
         jobs.append((curve, ax, length, psd))
     options = {
         "confidence": confidence,

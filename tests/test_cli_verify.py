@@ -178,16 +178,16 @@ def test_plan_command(runner, examples_dir) -> None:
     assert "not verifiable from a single run" in out
 
 
-def test_plan_precision_changes_length(runner, examples_dir) -> None:
-    a = runner.invoke(cli, ["plan", str(examples_dir / "bw-t900.toml")])
-    b = runner.invoke(cli, ["plan", str(examples_dir / "bw-t900.toml"), "--precision", "0.1"])
+def test_plan_precision_changes_length(runner, sheet) -> None:
+    a = runner.invoke(cli, ["plan", str(sheet)])
+    b = runner.invoke(cli, ["plan", str(sheet), "--precision", "0.1"])
     assert a.exit_code == b.exit_code == 0
     assert a.stdout != b.stdout and "±10 %" in b.stdout
 
 
 @pytest.mark.parametrize("args", [["--precision", "2"], ["--confidence", "0"], ["--rate", "-1"]])
-def test_plan_bad_options(runner, examples_dir, args) -> None:
-    result = runner.invoke(cli, ["plan", str(examples_dir / "bw-t900.toml"), *args])
+def test_plan_bad_options(runner, sheet, args) -> None:
+    result = runner.invoke(cli, ["plan", str(sheet), *args])
     assert result.exit_code == 2 and result.stderr.startswith("error: ")
 
 
@@ -195,3 +195,26 @@ def test_plan_nothing_to_verify(runner, examples_dir) -> None:
     result = runner.invoke(cli, ["plan", str(examples_dir / "bw-g30.toml")])
     assert result.exit_code == 0
     assert "nothing to verify" in result.stdout
+
+
+def test_verify_reads_datasheet_units(runner, sheet, tmp_path) -> None:
+    # The same samples written in deg/s with a gyro_z column name (DESIGN §10 naming) give the
+    # same verdicts and estimates as the SI record: units are converted at the edge only.
+    import numpy as np
+
+    from sensormodel.recording import read_recording
+
+    si = _record(tmp_path, "si.npy", white_factor=4.0, n=2000, seed=6)
+    y = np.asarray(read_recording(si).data["gyro.z"])
+    deg = tmp_path / "deg.csv"
+    rows = "".join(f"{i:d},{float(v) * 180.0 / np.pi!r}\n" for i, v in enumerate(y))
+    deg.write_text("time [s],gyro_z [deg/s]\n" + rows, encoding="utf-8")
+    out_si, out_deg = tmp_path / "si.json", tmp_path / "deg.json"
+    a = runner.invoke(cli, ["verify", str(si), "--spec", str(sheet), "--json", str(out_si)])
+    b = runner.invoke(cli, ["verify", str(deg), "--spec", str(sheet), "--json", str(out_deg)])
+    assert a.exit_code == b.exit_code == 1, (a.output, b.output)
+    ta = _validate(out_si)["channels"][0]["terms"]
+    tb = _validate(out_deg)["channels"][0]["terms"]
+    for x, z in zip(ta, tb, strict=True):
+        assert x["verdict"] == z["verdict"]
+        assert z["estimate"] == pytest.approx(x["estimate"], rel=1e-9)
