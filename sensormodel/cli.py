@@ -455,8 +455,13 @@ def verify_command(recording_file: str, spec_file: str, against: str, confidence
     ds = load_datasheet(spec_file)
     rec = read_recording(recording_file, rate=rate, unit=unit, gaps=gaps,
                          channel_map=_acceptance_channel_map(channel_map) or None)
+    def progress(channel_id: str) -> None:
+        if sys.stderr.isatty():
+            click.echo(f"… analysing {channel_id}", err=True)
+
     result = verify(rec, ds, confidence=confidence, against=against, power=power,
-                    channels=list(only) or None, seed=seed, n_boot=n_boot, workers=2)
+                    channels=list(only) or None, seed=seed, n_boot=n_boot, workers=2,
+                    progress=progress)
     click.echo(verdict_text(result))
     if json_file:
         write_verdict_json(result, json_file, force=force)
