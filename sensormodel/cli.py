@@ -455,6 +455,7 @@ def verify_command(recording_file: str, spec_file: str, against: str, confidence
     ds = load_datasheet(spec_file)
     rec = read_recording(recording_file, rate=rate, unit=unit, gaps=gaps,
                          channel_map=_acceptance_channel_map(channel_map) or None)
+
     def progress(channel_id: str) -> None:
         if sys.stderr.isatty():
             click.echo(f"… analysing {channel_id}", err=True)
