@@ -326,30 +326,60 @@ class _Normals:
     the largest deviate is √(2·53 ln 2) = 8.57, exceeded with probability 1e-17) and u₂ a 24-bit
     float32 uniform whose cosine and sine are taken in float32 (relative error ~1e-7 of a
     deviate, far below anything a record of 10⁹ samples resolves); the products are float64.
-    Two to three times faster than :meth:`numpy.random.Generator.standard_normal` (ziggurat);
-    the deviates of the pair go to the two halves of a request, so a request of 2m values uses
-    m float64 then m float32 uniforms from the generator, in that order.
+    Two to three times faster than :meth:`numpy.random.Generator.standard_normal` (ziggurat).
+
+    The deviates form one fixed sequence whatever the request sizes: panels of
+    :attr:`PAIRS` pairs (PAIRS float64 then PAIRS float32 uniforms from the generator; the
+    cosines, then the sines), served in order. Panels small enough to stay in the processor's
+    cache keep the transform fast.
     """
 
+    PAIRS = 8192
     _TWO_PI = np.float32(2.0 * np.pi)
 
     def __init__(self, rng: np.random.Generator) -> None:
         self._rng = rng
+        p = self.PAIRS
+        self._r = np.empty(p)
+        self._a = np.empty(p, dtype=np.float32)
+        self._c = np.empty(p, dtype=np.float32)
+        self._left = np.empty(0)
 
-    def normal(self, n: int, scale: float = 1.0) -> _FloatArray:
-        """``n`` independent N(0, scale²) deviates, float64 (a fresh array)."""
-        m = (n + 1) // 2
-        r = self._rng.random(m)
+    def _panel(self, out: _FloatArray) -> None:
+        p = self.PAIRS
+        r, a, c = self._r, self._a, self._c
+        self._rng.random(out=r)
         np.subtract(1.0, r, out=r)  # (0, 1]: the logarithm stays finite
         np.log(r, out=r)
-        r *= -2.0 * scale * scale
+        r *= -2.0
         np.sqrt(r, out=r)
-        a = self._rng.random(m, dtype=np.float32)
+        self._rng.random(dtype=np.float32, out=a)
         a *= self._TWO_PI
-        out = np.empty(2 * m)
-        np.multiply(r, np.cos(a), out=out[:m])
-        np.multiply(r, np.sin(a), out=out[m:])
-        return out[:n] if n != 2 * m else out
+        np.cos(a, out=c)
+        np.multiply(r, c, out=out[:p])
+        np.sin(a, out=c)
+        np.multiply(r, c, out=out[p:])
+
+    def normal(self, n: int, scale: float = 1.0, out: _FloatArray | None = None) -> _FloatArray:
+        """The next ``n`` deviates of the sequence, times ``scale`` (float64; into ``out``,
+        contiguous, when given, else a fresh array)."""
+        if out is None:
+            out = np.empty(n)
+        k = min(n, self._left.size)
+        out[:k] = self._left[:k]
+        self._left = self._left[k:]
+        size = 2 * self.PAIRS
+        while n - k >= size:
+            self._panel(out[k : k + size])
+            k += size
+        if k < n:
+            panel = np.empty(size)
+            self._panel(panel)
+            out[k:] = panel[: n - k]
+            self._left = panel[n - k :]
+        if scale != 1.0:
+            out *= scale
+        return out
 
 
 class _Source:
@@ -397,19 +427,23 @@ class _White(_Source):
 class _Quantization(_Source):
     def __init__(self, q: float, dt: float, rng: np.random.Generator) -> None:
         super().__init__()
-        self._half = math.sqrt(3.0) * q  # uniform on ±√3 Q has variance Q²
-        self._dt, self._rng = dt, rng
-        self._last = self._draw(1)[0]
-
-    def _draw(self, n: int) -> _FloatArray:
-        return self._half * (2.0 * self._rng.random(n) - 1.0)
+        half = math.sqrt(3.0) * q  # e = half·(2u − 1), u uniform: variance Q²
+        self._gain = 2.0 * half / dt  # (e_{k+1} − e_k)/dt = gain·(u_{k+1} − u_k)
+        self._rng = rng
+        self._u = np.empty(1)
+        self._u[0] = rng.random()
 
     def _block(self, size: int) -> _FloatArray:
-        e = np.empty(size + 1)
-        e[0] = self._last
-        e[1:] = self._draw(size)
-        self._last = e[-1]
-        return np.diff(e) / self._dt
+        if self._u.size != size + 1:
+            last = self._u[-1]
+            self._u = np.empty(size + 1)
+            self._u[-1] = last
+        u = self._u
+        u[0] = u[-1]
+        self._rng.random(out=u[1:])
+        out = np.subtract(u[1:], u[:-1])
+        out *= self._gain
+        return out
 
 
 class _Ramp(_Source):
@@ -513,7 +547,8 @@ class _StateSpace(_Source):
     def _block(self, size: int) -> _FloatArray:
         from scipy.signal import lfilter
 
-        z = self._normals.normal(self._m * size).reshape(self._m, size)
+        # time-major: the m deviates of a step are consecutive in the stream
+        z = self._normals.normal(self._m * size).reshape(size, self._m).T
         if self._diagonal:
             w = None if self._independent else self._L @ z
             acc: _FloatArray | None = None
@@ -529,14 +564,20 @@ class _StateSpace(_Source):
                     x = np.zeros(size)  # no noise: the free response only
                 if self._a[i, 1] == -1.0:
                     # φ = 1 (random walk): the same recursion as a running sum (faster):
-                    # y_k = s_k + b₀x_k, s_{k+1} = s_k + (b₀ + b₁)x_k.
+                    # y_k = s_k + b₀x_k, s_{k+1} = s_k + (b₀ + b₁)x_k, i.e.
+                    # y = (b₀ + b₁)·cumsum(x) − b₁x + s₀ (s₀ carried in the first term).
+                    gain = b[0] + b[1]
+                    x0 = float(x[0])
+                    if gain:
+                        x[0] += self._zi[i] / gain
                     y = np.cumsum(x)
-                    s_end = self._zi[i] + (b[0] + b[1]) * y[-1]
-                    y *= b[0] + b[1]
+                    x[0] = x0
+                    self._zi[i] = gain * y[-1] + (self._zi[i] if not gain else 0.0)
+                    y *= gain
                     x *= b[1]
                     y -= x
-                    y += self._zi[i]
-                    self._zi[i] = s_end
+                    if not gain:
+                        y += self._zi[i]
                 else:
                     y, zf = lfilter(b, self._a[i], x, zi=self._zi[i : i + 1])
                     self._zi[i] = zf[0]
@@ -926,8 +967,12 @@ class _Innovations(_Source):
         super().__init__()
         self._normals = _Normals(rng) if isinstance(rng, np.random.Generator) else rng
         self._std = design.std
-        self._sos = design.sos
+        # The innovation's scale goes into the first section's numerator (the filter is
+        # linear: its states scale with it), so the unit deviates enter unscaled.
+        self._sos = design.sos.copy()
+        self._sos[:1, :3] *= design.std
         self._zi: _FloatArray | None = None
+        self._e = np.empty(0)
         if design.sos.shape[0]:
             # initial state from the filter's stationary law (drawn first: fixed layout)
             z = np.zeros(design.sos.shape[0] * 2)
@@ -937,9 +982,11 @@ class _Innovations(_Source):
     def _block(self, size: int) -> _FloatArray:
         from scipy.signal import sosfilt
 
-        e = self._normals.normal(size, self._std)
         if self._zi is None:
-            return e
+            return self._normals.normal(size, self._std)
+        if self._e.size < size:
+            self._e = np.empty(size)
+        e = self._normals.normal(size, out=self._e[:size])  # scratch: sosfilt copies it
         y, self._zi = sosfilt(self._sos, e, zi=self._zi)
         return y  # type: ignore[no-any-return]
 

@@ -219,10 +219,14 @@ def test_box_muller_deviates_are_independent_standard_normals():
     #   request) and of their squares: each ≈ N(0, 1/m) for m pairs of independent values
     #   (finite fourth moments);
     # * the tail count #{|z| > 4}: binomial(n, 2·Φ(−4) = 6.334e-5), two-sided band.
+    # (Seed 20240701 gave a KS p-value of 0.006 once the panel length became 8192 pairs, as
+    # happens in one run of 150: over seeds 1000-1149 the KS p-values of 2^21 deviates were
+    # uniform (KS test of the p-values: p = 0.79; 3.3 % below 0.05), like those of numpy's
+    # ziggurat (p = 0.83; 4.7 %); at 2^25 deviates, p = 0.69. The seed below is the next one.)
     from sensormodel.simulate import _Normals
 
     a = FAMILY / 7
-    gen = _Normals(np.random.default_rng(20240701))
+    gen = _Normals(np.random.default_rng(20240702))
     half = 2**20
     z = np.concatenate([gen.normal(half), gen.normal(half)])
     n = z.size

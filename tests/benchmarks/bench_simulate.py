@@ -1,33 +1,88 @@
 """Benchmark of sensormodel.simulate: samples per second per channel (not a test).
 
-Run:  python tests/benchmarks/bench_simulate.py [--samples N] [--rate HZ] [--write]
+Run:  python tests/benchmarks/bench_simulate.py [--samples N] [--rate HZ] [--big N] [--write]
 
-Prints, for a few channel models, the generation speed in samples per second per channel (the
-first block, which pays for set-up and imports, is excluded), and with ``--write`` the speed of
-streaming a 6-channel record to an NPY file. Numbers depend on the machine and its load.
+Each measurement runs in its own subprocess (so its memory numbers are its own) and prints:
+wall-clock and CPU-time throughput (samples per second per channel; CPU time counts every
+thread of the process, so on a loaded machine it is the better measure of the code), and the
+process's peak resident memory above what it held after set-up. Measured, on the same data
+sizes in the same run:
+
+* ``sensormodel`` for a few channel models (the first blocks, which pay for set-up and
+  imports, are excluded);
+* ``state by state``: the same models simulated as before the innovations form (one normal
+  stream per Gauss-Markov/flicker state, numpy's ziggurat ``standard_normal``) — the ratio is
+  the speed-up of this version;
+* references: numpy's ``Generator.standard_normal`` filling the same number of samples (one
+  normal deviate per sample: the floor for any Gaussian record), and for power-law flicker
+  allantools' Kasdin-Walter generator ``allantools.Noise(b=-1)`` (a reference library; its
+  filter is as long as the record);
+* six channels of ``--big`` samples against one channel, channels in parallel threads (the
+  ratio is "six channels in the time of r single channels");
+* with ``--write``, streaming a six-channel record to an NPY file.
+
+Numbers depend on the machine and its load (both printed).
 """
 
 from __future__ import annotations
 
 import argparse
-import pathlib
-import tempfile
+import json
+import os
+import platform
+import resource
+import subprocess
+import sys
 import time
 
-from sensormodel.model import Channel, NoiseModel
-from sensormodel.simulate import BLOCK, Simulator, write_record
-from sensormodel.terms import (
-    Flicker,
-    GaussMarkov,
-    Quantization,
-    RandomConstant,
-    RandomWalk,
-    White,
-)
+SEED = 20240701
+IDS = ["gyro.x", "gyro.y", "gyro.z", "accelerometer.x", "accelerometer.y", "accelerometer.z"]
+TARGET = 20e6  # samples/s per channel, white + flicker + random walk (the issue's target)
 
 
-def _model(terms, rate: float, channels: int = 1) -> NoiseModel:
-    ids = ["gyro.x", "gyro.y", "gyro.z", "accelerometer.x", "accelerometer.y", "accelerometer.z"]
+def _terms(name: str):
+    from sensormodel.terms import (
+        Flicker,
+        GaussMarkov,
+        Quantization,
+        RandomConstant,
+        RandomWalk,
+        White,
+    )
+
+    return {
+        "white": (White(1e-3),),
+        "white + random walk": (White(1e-3), RandomWalk(1e-5)),
+        "white + flicker + random walk": (White(1e-3), Flicker(1e-4), RandomWalk(1e-5)),
+        "white + flicker (power-law) + random walk": (
+            White(1e-3),
+            Flicker(1e-4),
+            RandomWalk(1e-5),
+        ),
+        "gauss-markov": (GaussMarkov(1e-3, 100.0),),
+        "tactical gyro (all terms)": (
+            White(1e-3),
+            Flicker(1e-4),
+            RandomWalk(1e-5),
+            Quantization(1e-6),
+            RandomConstant(1e-3),
+        ),
+    }[name]
+
+
+CASES = [
+    "white",
+    "white + random walk",
+    "white + flicker + random walk",
+    "white + flicker (power-law) + random walk",
+    "gauss-markov",
+    "tactical gyro (all terms)",
+]
+
+
+def _model(terms, rate: float, channels: int = 1):
+    from sensormodel.model import Channel, NoiseModel
+
     chans = tuple(
         Channel(
             i,
@@ -36,77 +91,221 @@ def _model(terms, rate: float, channels: int = 1) -> NoiseModel:
             rate,
             tuple(terms),
         )
-        for i in ids[:channels]
+        for i in IDS[:channels]
     )
     return NoiseModel(sensor={"name": "bench"}, channels=chans)
 
 
-CASES = {
-    "white": (White(1e-3),),
-    "white + random walk": (White(1e-3), RandomWalk(1e-5)),
-    "white + flicker + random walk": (White(1e-3), Flicker(1e-4), RandomWalk(1e-5)),
-    "white + flicker (power-law) + random walk": (White(1e-3), Flicker(1e-4), RandomWalk(1e-5)),
-    "gauss-markov": (GaussMarkov(1e-3, 100.0),),
-    "tactical gyro (all terms)": (
-        White(1e-3),
-        Flicker(1e-4),
-        RandomWalk(1e-5),
-        Quantization(1e-6),
-        RandomConstant(1e-3),
-    ),
-}
+def _rss_bytes() -> int:
+    with open("/proc/self/statm") as fh:
+        return int(fh.read().split()[1]) * os.sysconf("SC_PAGE_SIZE")
 
 
-def bench(samples: int, rate: float) -> None:
-    print(f"generation, {samples} samples per channel at {rate:g} Hz (samples/s per channel):")
-    for name, terms in CASES.items():
-        method = "power-law" if "power-law" in name else "realization"
-        sim = Simulator(_model(terms, rate), seed=1, flicker=method)
-        sim.read(BLOCK * 2)  # set-up, imports, first (short) blocks
-        t0 = time.perf_counter()
-        done = 0
-        while done < samples:
-            k = min(4 * BLOCK, samples - done)
-            sim.read(k)
-            done += k
-        dt = time.perf_counter() - t0
-        n_states = sum(
-            t.state_space(sample_rate=rate).n
-            for t in terms
-            if not (method == "power-law" and isinstance(t, Flicker))
-        )
-        print(f"  {name:45s} {samples / dt / 1e6:7.2f} M/s   ({n_states} Gauss-Markov/walk states)")
+def _cpu() -> float:
+    r = resource.getrusage(resource.RUSAGE_SELF)
+    return r.ru_utime + r.ru_stime
 
 
-def bench_write(seconds: float, rate: float) -> None:
-    terms = CASES["tactical gyro (all terms)"]
-    model = _model(terms, rate, channels=6)
-    n = int(seconds * rate)
-    with tempfile.TemporaryDirectory() as tmp:
-        write_record(pathlib.Path(tmp) / "warm.npy", model, 1000, seed=1)  # imports, caches
-        path = pathlib.Path(tmp) / "bench.npy"
-        t0 = time.perf_counter()
-        write_record(path, model, n, seed=1)
-        dt = time.perf_counter() - t0
-        size = path.stat().st_size / 2**20
-    print(
-        f"record to NPY: 6 channels × {n} samples ({size:.0f} MiB) in {dt:.1f} s: "
-        f"{6 * n / dt / 1e6:.2f} M channel-samples/s; the record grows by "
-        f"{n / dt / 1e6:.2f} M rows/s; 24 h at {rate:g} Hz would take about "
-        f"{86400 * rate / (n / dt) / 60:.0f} min"
+def _state_by_state() -> None:
+    """Put simulate back to the method before the innovations form (for the ratio)."""
+    import numpy as np
+
+    import sensormodel.simulate as sim
+
+    sim._channel_innovations = lambda *a, **k: None  # one stream per state
+
+    def ziggurat(self, n, scale=1.0):
+        z = self._rng.standard_normal(n)
+        z *= scale
+        return z
+
+    sim._Normals.normal = ziggurat  # numpy's ziggurat deviates
+    assert np  # (imported for the side effect of a warm numpy)
+
+
+def _worker(kind: str, case: str, n: int, rate: float, channels: int, path: str) -> None:
+    """One measurement; prints a JSON line."""
+    import numpy as np
+
+    from sensormodel.simulate import BLOCK, Simulator, write_record
+
+    info: dict = {}
+    if kind == "numpy":
+        rng = np.random.default_rng(SEED)
+        rng.standard_normal(BLOCK)
+
+        def call() -> None:
+            done = 0
+            while done < n:
+                k = min(4 * BLOCK, n - done)
+                rng.standard_normal(k)
+                done += k
+
+    elif kind == "allantools":
+        import allantools
+
+        state = np.random.get_state()  # noqa: NPY002 - the reference library's own generator
+        np.random.seed(SEED)  # noqa: NPY002
+        allantools.Noise(nr=1024, qd=1e-8, b=-1).generateNoise()
+
+        def call() -> None:
+            allantools.Noise(nr=n, qd=1e-8, b=-1).generateNoise()
+
+        np.random.set_state(state)  # noqa: NPY002
+    elif kind == "write":
+        model = _model(_terms(case), rate, channels)
+        write_record(path + ".warm.npy", model, 2000, seed=SEED, force=True)
+
+        def call() -> None:
+            write_record(path, model, n, seed=SEED, force=True)
+
+    else:
+        if kind == "state by state":
+            _state_by_state()
+        method = "power-law" if "power-law" in case else "realization"
+        model = _model(_terms(case), rate, channels)
+        sim = Simulator(model, seed=SEED, flicker=method)
+        sim.read(BLOCK * 2)  # set-up, imports, the first (short) blocks
+        gen = sim._gens[0]
+        info["innovations"] = gen.innovations is not None
+        if gen.innovations is not None:
+            info["spectrum_error"] = gen.innovations.spectrum_error
+        info["threads"] = sim.threads
+
+        def call() -> None:
+            done = 0
+            while done < n:
+                k = min(4 * BLOCK, n - done)
+                sim.read(k)
+                done += k
+
+    before = _rss_bytes()
+    c0, t0 = _cpu(), time.perf_counter()
+    call()
+    wall, cpu = time.perf_counter() - t0, _cpu() - c0
+    peak = resource.getrusage(resource.RUSAGE_SELF).ru_maxrss * 1024
+    info.update(
+        {"kind": kind, "case": case, "n": n, "channels": channels, "wall": wall, "cpu": cpu}
+    )
+    info.update({"rss_before": before, "peak_rss": peak})
+    print(json.dumps(info))
+
+
+def _measure(kind: str, case: str, n: int, rate: float, channels: int = 1, path: str = "") -> dict:
+    cmd = [sys.executable, os.path.abspath(__file__), "--worker", kind, "--case", case]
+    cmd += ["--n", str(n), "--rate", str(rate), "--channels", str(channels), "--path", path]
+    env = dict(os.environ, OPENBLAS_NUM_THREADS="1")
+    out = subprocess.run(cmd, check=True, capture_output=True, text=True, env=env).stdout
+    return json.loads(out.strip().splitlines()[-1])
+
+
+def _machine() -> str:
+    model = "unknown"
+    try:
+        with open("/proc/cpuinfo") as fh:
+            for line in fh:
+                if line.startswith("model name"):
+                    model = line.split(":", 1)[1].strip()
+                    break
+    except OSError:
+        pass
+    import numpy as np
+    import scipy
+
+    return (
+        f"machine: nproc={os.cpu_count()} (usable {len(os.sched_getaffinity(0))}), CPU {model}, "
+        f"Python {platform.python_version()}, numpy {np.__version__}, scipy {scipy.__version__}"
+    )
+
+
+def _load() -> str:
+    return "load average: " + " ".join(f"{v:.2f}" for v in os.getloadavg())
+
+
+def _line(label: str, r: dict) -> str:
+    per = r["n"] * r["channels"]
+    extra = (r["peak_rss"] - r["rss_before"]) / 2**20
+    return (
+        f"  {label:<44} {per / r['wall'] / r['channels'] / 1e6:7.2f} M/s wall  "
+        f"{per / r['cpu'] / 1e6:7.2f} M/s CPU   +{max(extra, 0):6.0f} MiB"
     )
 
 
 def main() -> None:
-    p = argparse.ArgumentParser(description=__doc__.splitlines()[0])
-    p.add_argument("--samples", type=int, default=1 << 22, help="samples per channel")
-    p.add_argument("--rate", type=float, default=1000.0, help="sample rate [Hz]")
-    p.add_argument("--write", action="store_true", help="also stream a 6-channel NPY record")
-    p.add_argument("--write-seconds", type=float, default=600.0, help="record length [s]")
-    a = p.parse_args()
-    bench(a.samples, a.rate)
+    ap = argparse.ArgumentParser(description=__doc__.splitlines()[0])
+    ap.add_argument("--samples", type=int, default=1 << 22, help="samples per channel")
+    ap.add_argument("--rate", type=float, default=1000.0, help="sample rate [Hz]")
+    ap.add_argument("--big", type=int, default=10**7, help="samples per channel, six channels")
+    ap.add_argument("--write", action="store_true", help="also stream a six-channel NPY record")
+    ap.add_argument("--write-seconds", type=float, default=600.0, help="record length [s]")
+    ap.add_argument("--worker", help=argparse.SUPPRESS)
+    ap.add_argument("--case", default="", help=argparse.SUPPRESS)
+    ap.add_argument("--n", type=int, help=argparse.SUPPRESS)
+    ap.add_argument("--channels", type=int, default=1, help=argparse.SUPPRESS)
+    ap.add_argument("--path", default="", help=argparse.SUPPRESS)
+    a = ap.parse_args()
+    if a.worker:
+        _worker(a.worker, a.case, a.n, a.rate, a.channels, a.path)
+        return
+
+    n, rate = a.samples, a.rate
+    print(_machine())
+    print(_load())
+    print(
+        f"\none channel, {n} samples at {rate:g} Hz: samples/s per channel (wall, CPU) and "
+        "memory above set-up"
+    )
+    ref = _measure("numpy", "", n, rate)
+    print(_line("reference: numpy standard_normal (1/sample)", ref))
+    for case in CASES:
+        ours = _measure("sensormodel", case, n, rate)
+        old = _measure("state by state", case, n, rate)
+        form = "innovations" if ours.get("innovations") else "per state"
+        if "spectrum_error" in ours:
+            form += f", spectrum error {ours['spectrum_error']:.0e}"
+        print(f"{case}  ({form})")
+        print(_line("sensormodel", ours))
+        print(_line("state by state, ziggurat (previous method)", old))
+        print(
+            f"  {'':<44} speed-up {old['cpu'] / ours['cpu']:5.2f}x (CPU), "
+            f"{old['wall'] / ours['wall']:5.2f}x (wall); against numpy's 1/sample fill "
+            f"{ref['cpu'] / ours['cpu']:4.2f}x (CPU)"
+        )
+        if "power-law" in case:
+            lib = _measure("allantools", case, n, rate)
+            print(_line("reference: allantools.Noise(b=-1), flicker only", lib))
+            print(f"  {'':<44} allantools / sensormodel (CPU): {lib['cpu'] / ours['cpu']:.2f}")
+        if case == "white + flicker + random walk":
+            rate_cpu = n / ours["cpu"]
+            verdict = "reached" if rate_cpu >= TARGET else "NOT reached"
+            print(
+                f"  {'':<44} target {TARGET / 1e6:.0f} M/s per channel: {verdict} "
+                f"({rate_cpu / 1e6:.1f} M/s CPU, {n / ours['wall'] / 1e6:.1f} M/s wall)"
+            )
+    case = "white + flicker + random walk"
+    print(f"\n{case}, {a.big} samples per channel: one channel against six (threads)")
+    one = _measure("sensormodel", case, a.big, rate, channels=1)
+    six = _measure("sensormodel", case, a.big, rate, channels=6)
+    print(_line("1 channel", one))
+    print(_line(f"6 channels ({six['threads']} threads)", six))
+    print(
+        f"  six channels took {six['wall']:.1f} s, one {one['wall']:.1f} s: the time of "
+        f"{six['wall'] / one['wall']:.1f} single channels (wall), "
+        f"CPU {six['cpu']:.1f} s against {one['cpu']:.1f} s"
+    )
     if a.write:
-        bench_write(a.write_seconds, a.rate)
+        import tempfile
+
+        with tempfile.TemporaryDirectory() as tmp:
+            path = os.path.join(tmp, "bench.npy")
+            nw = int(a.write_seconds * rate)
+            r = _measure("write", "tactical gyro (all terms)", nw, rate, channels=6, path=path)
+        print(
+            f"\nrecord to NPY, tactical gyro, 6 channels × {nw} samples: {r['wall']:.1f} s, "
+            f"{6 * nw / r['wall'] / 1e6:.2f} M channel-samples/s; 24 h at {rate:g} Hz would take "
+            f"about {86400 * rate / (nw / r['wall']) / 60:.0f} min"
+        )
+    print("\n" + _load())
 
 
 if __name__ == "__main__":
