@@ -1071,3 +1071,166 @@ def shape_command(spectrum_file: str, output: str, channel_id: str | None, rate:
         click.echo(f"fit error over {fit.n_points} points: rms {fit.rms_db:.3g} dB, "
                    f"worst {fit.max_db:.3g} dB")
     click.echo(f"wrote {output}: channel {channel_id} with a shaped term")
+
+
+# --- identify (recording.py reads, allan.py computes, identify.py fits) ------------------------
+
+
+def _identify_rows(ident: Any) -> list[list[str]]:
+    """Table rows of one identified channel: SI value, readable value, interval, reading."""
+    from .quantities import DISPLAY_UNITS, convert_from_si, format_value, kind_of
+    from .terms import TERM_TYPES
+
+    rows = []
+    for ft in ident.terms:
+        rel = TERM_TYPES[ft.term].units[ft.parameter]
+        kind = None
+        if ident.unit not in ("", "1"):
+            try:
+                kind = kind_of(rel.replace("u", f"({ident.unit})"))
+            except Exception:  # a recorded unit without a kind: SI only
+                kind = None
+        si_unit = rel.replace("u", ident.unit if ident.unit not in ("", "1") else "(as recorded)")
+
+        def shown(v: float, kind: str | None = kind) -> str:
+            if kind is None or kind not in DISPLAY_UNITS:
+                return ""
+            unit, label = DISPLAY_UNITS[kind]
+            return format_value(convert_from_si(v, kind, unit), label)
+
+        reading = "" if ft.slope_reading is None else format_value(ft.slope_reading)
+        flag = "disagrees" if ft.disagrees else ""
+        rows.append([
+            ft.term,
+            f"{format_value(ft.estimate)} {si_unit}",
+            shown(ft.estimate),
+            f"[{format_value(ft.low)}, {format_value(ft.high)}]",
+            f"[{shown(ft.low)}, {shown(ft.high)}]" if kind else "",
+            "yes" if ft.supported else "no",
+            reading,
+            flag,
+        ])
+    return rows
+
+
+def _identify_table(ident: Any) -> str:
+    head = ["term", "estimate (SI)", "readable", f"{100 * ident.confidence:g} % interval (SI)",
+            "interval (readable)", "supported", "slope reading (SI)", "flag"]
+    rows = _identify_rows(ident)
+    widths = [max(len(h), *(len(r[i]) for r in rows)) for i, h in enumerate(head)]
+    lines = ["  " + "  ".join(h.ljust(w) for h, w in zip(head, widths, strict=True)).rstrip()]
+    for r in rows:
+        lines.append("  " + "  ".join(v.ljust(w) for v, w in zip(r, widths, strict=True)).rstrip())
+    return "\n".join(lines)
+
+
+@cli.command("identify", context_settings=_CONTEXT)
+@click.argument("recording_file", metavar="REC", type=click.Path(dir_okay=False))
+@click.option("-o", "--output", "output", required=True, type=click.Path(dir_okay=False),
+              metavar="MODEL.json", help="The noise-model JSON file to write (supported terms, "
+              "each with its interval).")
+@click.option("--terms", "terms", default="quantization,white,flicker,random_walk,ramp",
+              show_default=True, metavar="T1,T2,...",
+              help="Terms to fit, from quantization, white, flicker, gauss_markov, random_walk, "
+                   "ramp (gauss_markov only when asked for).")
+@click.option("--confidence", type=float, default=0.9, show_default=True,
+              help="Two-sided confidence of the coefficient intervals (not of the Allan "
+                   "deviation's).")
+@click.option("--rate", type=float, default=None, metavar="HZ",
+              help="Sample rate [Hz] when the file has no time column (must agree if it has).")
+@click.option("--unit", "units", multiple=True, metavar="U|COLUMN=U",
+              help="Unit of the columns that give none (--unit deg/s), or of one column "
+                   "(--unit gyro_x=mdps, repeatable).")
+@click.option("--increments/--rates", "increments", default=None,
+              help="Samples are angle/velocity increments per sample period (default: as the "
+                   "file states, else rates).")
+@click.option("--channel", "channel_map", multiple=True, metavar="COLUMN=ID",
+              help="Map a column to a channel id, e.g. --channel rate_z=gyro.z (repeatable).")
+@click.option("--taus", default=None, metavar="SPEC",
+              help="Averaging times of the fitted curve: octave (default), decade, N/decade, or "
+                   "T1,T2,... seconds.")
+@click.option("--bootstrap", "n_boot", type=click.IntRange(min=1), default=None, metavar="N",
+              help="Bootstrap records per channel for the intervals (default 200, more for a "
+                   "confidence above 0.98; more: steadier interval ends, slower).")
+@click.option("--seed", type=click.IntRange(min=0), default=0, show_default=True,
+              help="Seed of the bootstrap (the same seed gives the same intervals).")
+@_force_option
+@guarded
+def identify_command(recording_file: str, output: str, terms: str, confidence: float,
+                     rate: float | None, units: tuple[str, ...], increments: bool | None,
+                     channel_map: tuple[str, ...], taus: str | None, n_boot: int | None,
+                     seed: int, force: bool) -> None:
+    """Fit noise terms to the overlapping Allan variance of each channel of a recording, with
+    intervals from a parametric bootstrap, and write them as a noise model.
+
+    The fit is non-negative weighted least squares on the Allan variance with the exact form of
+    each term; terms the data cannot tell from zero are reported but left out of the model.
+    Beside each fit the classical slope reading (IEEE Std 952 Annex C: white at τ = 1 s,
+    random walk at τ = 3 s, flicker from the floor) is shown and flagged where it falls outside
+    the interval. The model file is a normal noise model (inspect, simulate, export read it).
+
+    \b
+    Example:
+      sensormodel identify static.csv -o static-model.json
+      sensormodel identify log.tsv --channel rate_z=gyro.z --unit rate_z=deg/s --rate 400 \\
+          --terms white,flicker,random_walk -o unit42.json
+    """
+    import pathlib
+
+    from ._io import check_writable
+    from .allan import overlapping
+    from .errors import AnalysisError
+    from .identify import fit, to_model
+    from .quantities import format_value
+    from .recording import read_recording
+
+    check_writable(output, force=force)
+    taus_spec = _taus_option(taus)
+    bar = _StderrBar("reading")
+    try:
+        rec = read_recording(recording_file, rate=rate, unit=_unit_option(units),
+                             increments=increments, channel_map=_channel_option(channel_map),
+                             progress=bar)
+    finally:
+        bar.close()
+    for f in rec.findings:
+        where = f"{rec.source}:{f.where}" if f.where else rec.source
+        click.echo(f"note: {where}: {f.detail}", err=True)
+    results = []
+    bar = _StderrBar("bootstrap")
+    try:
+        for j, ch in enumerate(rec.channels):
+            seg = rec.segments[ch][0]
+            curve = overlapping(rec.data[ch][seg.start:seg.stop], rec.rate, taus=taus_spec,
+                                unit=rec.units[ch], channel=ch)
+
+            def progress(done: int, total: int, j: int = j) -> None:
+                bar(j * total + done, len(rec.channels) * total)
+
+            try:
+                results.append(fit(curve, terms=terms, confidence=confidence, seed=seed,
+                                   n_boot=n_boot, progress=progress))
+            except AnalysisError as exc:  # name the option rather than the argument
+                option = {"terms": "--terms", "confidence": "--confidence",
+                          "n_boot": "--bootstrap"}.get(exc.field or "")
+                if option is None:
+                    raise exc.located(source=rec.source) from None
+                raise AnalysisError(exc.problem, exc.expected, field=option) from None
+    finally:
+        bar.close()
+    model = to_model(results, sensor={"name": f"identified from {pathlib.Path(rec.source).name}"},
+                     source=rec.source)
+    for n, ident in enumerate(results):
+        if n:
+            click.echo("")
+        click.echo(f"{ident.channel} [{ident.unit}]: {ident.n_samples} samples at "
+                   f"{format_value(ident.sample_rate, 'Hz')} ({_format_time(ident.duration)}), "
+                   f"{ident.n_boot} bootstrap records")
+        click.echo(_identify_table(ident))
+        for note in ident.notes:
+            click.echo(f"  note: {note}")
+    model.save(output, force=force)
+    kept = sum(len(c.terms) for c in model.channels)
+    left = sum(1 for i in results for t in i.terms if not t.supported)
+    click.echo(f"wrote {output}: {len(model.channels)} channels, {kept} terms"
+               + (f" ({left} not supported, left out)" if left else ""))

@@ -1,0 +1,154 @@
+"""`sensormodel identify` through click's CliRunner.
+
+The recording is written here with plain numpy (white noise of density N: normal samples of
+std N·√rate, IEEE Std 952 Annex C; a random walk of density K: cumulative sum of N(0, K² dt)
+steps). Bad input: exit code 2, one line ``error: ...`` on stderr, no traceback, no output file
+(DESIGN §6/§8).
+"""
+
+from __future__ import annotations
+
+import json
+import math
+import pathlib
+
+import jsonschema
+import numpy as np
+import pytest
+
+from sensormodel.cli import cli
+from sensormodel.identify import fit_recording
+from sensormodel.model import NoiseModel
+from sensormodel.recording import read_recording
+
+SCHEMAS = pathlib.Path(__file__).resolve().parent.parent / "schemas"
+RATE = 50.0
+#: White density 0.01 °/s/√Hz-like in deg/s·√s, random walk 0.002 deg/s/√s (arbitrary, SI below).
+WHITE_DEG = 0.02
+RW_DEG = 0.004
+
+
+def _write_csv(path: pathlib.Path, n: int = 1 << 13, seed: int = 3) -> pathlib.Path:
+    rng = np.random.default_rng(seed)
+    x = rng.standard_normal(n) * WHITE_DEG * math.sqrt(RATE)
+    x += np.cumsum(rng.standard_normal(n)) * RW_DEG / math.sqrt(RATE)
+    z = rng.standard_normal(n) * WHITE_DEG * math.sqrt(RATE)
+    with open(path, "w", encoding="utf-8") as fh:
+        fh.write("time [s],gyro_x [deg/s],rate_z [deg/s]\n")
+        for i in range(n):
+            fh.write(f"{i / RATE!r},{float(x[i])!r},{float(z[i])!r}\n")
+    return path
+
+
+@pytest.fixture(scope="module")
+def recording(tmp_path_factory) -> pathlib.Path:
+    return _write_csv(tmp_path_factory.mktemp("rec") / "static.csv")
+
+
+ARGS = ["--channel", "rate_z=gyro.z", "--bootstrap", "60", "--seed", "4"]
+
+
+@pytest.fixture(scope="module")
+def identified(recording, tmp_path_factory):
+    from click.testing import CliRunner
+
+    try:
+        runner = CliRunner(mix_stderr=False)  # type: ignore[call-arg]
+    except TypeError:
+        runner = CliRunner()
+    out = tmp_path_factory.mktemp("out") / "model.json"
+    result = runner.invoke(cli, ["identify", str(recording), "-o", str(out), *ARGS])
+    return result, out
+
+
+def assert_refused(result, prefix: str, *, leftovers=()) -> str:
+    """Exit 2, exactly one stderr line starting with ``prefix``, no traceback, nothing written."""
+    assert result.exit_code == 2, (result.exit_code, result.output)
+    lines = result.stderr.splitlines()
+    assert len(lines) == 1, result.stderr
+    assert lines[0].startswith(prefix), (lines[0], prefix)
+    assert "Traceback" not in result.output
+    for path in leftovers:
+        assert not path.exists(), path
+    return lines[0]
+
+
+def test_identify_writes_a_noise_model(identified, recording) -> None:
+    result, out = identified
+    assert result.exit_code == 0, result.output
+    doc = json.loads(out.read_text(encoding="utf-8"))
+    schema = json.loads((SCHEMAS / "noise-model.schema.json").read_text(encoding="utf-8"))
+    jsonschema.Draft202012Validator(schema).validate(doc)
+    assert doc["provenance"]["from"] == "recording"
+    model = NoiseModel.load(out)
+    assert model.channel_ids == ["gyro.x", "gyro.z"]
+    for ch in model.channels:
+        assert ch.unit == "rad/s" and ch.quantity == "angular_rate" and ch.sample_rate == RATE
+        for term in ch.terms:
+            unc = term.to_dict()["uncertainty"]
+            assert set(unc) == {"low", "high", "confidence"} and unc["confidence"] == 0.9
+            value = next(iter(term.parameters().values()))
+            assert unc["low"] <= value <= unc["high"]
+    # the CLI writes what the library computes (same seed, same bootstrap size)
+    rec = read_recording(recording, channel_map={"rate_z": "gyro.z"})
+    library = fit_recording(rec, seed=4, n_boot=60)
+    assert model.channel("gyro.x") == library[0].to_channel()
+    assert model.channel("gyro.z") == library[1].to_channel()
+    # white noise in deg/s·√s → rad/√s (the true value lies in the 90 % interval)
+    white = model.channel("gyro.x").term("white")
+    true = WHITE_DEG * math.pi / 180.0
+    assert white.meta["uncertainty"]["low"] <= true <= white.meta["uncertainty"]["high"]
+
+
+def test_identify_prints_a_table_per_channel(identified) -> None:
+    result, out = identified
+    text = result.stdout
+    assert text.count("bootstrap records") == 2
+    assert "gyro.x [rad/s]: 8192 samples at 50 Hz" in text
+    header = next(line for line in text.splitlines() if line.strip().startswith("term"))
+    for column in ("estimate (SI)", "readable", "90 % interval (SI)", "supported",
+                   "slope reading (SI)", "flag"):
+        assert column in header
+    white_row = next(line for line in text.splitlines() if line.strip().startswith("white"))
+    assert "°/√h" in white_row and " yes " in white_row
+    assert text.rstrip().splitlines()[-1].startswith(f"wrote {out}: 2 channels")
+
+
+def test_identified_model_feeds_inspect_simulate_export(identified, runner, tmp_path) -> None:
+    _, out = identified
+    r = runner.invoke(cli, ["inspect", str(out)])
+    assert r.exit_code == 0, r.output
+    assert "gyro.x" in r.stdout and "white" in r.stdout
+    rec = tmp_path / "sim.csv"
+    r = runner.invoke(cli, ["simulate", str(out), "--duration", "10 s", "--seed", "1",
+                            "-o", str(rec)])
+    assert r.exit_code == 0, r.output
+    assert rec.exists()
+    exp = tmp_path / "disc.json"
+    r = runner.invoke(cli, ["export", str(out), "--dt", "0.02 s", "--format", "json",
+                            "-o", str(exp)])
+    assert r.exit_code == 0, r.output
+    assert json.loads(exp.read_text(encoding="utf-8"))["schema"] == "sensormodel/discrete-model/1"
+
+
+def test_identify_refuses_bad_input(recording, runner, tmp_path) -> None:
+    out = tmp_path / "m.json"
+    r = runner.invoke(cli, ["identify", str(tmp_path / "missing.csv"), "-o", str(out)])
+    assert_refused(r, "error: ", leftovers=[out])
+    r = runner.invoke(cli, ["identify", str(recording), "-o", str(out), "--terms", "white,bias"])
+    line = assert_refused(r, "error: --terms: unknown term 'bias'", leftovers=[out])
+    assert "expected one of quantization, white, flicker" in line
+    r = runner.invoke(cli, ["identify", str(recording), "-o", str(out), "--confidence", "1.2"])
+    assert_refused(r, "error: --confidence: got 1.2", leftovers=[out])
+    r = runner.invoke(cli, ["identify", str(recording), "-o", str(out), "--bootstrap", "5"])
+    assert_refused(r, "error: --bootstrap: got 5; expected at least 40", leftovers=[out])
+    short = _write_csv(tmp_path / "short.csv", n=20)
+    r = runner.invoke(cli, ["identify", str(short), "-o", str(out)])
+    assert_refused(
+        r, f"error: {short}:gyro.x: the curve of the 20-sample record has 4 τ for 5 terms",
+        leftovers=[out],
+    )
+    out.write_text("{}", encoding="utf-8")
+    r = runner.invoke(cli, ["identify", str(recording), "-o", str(out)])
+    assert_refused(r, f"error: {out}")
+    assert out.read_text(encoding="utf-8") == "{}"
