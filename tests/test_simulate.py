@@ -335,6 +335,26 @@ def test_innovations_stream_starts_stationary():
         assert lo < np.var(y, ddof=1) / c0 < hi
 
 
+def test_single_section_filter_equals_sosfilt():
+    # One section (one or two poles) runs through scipy.signal.lfilter (the same transposed
+    # direct form II): the stream must equal sosfilt of the same deviates from the same start.
+    from scipy.signal import sosfilt
+
+    from sensormodel.simulate import _channel_innovations, _Innovations, _Normals
+
+    for terms in ((GaussMarkov(1e-3, 0.5),), (GaussMarkov(1e-3, 0.5), GaussMarkov(2e-3, 20.0))):
+        design = _channel_innovations(terms, RATE, 1 / RATE, 1e-8)
+        assert design is not None and design.sos.shape[0] == 1
+        src = _Innovations(design, np.random.default_rng(5))
+        ref = _Normals(np.random.default_rng(5))
+        z = np.zeros(2)
+        z[design.state_index] = design.init @ ref.normal(design.init.shape[0])
+        sos = design.sos.copy()
+        sos[0, :3] *= design.std
+        expect = sosfilt(sos, ref.normal(3000), zi=(z * design.std).reshape(1, 2))[0]
+        np.testing.assert_allclose(src.take(3000), expect, rtol=1e-10, atol=1e-12 * np.std(expect))
+
+
 def test_state_by_state_fallback_is_faithful(monkeypatch):
     # Where the innovations form does not apply the channel runs one stream per state (the
     # exact per-state recursion); force that path and check the combined model's Allan

@@ -1,6 +1,7 @@
 """Benchmark of sensormodel.simulate: samples per second per channel (not a test).
 
-Run:  python tests/benchmarks/bench_simulate.py [--samples N] [--rate HZ] [--big N] [--write]
+Run:  python tests/benchmarks/bench_simulate.py [--samples N] [--rate HZ] [--big N] [--repeats R]
+      [--write]
 
 Each measurement runs in its own subprocess (so its memory numbers are its own) and prints:
 wall-clock and CPU-time throughput (samples per second per channel; CPU time counts every
@@ -21,7 +22,8 @@ sizes in the same run:
   ratio is "six channels in the time of r single channels");
 * with ``--write``, streaming a six-channel record to an NPY file.
 
-Numbers depend on the machine and its load (both printed).
+With ``--repeats R`` every measurement is repeated R times (each in a fresh process) and the
+fastest (least CPU time) kept. Numbers depend on the machine and its load (both printed).
 """
 
 from __future__ import annotations
@@ -114,8 +116,8 @@ def _state_by_state() -> None:
 
     sim._channel_innovations = lambda *a, **k: None  # one stream per state
 
-    def ziggurat(self, n, scale=1.0):
-        z = self._rng.standard_normal(n)
+    def ziggurat(self, n, scale=1.0, out=None):
+        z = self._rng.standard_normal(n) if out is None else self._rng.standard_normal(out=out)
         z *= scale
         return z
 
@@ -191,12 +193,21 @@ def _worker(kind: str, case: str, n: int, rate: float, channels: int, path: str)
     print(json.dumps(info))
 
 
+REPEATS = 1
+
+
 def _measure(kind: str, case: str, n: int, rate: float, channels: int = 1, path: str = "") -> dict:
     cmd = [sys.executable, os.path.abspath(__file__), "--worker", kind, "--case", case]
     cmd += ["--n", str(n), "--rate", str(rate), "--channels", str(channels), "--path", path]
     env = dict(os.environ, OPENBLAS_NUM_THREADS="1")
-    out = subprocess.run(cmd, check=True, capture_output=True, text=True, env=env).stdout
-    return json.loads(out.strip().splitlines()[-1])
+    best: dict | None = None
+    for _ in range(REPEATS):
+        out = subprocess.run(cmd, check=True, capture_output=True, text=True, env=env).stdout
+        r = json.loads(out.strip().splitlines()[-1])
+        if best is None or r["cpu"] < best["cpu"]:
+            best = r
+    assert best is not None
+    return best
 
 
 def _machine() -> str:
@@ -236,6 +247,7 @@ def main() -> None:
     ap.add_argument("--samples", type=int, default=1 << 22, help="samples per channel")
     ap.add_argument("--rate", type=float, default=1000.0, help="sample rate [Hz]")
     ap.add_argument("--big", type=int, default=10**7, help="samples per channel, six channels")
+    ap.add_argument("--repeats", type=int, default=1, help="runs per measurement (best kept)")
     ap.add_argument("--write", action="store_true", help="also stream a six-channel NPY record")
     ap.add_argument("--write-seconds", type=float, default=600.0, help="record length [s]")
     ap.add_argument("--worker", help=argparse.SUPPRESS)
@@ -248,12 +260,14 @@ def main() -> None:
         _worker(a.worker, a.case, a.n, a.rate, a.channels, a.path)
         return
 
+    global REPEATS
+    REPEATS = max(1, a.repeats)
     n, rate = a.samples, a.rate
     print(_machine())
     print(_load())
     print(
         f"\none channel, {n} samples at {rate:g} Hz: samples/s per channel (wall, CPU) and "
-        "memory above set-up"
+        f"memory above set-up; best of {REPEATS}"
     )
     ref = _measure("numpy", "", n, rate)
     print(_line("reference: numpy standard_normal (1/sample)", ref))
