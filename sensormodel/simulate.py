@@ -1256,6 +1256,8 @@ class Simulator:
     rate : float
         [Hz].
     seed : int
+    threads : int
+        Channels generated at once.
     position : int
         Samples delivered so far.
     """
@@ -1343,6 +1345,7 @@ def simulate(
     flicker: str = "realization",
     channels: Sequence[str] | None = None,
     max_taps: int = DEFAULT_MAX_TAPS,
+    threads: int | None = None,
 ) -> _FloatArray:
     """A noise record of ``n`` samples per channel, in memory.
 
@@ -1366,6 +1369,9 @@ def simulate(
         Channel ids to simulate (default all, in model order).
     max_taps : int
         Largest Kasdin-Walter filter length (``flicker="power-law"``).
+    threads : int, optional
+        Channels generated at once (default: one per available core); the record does not
+        depend on it.
 
     Returns
     -------
@@ -1393,6 +1399,7 @@ def simulate(
         flicker=flicker,
         channels=channels,
         max_taps=max_taps,
+        threads=threads,
     )
     return sim.read(n)
 
@@ -1629,6 +1636,7 @@ def write_record(
     force: bool = False,
     chunk: int = 4 * BLOCK,
     progress: Callable[[int], None] | None = None,
+    threads: int | None = None,
     **writer_options: Any,
 ) -> Simulator:
     """Stream a simulated record to a file (CSV, NPY, NPZ or HDF5 by extension), atomically.
@@ -1664,6 +1672,9 @@ def write_record(
         Rows per write.
     progress : callable, optional
         Called with the number of rows written after each chunk.
+    threads : int, optional
+        Channels generated at once (default: one per available core); the record does not
+        depend on it.
     **writer_options
         Passed on to :func:`sensormodel.recording.open_writer` (``time_column``,
         ``start_time``).
@@ -1677,7 +1688,14 @@ def write_record(
 
     # The writer takes period means (SI rates) and writes increments itself when asked.
     sim = Simulator(
-        model, rate, seed=seed, run=run, flicker=flicker, channels=channels, max_taps=max_taps
+        model,
+        rate,
+        seed=seed,
+        run=run,
+        flicker=flicker,
+        channels=channels,
+        max_taps=max_taps,
+        threads=threads,
     )
     n = _check_count(n, "n")
     with recording.open_writer(
