@@ -122,7 +122,8 @@ def build(datasheet: str, output: str, worst_case: bool, force: bool) -> None:
 @cli.command(context_settings=_CONTEXT)
 @click.argument("model_file", metavar="MODEL", type=click.Path(dir_okay=False))
 @click.option("--rate", type=float, default=None,
-              help="Output rate [Hz] for the per-sample standard deviation (default: the channel's).")
+              help="Output rate [Hz] for the per-sample standard deviation "
+                   "(default: the channel's).")
 @click.option("--channel", "channels", multiple=True,
               help="Show only this channel (repeatable), e.g. --channel gyro.z.")
 @click.option("--plot", "plot_file", type=click.Path(dir_okay=False), default=None,
@@ -983,8 +984,9 @@ def shape_command(spectrum_file: str, output: str, channel_id: str | None, rate:
     \b
     Examples:
       sensormodel shape examples/spectra/tern4-mast-sway.toml -o sway.json
-      sensormodel shape measured-psd.csv --orders 1/3 --channel accelerometer.z --rate 200 -o vib.json
-      sensormodel shape vib.csv --orders 1/3 --channel accelerometer.z --add-to t900.json -o t900-vib.json
+      sensormodel shape psd.csv --orders 1/3 --channel accelerometer.z --rate 200 -o vib.json
+      sensormodel shape psd.csv --orders 1/3 --channel accelerometer.z \
+          --add-to t900.json -o t900-vib.json
     """
     from ._io import check_writable
     from .errors import AnalysisError
@@ -1078,7 +1080,7 @@ def shape_command(spectrum_file: str, output: str, channel_id: str | None, rate:
 
 def _identify_rows(ident: Any) -> list[list[str]]:
     """Table rows of one identified channel: SI value, readable value, interval, reading."""
-    from .quantities import DISPLAY_UNITS, convert_from_si, format_value, kind_of
+    from .quantities import DISPLAY_UNITS, KINDS, convert_from_si, format_value, kind_of
     from .terms import TERM_TYPES
 
     rows = []
@@ -1088,9 +1090,12 @@ def _identify_rows(ident: Any) -> list[list[str]]:
         if ident.unit not in ("", "1"):
             try:
                 kind = kind_of(rel.replace("u", f"({ident.unit})"))
-            except Exception:  # a recorded unit without a kind: SI only
+            except SensorModelError:  # a recorded unit of no known kind: its own unit only
                 kind = None
-        si_unit = rel.replace("u", ident.unit if ident.unit not in ("", "1") else "(as recorded)")
+        if kind is not None:
+            si_unit = KINDS[kind].si
+        else:
+            si_unit = rel.replace("u", ident.unit if ident.unit not in ("", "1") else "(rec.)")
 
         def shown(v: float, kind: str | None = kind) -> str:
             if kind is None or kind not in DISPLAY_UNITS:

@@ -24,34 +24,40 @@ Which terms the data support
 ----------------------------
 Allan variances at neighbouring τ come from the same samples and are strongly correlated, and
 some terms are nearly collinear over a short record (random walk and ramp over the last
-octaves, quantization and white noise over the first). The terms are therefore chosen by
-backward elimination with generalized least squares, using the covariance of the Allan-variance
+octaves, quantization and white noise over the first). Support is decided by backward
+elimination with generalized least squares, using the covariance of the Allan-variance
 estimates from bootstrap records of the full fit (:class:`_Gls`): a term is dropped when leaving
-it out does not worsen the GLS fit significantly (one-sided test at level α = (1 − confidence)/2;
-ramp and quantization, the rarer terms, are tested first and at level α/5). The kept terms are refitted by the weighted
-non-negative fit. A term that is dropped is *reported* (its estimate from the full fit, an
-interval from zero) but left out of the model.
+it out does not worsen the GLS fit significantly (one-sided test at level α = (1 − confidence)/2).
+The **rare** terms, ramp and quantization, are tested first and at the stricter level α/5
+(common practice: they are the less usual of the two collinear pairs); one that fails is left
+out of the estimate too, since it would take its share from the random walk or the white noise.
+The **common** terms (white, flicker, random walk and a requested Gauss-Markov) stay in the
+estimate whether supported or not, so that a real but weak term is not silently absorbed by its
+neighbours. A term that is not supported is *reported* (estimate and an interval from zero) but
+left out of the model.
 
 Uncertainty
 -----------
-Intervals from a naive per-point fit would be too narrow (the points are correlated; the tests
+Intervals from a naive per-point fit would be wrong (the points are correlated; the tests
 measure by how much). They come from a **parametric bootstrap of the whole procedure**:
 ``n_boot`` records of the same length and rate are simulated from the fitted model
 (:class:`_Simulator`: exact sample means of each term), their overlapping Allan variance is
-computed at the same τ (the estimator of :func:`sensormodel.allan.overlapping`), and the
-selection and the fit are repeated on each. For a kept term (variance scale c = p²):
+computed at the same τ (the estimator of :func:`sensormodel.allan.overlapping`), and the tests
+of the rare terms and the fit are repeated on each. For a supported term (variance scale
+c = p²):
 
 * the ratio r = ĉ*/ĉ of the bootstrap coefficient to the fitted one is used as a pivot (its law
   hardly depends on the true value): [ĉ/q_{1−α}(r), ĉ/q_α(r)]. This follows the skew of the
   chi-square-like law of a variance better than the percentile interval
   [q_α(ĉ*), q_{1−α}(ĉ*)] (reported in ``details`` for comparison). The quantiles are the
   (B + 1)p-th order statistics, which keep the coverage of a finite bootstrap (B records) at
-  its nominal value. A record whose selection dropped the term is refitted with it, so the
-  interval is that of the term's coefficient given that the term is in the model.
+  its nominal value. A record whose test dropped a kept rare term is refitted with it, so its
+  interval is that of the coefficient given that the term is in the model.
 
-For a dropped term: [0, max(ĉ_u, 0) − q_α(ĉ_u* − ĉ)], the basic bootstrap of the unconstrained
-weighted least-squares estimate ĉ_u with all requested terms (unbiased: E[AVAR̂] = Σ c_k φ_k
-exactly), from the selection bootstrap.
+For a term that is not supported: [0, upper], upper the larger of ĉ/q_α(r) (when the refits
+keep the term in more than a fraction 1 − α of the records) and max(ĉ_u, 0) − q_α(ĉ_u* − ĉ),
+the basic bootstrap of the unconstrained weighted least-squares estimate ĉ_u with all requested
+terms (unbiased: E[AVAR̂] = Σ c_k φ_k exactly), from the selection bootstrap.
 
 The seeded coverage study in ``tests/test_identify.py`` (records simulated by an independent
 generator) shows the stated interval containing the true coefficient in the stated fraction of
@@ -168,7 +174,9 @@ class FittedTerm:
         The classical slope reading of the same parameter [SI] (white, flicker, random walk),
         else None.
     disagrees : bool
-        The slope reading lies outside [low, high].
+        The slope reading disagrees with the fit: its own chi-square interval at the same
+        confidence (from the one curve point it is read at, ``details["slope_reading_low"]``
+        and ``["slope_reading_high"]``) does not overlap [low, high].
     tau_range : (float, float) or None
         The τ of the curve where this term's fitted Allan variance is the largest of all terms
         [s]; None where it dominates nowhere.
@@ -347,7 +355,9 @@ def _check_terms(terms: Any) -> tuple[str, ...]:
             f"got {terms!r}", f"term names among {', '.join(KNOWN_TERMS)}", field="terms"
         ) from None
     if not names:
-        raise AnalysisError("got no terms", f"one or more of {', '.join(KNOWN_TERMS)}", field="terms")
+        raise AnalysisError(
+            "got no terms", f"one or more of {', '.join(KNOWN_TERMS)}", field="terms"
+        )
     for n in names:
         if n not in KNOWN_TERMS:
             raise AnalysisError(
@@ -429,7 +439,9 @@ def _check_curve(curve: Any, n_terms: int) -> _Curve:
     edf = np.asarray(curve.edf, dtype=np.float64)
     rate = float(curve.sample_rate)
     if not (math.isfinite(rate) and rate > 0):
-        raise AnalysisError(f"sample_rate = {rate!r}", "a rate > 0 Hz", field=f"{channel}.sample_rate")
+        raise AnalysisError(
+            f"sample_rate = {rate!r}", "a rate > 0 Hz", field=f"{channel}.sample_rate"
+        )
     if tau.ndim != 1 or tau.shape != adev.shape or tau.shape != edf.shape:
         raise AnalysisError(
             "tau, adev and edf differ in shape", "one value of each per τ", field=channel
@@ -438,7 +450,7 @@ def _check_curve(curve: Any, n_terms: int) -> _Curve:
     if np.any(bad):
         i = int(np.flatnonzero(bad)[0])
         raise AnalysisError(
-            f"the Allan deviation at τ = {tau[i]:g} s is {adev[i]!r}",
+            f"the Allan deviation at τ = {tau[i]:g} s is {float(adev[i])!r}",
             "a noisy record (Allan deviation > 0 at every τ)",
             field=channel,
         )
@@ -829,23 +841,28 @@ def slope_readings(
     """
     tau = np.asarray(tau, dtype=np.float64)
     adev = np.asarray(adev, dtype=np.float64)
+    if tau.ndim != 1 or tau.shape != adev.shape or tau.size == 0:
+        raise AnalysisError(
+            f"got {tau.size} τ and {adev.size} deviations", "one deviation per τ", field="adev"
+        )
+    if not (np.all(tau > 0) and np.all(adev > 0) and np.all(np.isfinite(adev))):
+        raise AnalysisError("a τ or deviation is not positive", "τ > 0 s, σ > 0", field="adev")
+    points = _reading_points(tau, adev)
+    values = {k: float(adev[j] * f) for k, (j, f) in points.items()}
     notes = []
-    j = int(np.argmin(np.abs(np.log(tau / _WHITE_READ_TAU))))
-    white = float(adev[j] * math.sqrt(tau[j]))
+    j = points["white"][0]
     if not tau[0] <= _WHITE_READ_TAU <= tau[-1]:
         notes.append(
             f"white: τ = 1 s is outside the curve ({tau[0]:.4g}-{tau[-1]:.4g} s); read at "
             f"τ = {tau[j]:.4g} s and carried to 1 s along the −½ line"
         )
-    j = int(np.argmin(np.abs(np.log(tau / _RW_READ_TAU))))
-    rw = float(adev[j] * math.sqrt(_RW_READ_TAU / tau[j]))
+    j = points["random_walk"][0]
     if not tau[0] <= _RW_READ_TAU <= tau[-1]:
         notes.append(
             f"random_walk: τ = 3 s is outside the curve ({tau[0]:.4g}-{tau[-1]:.4g} s); read at "
             f"τ = {tau[j]:.4g} s and carried to 3 s along the +½ line"
         )
-    j = int(np.argmin(adev))
-    flicker = float(adev[j] / _FLOOR)
+    j = points["flicker"][0]
     if j == tau.size - 1:
         notes.append(
             "flicker: the Allan deviation still falls at the longest τ; the floor reading is an "
@@ -853,12 +870,35 @@ def slope_readings(
         )
     elif j == 0:
         notes.append("flicker: the Allan deviation is lowest at the shortest τ (no floor seen)")
-    return {"white": white, "random_walk": rw, "flicker": flicker}, tuple(notes)
+    return values, tuple(notes)
 
 
 # ---------------------------------------------------------------------------------------------
 # The fit
 # ---------------------------------------------------------------------------------------------
+
+
+def _reading_points(tau: _FloatArray, adev: _FloatArray) -> dict[str, tuple[int, float]]:
+    """Index of the curve point each slope reading uses and its factor: reading = σ_j·factor."""
+    jw = int(np.argmin(np.abs(np.log(tau / _WHITE_READ_TAU))))
+    jr = int(np.argmin(np.abs(np.log(tau / _RW_READ_TAU))))
+    jf = int(np.argmin(adev))
+    return {
+        "white": (jw, math.sqrt(tau[jw])),
+        "random_walk": (jr, math.sqrt(_RW_READ_TAU / tau[jr])),
+        "flicker": (jf, 1.0 / _FLOOR),
+    }
+
+
+def _chi2_interval(sigma: float, edf: float, confidence: float) -> tuple[float, float]:
+    """Chi-square interval of a deviation with ``edf`` degrees of freedom (NIST SP 1065
+    eq. (45))."""
+    from scipy.stats import chi2
+
+    return (
+        sigma * math.sqrt(edf / chi2.ppf(0.5 * (1.0 + confidence), edf)),
+        sigma * math.sqrt(edf / chi2.ppf(0.5 * (1.0 - confidence), edf)),
+    )
 
 
 def _quantile(x: _FloatArray, q: float) -> float:
@@ -939,8 +979,15 @@ class _Gls:
         _x, res = nnls(a / scale, b, maxiter=50 * a.shape[1])
         return float(res) ** 2
 
-    def select(self, avar: _FloatArray) -> npt.NDArray[np.bool_]:
-        """The terms kept by the backward elimination for this Allan-variance vector."""
+    def select(
+        self, avar: _FloatArray, *, rare_only: bool = False
+    ) -> tuple[npt.NDArray[np.bool_], npt.NDArray[np.bool_]]:
+        """The terms kept for this Allan-variance vector.
+
+        Returns ``(after_rare, kept)``: the terms left once the rare terms (``first``) have
+        been tested, and those left at the end of the backward elimination (``kept`` is
+        ``after_rare`` with ``rare_only``).
+        """
         b = self._whiten @ (avar / self._model)
         mask = np.ones(self._phi_w.shape[1], dtype=bool)
         current = self._chi2(b, mask)
@@ -952,6 +999,9 @@ class _Gls:
             reduced = self._chi2(b, trial)
             if reduced - current < self._crit_first:
                 mask, current = trial, reduced
+        after_rare = mask.copy()
+        if rare_only:
+            return after_rare, mask
         while np.sum(mask) > 1:
             best_k, best_delta = -1, math.inf
             for k in np.flatnonzero(mask):
@@ -964,7 +1014,7 @@ class _Gls:
                 break
             mask[best_k] = False
             current += best_delta
-        return mask
+        return after_rare, mask
 
 
 def fit(
@@ -1039,9 +1089,7 @@ def fit(
     coef_u = a_lin @ c.avar
 
     # 2. selection bootstrap: records from the full fit, the unconstrained estimate's spread
-    av1 = _bootstrap(
-        _params(names, coef_full), t_full, c, n_pilot, rng, progress, 0, total
-    )
+    av1 = _bootstrap(_params(names, coef_full), t_full, c, n_pilot, rng, progress, 0, total)
     dev = av1 @ a_lin.T - coef_full[None, :]  # the records were drawn with coef_full
     lin_high = np.maximum(coef_u, 0.0) - np.array([_quantile(dev[:, j], alpha) for j in range(p)])
     model_full = phi_full @ coef_full
@@ -1054,68 +1102,73 @@ def fit(
         first=first,
         z_first=_z(1.0 - alpha / _RARE_LEVEL_DIVISOR),
     )
-    selected = gls.select(c.avar)
+    in_fit, selected = gls.select(c.avar)
 
-    # 3. the selected terms only
-    coef, t_gm = _fit_subset(c.avar, d_full, selected, start=None)
-    while np.any(selected & (coef <= 0)) and np.sum(selected) > 1:
-        selected &= coef > 0
-        coef, t_gm = _fit_subset(c.avar, d_full, selected, start=None)
+    # 3. the estimate: every common term and the rare terms that passed their test
+    coef, t_gm = _fit_subset(c.avar, d_full, in_fit, start=None)
     selected &= coef > 0
     phi = _phi(d_full, t_gm if t_gm is not None else t_full)
     model = phi @ coef
 
-    # 4. interval bootstrap: records from the selected model, the whole procedure repeated
+    # 4. interval bootstrap: records from that fit, the estimate repeated on each (the rare
+    #    terms' tests included)
+    def refits(av: _FloatArray) -> tuple[_FloatArray, _FloatArray]:
+        out = np.zeros((av.shape[0], p))
+        out_t = np.full(av.shape[0], math.nan)
+        for i in range(av.shape[0]):
+            s_i = gls.select(av[i], rare_only=True)[0] if first else in_fit
+            cb, tb = _fit_subset(av[i], d_full, s_i, start=model)
+            out[i] = cb
+            if tb is not None:
+                out_t[i] = tb
+            # a kept rare term's interval is conditional on the term being in the model:
+            # where this record's test dropped it, refit with it added
+            for k in np.flatnonzero(in_fit & ~s_i):
+                with_k = s_i.copy()
+                with_k[k] = True
+                out[i, k] = _fit_subset(av[i], d_full, with_k, start=model)[0][k]
+        return out, out_t
+
     av2 = _bootstrap(_params(names, coef), t_gm, c, n_boot, rng, progress, n_pilot, total)
-    boot = np.zeros((n_boot, p))
-    boot_t = np.full(n_boot, math.nan)
-    for i in range(n_boot):
-        s_i = gls.select(av2[i])
-        cb, tb = _fit_subset(av2[i], d_full, s_i, start=model)
-        boot[i] = cb
-        if tb is not None:
-            boot_t[i] = tb
-        # a supported term's interval is conditional on the term being in the model: where
-        # this record's selection dropped it, refit with it added
-        for k in np.flatnonzero(selected & ~s_i):
-            with_k = s_i.copy()
-            with_k[k] = True
-            ck, tk = _fit_subset(av2[i], d_full, with_k, start=model)
-            boot[i, k] = ck[k]
-            if tk is not None and d_full.names[k] == "gauss_markov":
-                boot_t[i] = tk
+    boot, boot_t = refits(av2)
 
     readings, notes = slope_readings(c.tau, c.adev)
-    report_coef = np.where(selected, coef, coef_full)
+    points = _reading_points(c.tau, c.adev)
+    report_coef = np.where(in_fit, coef, coef_full)
     contrib = phi * report_coef[None, :]
     dominant = np.argmax(contrib, axis=1)
     fitted = []
     for j, nm in enumerate(names):
         kept = float(np.mean(boot[:, j] > 0))
-        if selected[j]:
-            est = float(coef[j])
+        est = float(coef[j]) if in_fit[j] else float(coef_full[j])
+        high_lin = max(float(lin_high[j]), est, 0.0)
+        q_lo = q_hi = 0.0
+        if in_fit[j] and est > 0:
             r = boot[:, j] / est
             q_lo, q_hi = _quantile(r, alpha), _quantile(r, 1.0 - alpha)
-            low_v = est / q_hi if q_hi > 0 else 0.0
-            if q_lo > 0:
-                high_v = est / q_lo
-                method = "ratio"
-            else:  # dropped in more than a fraction α of the refits
-                high_v = max(float(lin_high[j]), est)
-                method = "ratio-linear"
-        else:
-            est = float(coef_full[j])
-            low_v = 0.0
-            high_v = max(float(lin_high[j]), est, 0.0)
-            method = "linear"
+        if selected[j] and q_lo > 0:
+            low_v, high_v, method = est / q_hi, est / q_lo, "ratio"
+        elif selected[j]:  # dropped by more than a fraction α of the refits
+            low_v, high_v, method = est / q_hi if q_hi > 0 else 0.0, high_lin, "ratio-linear"
+        else:  # not distinguishable from zero: an upper limit
+            upper = est / q_lo if q_lo > 0 else 0.0
+            low_v, high_v, method = 0.0, max(high_lin, upper), "linear"
         estimate = math.sqrt(max(est, 0.0))
         low = min(math.sqrt(max(low_v, 0.0)), estimate)
         high = max(math.sqrt(max(high_v, 0.0)), estimate)
         reading = readings.get(nm)
-        disagrees = bool(reading is not None and not (low <= reading <= high))
+        disagrees = False
+        details: dict[str, float] = {"kept_fraction": kept}
+        if reading is not None:
+            # the reading's own chi-square interval at the same confidence (one curve point,
+            # its edf; NIST SP 1065 eq. (45)); flagged where it misses the fitted interval
+            jr, factor = points[nm]
+            r_lo, r_hi = _chi2_interval(float(c.adev[jr]), float(c.edf[jr]), confidence)
+            details["slope_reading_low"] = r_lo * factor
+            details["slope_reading_high"] = r_hi * factor
+            disagrees = bool(r_hi * factor < low or r_lo * factor > high)
         where = np.flatnonzero(dominant == j) if report_coef[j] > 0 else np.zeros(0, dtype=int)
         tau_range = (float(c.tau[where[0]]), float(c.tau[where[-1]])) if where.size else None
-        details: dict[str, float] = {"kept_fraction": kept}
         # the plain percentile interval of the bootstrap estimates, for comparison only
         pct = np.sqrt(np.maximum(boot[:, j], 0.0))
         details["percentile_low"] = _quantile(pct, alpha)
@@ -1272,9 +1325,7 @@ def fit_recording(
             )
         s = segs[0]
         y = recording.data[cid][s.start : s.stop]
-        curve = overlapping(
-            y, recording.rate, taus=taus, unit=recording.units[cid], channel=cid
-        )
+        curve = overlapping(y, recording.rate, taus=taus, unit=recording.units[cid], channel=cid)
         base = k * (total // len(ids))
         sub = None
         if progress is not None:
@@ -1314,7 +1365,9 @@ def to_model(
 
     items = list(identifications)
     if not items:
-        raise AnalysisError("got no identifications", "at least one channel", field="identifications")
+        raise AnalysisError(
+            "got no identifications", "at least one channel", field="identifications"
+        )
     dropped = {
         i.channel: [t.term for t in i.terms if not t.supported]
         for i in items

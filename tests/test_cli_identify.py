@@ -106,8 +106,14 @@ def test_identify_prints_a_table_per_channel(identified) -> None:
     assert text.count("bootstrap records") == 2
     assert "gyro.x [rad/s]: 8192 samples at 50 Hz" in text
     header = next(line for line in text.splitlines() if line.strip().startswith("term"))
-    for column in ("estimate (SI)", "readable", "90 % interval (SI)", "supported",
-                   "slope reading (SI)", "flag"):
+    for column in (
+        "estimate (SI)",
+        "readable",
+        "90 % interval (SI)",
+        "supported",
+        "slope reading (SI)",
+        "flag",
+    ):
         assert column in header
     white_row = next(line for line in text.splitlines() if line.strip().startswith("white"))
     assert "°/√h" in white_row and " yes " in white_row
@@ -120,13 +126,15 @@ def test_identified_model_feeds_inspect_simulate_export(identified, runner, tmp_
     assert r.exit_code == 0, r.output
     assert "gyro.x" in r.stdout and "white" in r.stdout
     rec = tmp_path / "sim.csv"
-    r = runner.invoke(cli, ["simulate", str(out), "--duration", "10 s", "--seed", "1",
-                            "-o", str(rec)])
+    r = runner.invoke(
+        cli, ["simulate", str(out), "--duration", "10 s", "--seed", "1", "-o", str(rec)]
+    )
     assert r.exit_code == 0, r.output
     assert rec.exists()
     exp = tmp_path / "disc.json"
-    r = runner.invoke(cli, ["export", str(out), "--dt", "0.02 s", "--format", "json",
-                            "-o", str(exp)])
+    r = runner.invoke(
+        cli, ["export", str(out), "--dt", "0.02 s", "--format", "json", "-o", str(exp)]
+    )
     assert r.exit_code == 0, r.output
     assert json.loads(exp.read_text(encoding="utf-8"))["schema"] == "sensormodel/discrete-model/1"
 
@@ -145,7 +153,8 @@ def test_identify_refuses_bad_input(recording, runner, tmp_path) -> None:
     short = _write_csv(tmp_path / "short.csv", n=20)
     r = runner.invoke(cli, ["identify", str(short), "-o", str(out)])
     assert_refused(
-        r, f"error: {short}:gyro.x: the curve of the 20-sample record has 4 τ for 5 terms",
+        r,
+        f"error: {short}:gyro.x: the curve of the 20-sample record has 4 τ for 5 terms",
         leftovers=[out],
     )
     out.write_text("{}", encoding="utf-8")
