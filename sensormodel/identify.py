@@ -140,6 +140,11 @@ _IRLS_TOL = 1e-5
 #: ramp or quantization term takes its share from the random walk or the white noise.
 _TESTED_FIRST = ("ramp", "quantization")
 _RARE_LEVEL_DIVISOR = 5.0
+#: Second differences per block of the bootstrap's Allan-variance engine (2^15 float64 =
+#: 256 KiB per slice).
+_OAVAR_BLOCK = 1 << 15
+#: Records of at least this many samples are simulated on two threads in the bootstrap.
+_THREAD_MIN_SAMPLES = 1 << 18
 #: Gauss-Markov time-constant grid for the profile: points per decade.
 _GM_PER_DECADE = 6
 
@@ -789,7 +794,9 @@ class _Oavar:
 
     def __init__(self, n: int, m: npt.NDArray[np.int64]) -> None:
         self.n = int(n)
-        self.m = [int(v) for v in m]
+        self.m = sorted(int(v) for v in m)
+        if self.m != [int(v) for v in m]:
+            raise AnalysisError("averaging factors not increasing", "increasing m", field="m")
         self.x = np.empty(self.n + 1)
         self.buf = np.empty(self.n + 1)
 
@@ -798,15 +805,23 @@ class _Oavar:
         x[0] = 0.0
         np.subtract(y, y.mean(), out=buf[:n])
         np.cumsum(buf[:n], out=x[1:])
-        out = np.empty(len(self.m))
-        for j, mm in enumerate(self.m):
-            length = n + 1 - 2 * mm
-            b = buf[:length]
-            np.multiply(x[mm : mm + length], 2.0, out=b)
-            np.subtract(x[2 * mm : 2 * mm + length], b, out=b)
-            np.add(b, x[:length], out=b)
-            out[j] = np.einsum("i,i->", b, b) / (2.0 * mm * mm * length)
-        return out
+        sums = [0.0] * len(self.m)
+        # block-major: every τ of a block of second differences while its phase slices are
+        # still in cache (one memory stream per τ instead of three)
+        for i0 in range(0, n + 1 - 2 * self.m[0], _OAVAR_BLOCK):
+            i1 = i0 + _OAVAR_BLOCK
+            for j, mm in enumerate(self.m):
+                e = min(i1, n + 1 - 2 * mm)
+                if e <= i0:
+                    break  # the factors are sorted: the longer ones end even earlier
+                b = buf[: e - i0]
+                np.multiply(x[i0 + mm : e + mm], 2.0, out=b)
+                np.subtract(x[i0 + 2 * mm : e + 2 * mm], b, out=b)
+                np.add(b, x[i0:e], out=b)
+                sums[j] += float(np.einsum("i,i->", b, b))
+        return np.array(
+            [sums[j] / (2.0 * mm * mm * (n + 1 - 2 * mm)) for j, mm in enumerate(self.m)]
+        )
 
 
 # ---------------------------------------------------------------------------------------------
@@ -1072,7 +1087,7 @@ def fit(
     alpha = 0.5 * (1.0 - confidence)
     n_pilot = max(int(math.ceil(2.0 / alpha - 1e-9)), n_boot // 2)
     total = n_pilot + n_boot
-    rng = np.random.default_rng(seed)
+    seeds = np.random.SeedSequence(seed)
     p = len(names)
 
     # 1. all requested terms
@@ -1089,7 +1104,9 @@ def fit(
     coef_u = a_lin @ c.avar
 
     # 2. selection bootstrap: records from the full fit, the unconstrained estimate's spread
-    av1 = _bootstrap(_params(names, coef_full), t_full, c, n_pilot, rng, progress, 0, total)
+    av1 = _bootstrap(
+        _params(names, coef_full), t_full, c, n_pilot, seeds.spawn(1)[0], progress, 0, total
+    )
     dev = av1 @ a_lin.T - coef_full[None, :]  # the records were drawn with coef_full
     lin_high = np.maximum(coef_u, 0.0) - np.array([_quantile(dev[:, j], alpha) for j in range(p)])
     model_full = phi_full @ coef_full
@@ -1129,7 +1146,9 @@ def fit(
                 out[i, k] = _fit_subset(av[i], d_full, with_k, start=model)[0][k]
         return out, out_t
 
-    av2 = _bootstrap(_params(names, coef), t_gm, c, n_boot, rng, progress, n_pilot, total)
+    av2 = _bootstrap(
+        _params(names, coef), t_gm, c, n_boot, seeds.spawn(1)[0], progress, n_pilot, total
+    )
     boot, boot_t = refits(av2)
 
     readings, notes = slope_readings(c.tau, c.adev)
@@ -1254,22 +1273,59 @@ def _bootstrap(
     time_constant: float | None,
     c: _Curve,
     count: int,
-    rng: np.random.Generator,
+    seeds: np.random.SeedSequence,
     progress: ProgressCallback | None,
     done_before: int,
     total: int,
 ) -> _FloatArray:
-    """Allan variances at the curve's τ of ``count`` records simulated from ``params``."""
-    sim = _Simulator(params, time_constant, c.n, c.rate)
-    oavar = _Oavar(c.n, c.m)
+    """Allan variances at the curve's τ of ``count`` records simulated from ``params``.
+
+    Record i draws from its own generator, ``default_rng(seeds.spawn(count)[i])``, so the
+    result does not depend on how the records are shared among threads. Long records (2^18
+    samples or more) are simulated on up to two threads (numpy and scipy.fft release the GIL
+    in their loops); short ones in the calling thread.
+    """
+    children = seeds.spawn(count)
     out = np.empty((count, c.m.size))
     step = max(1, total // 50)
-    for i in range(count):
-        out[i] = oavar(sim.record(rng))
-        done = done_before + i + 1
-        if progress is not None and (done % step == 0 or done == total):
-            progress(done, total)
+    workers = 1 if c.n < _THREAD_MIN_SAMPLES else min(2, _usable_cpus(), count)
+
+    def run(indices: range) -> None:
+        sim = _Simulator(params, time_constant, c.n, c.rate)
+        oavar = _Oavar(c.n, c.m)
+        for i in indices:
+            out[i] = oavar(sim.record(np.random.default_rng(children[i])))
+
+    chunk = max(1, min(step, 8))
+    if workers == 1:
+        for i0 in range(0, count, chunk):
+            run(range(i0, min(count, i0 + chunk)))
+            done = done_before + min(count, i0 + chunk)
+            if progress is not None:
+                progress(done, total)
+        return out
+    from concurrent.futures import ThreadPoolExecutor
+
+    with ThreadPoolExecutor(max_workers=workers) as pool:
+        futures = [
+            pool.submit(run, range(i0, min(count, i0 + chunk))) for i0 in range(0, count, chunk)
+        ]
+        finished = 0
+        for i0, fut in zip(range(0, count, chunk), futures, strict=True):
+            fut.result()
+            finished = min(count, i0 + chunk)
+            if progress is not None:
+                progress(done_before + finished, total)
     return out
+
+
+def _usable_cpus() -> int:
+    import os
+
+    try:
+        return len(os.sched_getaffinity(0))
+    except AttributeError:  # not on Linux
+        return os.cpu_count() or 1
 
 
 def fit_recording(
