@@ -70,7 +70,9 @@ within a few sample periods lowers the first points of the curve; leave them out
 Classical slope readings (IEEE Std 952-1997 Annex C) are reported beside the fit: white density
 N = σ(τ)·√τ from the point nearest τ = 1 s (on the −½ line), random walk K = σ(τ)·√(3/τ) from
 the point nearest τ = 3 s (on the +½ line), flicker coefficient B = min σ / 0.6643 (the floor);
-a reading outside the fitted interval is flagged.
+a reading whose own chi-square interval (from the one curve point it is read at) misses the
+fitted interval is flagged. Where τ = 1 s or 3 s lies outside the curve, the reading is carried
+from the nearest end point along its line, and a note says so.
 """
 
 from __future__ import annotations
@@ -186,7 +188,10 @@ class FittedTerm:
         The τ of the curve where this term's fitted Allan variance is the largest of all terms
         [s]; None where it dominates nowhere.
     method : str
-        ``ratio`` or ``linear``: how the interval was formed (module notes).
+        How the interval was formed (module notes): ``ratio`` (the bootstrap ratio pivot),
+        ``ratio-linear`` (ratio pivot below, the unconstrained estimate's bound above, for a
+        term the refits drop in more than a fraction α of the records) or ``linear`` (an
+        unsupported term: [0, upper]).
     details : dict
         More results: for ``gauss_markov`` the ``time_constant`` [s] and its interval
         (``time_constant_low``, ``time_constant_high``); ``kept_fraction``, the fraction of
