@@ -343,7 +343,7 @@ class NoiseModel:
         flicker: str = "realization",
         channels: list[str] | None = None,
     ) -> Any:
-        """A simulated noise record, ``n`` samples per channel (:func:`sensormodel.simulate.simulate`).
+        """A simulated noise record, ``n`` samples per channel (see simulate.simulate).
 
         Parameters
         ----------
