@@ -641,18 +641,30 @@ def _allan_table(curve: Any, heading: str, display: tuple[str, float]) -> str:
     return "\n".join(lines)
 
 
+def _recording_input_options(func: Callable[..., Any]) -> Callable[..., Any]:
+    """The options that say how to read a recording (shared by the analysis commands)."""
+    options = [
+        click.option("--rate", type=float, default=None, metavar="HZ",
+                     help="Sample rate [Hz] when the file has no time column (must agree if "
+                          "it has)."),
+        click.option("--unit", "units", multiple=True, metavar="U|COLUMN=U",
+                     help="Unit of the columns that give none (--unit deg/s), or of one column "
+                          "(--unit gyro_x=mdps, repeatable; overrides the file)."),
+        click.option("--increments/--rates", "increments", default=None,
+                     help="Samples are angle/velocity increments per sample period (default: "
+                          "as the file states, else rates)."),
+        click.option("--channel", "channel_map", multiple=True, metavar="COLUMN=ID",
+                     help="Map a column to a channel id, e.g. --channel rate_z=gyro.z "
+                          "(repeatable)."),
+    ]
+    for option in reversed(options):
+        func = option(func)
+    return func
+
+
 @cli.command("allan", context_settings=_CONTEXT)
 @click.argument("recording_file", metavar="REC", type=click.Path(dir_okay=False))
-@click.option("--rate", type=float, default=None, metavar="HZ",
-              help="Sample rate [Hz] when the file has no time column (must agree if it has).")
-@click.option("--unit", "units", multiple=True, metavar="U|COLUMN=U",
-              help="Unit of the columns that give none (--unit deg/s), or of one column "
-                   "(--unit gyro_x=mdps, repeatable; overrides the file).")
-@click.option("--increments/--rates", "increments", default=None,
-              help="Samples are angle/velocity increments per sample period (default: as the "
-                   "file states, else rates).")
-@click.option("--channel", "channel_map", multiple=True, metavar="COLUMN=ID",
-              help="Map a column to a channel id, e.g. --channel rate_z=gyro.z (repeatable).")
+@_recording_input_options
 @click.option("--columns", "columns", multiple=True, metavar="GLOB",
               help="Analyse only these columns: names or globs, e.g. 'gyro*' (repeatable).")
 @click.option("--taus", default=None, metavar="SPEC",
@@ -1141,16 +1153,7 @@ def _identify_table(ident: Any) -> str:
 @click.option("--confidence", type=float, default=0.9, show_default=True,
               help="Two-sided confidence of the coefficient intervals (not of the Allan "
                    "deviation's).")
-@click.option("--rate", type=float, default=None, metavar="HZ",
-              help="Sample rate [Hz] when the file has no time column (must agree if it has).")
-@click.option("--unit", "units", multiple=True, metavar="U|COLUMN=U",
-              help="Unit of the columns that give none (--unit deg/s), or of one column "
-                   "(--unit gyro_x=mdps, repeatable).")
-@click.option("--increments/--rates", "increments", default=None,
-              help="Samples are angle/velocity increments per sample period (default: as the "
-                   "file states, else rates).")
-@click.option("--channel", "channel_map", multiple=True, metavar="COLUMN=ID",
-              help="Map a column to a channel id, e.g. --channel rate_z=gyro.z (repeatable).")
+@_recording_input_options
 @click.option("--taus", default=None, metavar="SPEC",
               help="Averaging times of the fitted curve: octave (default), decade, N/decade, or "
                    "T1,T2,... seconds.")
