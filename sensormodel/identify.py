@@ -1293,6 +1293,8 @@ def _bootstrap(
     children = seeds.spawn(count)
     out = np.empty((count, c.m.size))
     step = max(1, total // 50)
+    from .allan import _usable_cpus
+
     workers = 1 if c.n < _THREAD_MIN_SAMPLES else min(2, _usable_cpus(), count)
 
     def run(indices: range) -> None:
@@ -1322,15 +1324,6 @@ def _bootstrap(
             if progress is not None:
                 progress(done_before + finished, total)
     return out
-
-
-def _usable_cpus() -> int:
-    import os
-
-    try:
-        return len(os.sched_getaffinity(0))
-    except AttributeError:  # not on Linux
-        return os.cpu_count() or 1
 
 
 def fit_recording(
