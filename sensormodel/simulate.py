@@ -87,8 +87,15 @@ ziggurat ``standard_normal``).
 Speed
 -----
 Per sample and channel: one normal deviate for the stationary part (white, Gauss-Markov,
-flicker), one per random-walk or shaped-term noise input, one uniform for quantization, the
-second-order sections of the stationary part, and an FFT for power-law flicker.
+flicker), one per random-walk or shaped-term noise input, one uniform for quantization, and an
+FFT for power-law flicker. The innovations stream (in its parallel form, one first-order state
+per pole) and the single-state random walks of a channel run in one block engine
+(:class:`_Parallel`): the same linear recursions regrouped into small matrix products over
+sub-blocks of 16 samples, each product cut below OpenBLAS's threading threshold so it stays
+one single-threaded call (the record does not depend on BLAS threads). It agrees with the
+sample-by-sample filters to rounding (tests); a record is bit-for-bit reproducible on one
+machine (numpy's vectorized functions and the BLAS kernels are chosen per processor, so
+another processor type may differ in the last bits).
 ``tests/benchmarks/bench_simulate.py`` prints samples per second for typical model mixes
 (DEVELOPERS.md, Benchmarks).
 """
@@ -1021,7 +1028,8 @@ class _Innovations(_Source):
 
 
 #: Below this size a matrix product is one single-threaded BLAS call (OpenBLAS threads a
-#: product of m·k·n > 2^18): the block engine cuts its products into such pieces, so its
+#: product of m·k·n > 2^18: its interface/gemm.c, from memory; here products of 10^6 ran
+#: threaded and 3x slower): the block engine cuts its products into such pieces, so its
 #: results do not depend on the BLAS thread count and other threads' cores stay free.
 _BLAS_PIECE = 1 << 18
 

@@ -398,6 +398,11 @@ def test_block_engine_equals_the_sample_by_sample_recursions():
         )
         n = sum(_block_size(i) for i in range(8))
         got = eng.take(n)
+        if subset is not None:  # blocks off the schedule too (sub-block counts not 16·2^k)
+            eng = _Parallel(
+                [_Normals(np.random.default_rng([9, 1]))], [0.0], [0], [1.0], [0.7], x0[st]
+            )
+            got = np.concatenate([eng._block(k) for k in (384, 1600, n - 1984)])
         expect = np.zeros(n)
         for s in keep:
             e = _Normals(np.random.default_rng([9, s])).normal(n)

@@ -11,6 +11,9 @@ sizes in the same run:
 
 * ``sensormodel`` for a few channel models (the first blocks, which pay for set-up and
   imports, are excluded);
+* ``sections``: the same models without the block engine (the innovations stream through
+  ``scipy.signal.sosfilt``, random walks as running sums: the method before it) — the ratio
+  is the engine's speed-up;
 * ``state by state``: the same models simulated as before the innovations form (one normal
   stream per Gauss-Markov/flicker state, numpy's ziggurat ``standard_normal``) — the ratio is
   the speed-up of this version;
@@ -164,6 +167,10 @@ def _worker(kind: str, case: str, n: int, rate: float, channels: int, path: str)
     else:
         if kind == "state by state":
             _state_by_state()
+        elif kind == "sections":
+            import sensormodel.simulate as simulate_module
+
+            simulate_module._ChannelGenerator._fuse = lambda self: None  # sosfilt, cumsum
         method = "power-law" if "power-law" in case else "realization"
         model = _model(_terms(case), rate, channels)
         sim = Simulator(model, seed=SEED, flicker=method)
@@ -172,6 +179,7 @@ def _worker(kind: str, case: str, n: int, rate: float, channels: int, path: str)
         info["innovations"] = gen.innovations is not None
         if gen.innovations is not None:
             info["spectrum_error"] = gen.innovations.spectrum_error
+        info["engine"] = any(type(s).__name__ == "_Parallel" for s in gen.sources)
         info["threads"] = sim.threads
 
         def call() -> None:
@@ -273,12 +281,19 @@ def main() -> None:
     print(_line("reference: numpy standard_normal (1/sample)", ref))
     for case in CASES:
         ours = _measure("sensormodel", case, n, rate)
+        sections = _measure("sections", case, n, rate)
         old = _measure("state by state", case, n, rate)
         form = "innovations" if ours.get("innovations") else "per state"
         if "spectrum_error" in ours:
             form += f", spectrum error {ours['spectrum_error']:.0e}"
+        if ours.get("engine"):
+            form += ", block engine"
         print(f"{case}  ({form})")
         print(_line("sensormodel", ours))
+        print(
+            _line("without the block engine (sosfilt, cumsum)", sections)
+            + f"   engine speed-up {sections['cpu'] / ours['cpu']:4.2f}x (CPU)"
+        )
         print(_line("state by state, ziggurat (previous method)", old))
         print(
             f"  {'':<44} speed-up {old['cpu'] / ours['cpu']:5.2f}x (CPU), "
