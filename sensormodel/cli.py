@@ -702,7 +702,7 @@ def allan_command(recording_file: str, rate: float | None, units: tuple[str, ...
     import pathlib
 
     from ._io import atomic_writer, check_writable, write_json
-    from .allan import SCHEMA_FILE, curves_to_csv, curves_to_json, overlapping
+    from .allan import SCHEMA_FILE, curves_to_csv, curves_to_json, overlapping_many
     from .errors import AnalysisError
     from .quantities import DISPLAY_UNITS, convert_from_si, format_value
     from .recording import read_recording
@@ -733,34 +733,31 @@ def allan_command(recording_file: str, rate: float | None, units: tuple[str, ...
         click.echo(f"note: {where}: {f.detail}", err=True)
 
     jobs = [(ch, k, seg) for ch in rec.channels for k, seg in enumerate(rec.segments[ch])]
-    curves, headings, display, pieces = [], [], {}, []
+    headings, display, pieces = [], {}, []
+    for ch, k, seg in jobs:  # one heading, display unit and provenance entry per piece
+        n_seg = len(rec.segments[ch])
+        cid = ch if n_seg == 1 else f"{ch}#{k + 1}"
+        pieces.append({"id": cid, "channel": ch, "column": rec.columns[ch],
+                       "start": seg.start, "stop": seg.stop, "start_time": seg.start_time})
+        quantity = rec.quantities[ch]
+        if quantity in ("angular_rate", "acceleration"):
+            unit, label = DISPLAY_UNITS[quantity]
+            display[cid] = (label, convert_from_si(1.0, quantity, unit))
+        else:
+            display[cid] = (rec.units[ch], 1.0)
+        span = (f", segment {k + 1} of {n_seg}: samples {seg.start}-{seg.stop - 1} from "
+                f"t = {format_value(seg.start_time, 's')}" if n_seg > 1 else "")
+        headings.append(
+            f"{cid} [{rec.units[ch]}]{span}: {seg.n} samples at "
+            f"{format_value(rec.rate, 'Hz')} ({_format_time(seg.n / rec.rate)}), "
+            f"{100 * confidence:.1f} % intervals"
+        )
     bar = _StderrBar("Allan deviation")
     try:
-        for j, (ch, k, seg) in enumerate(jobs):
-            n_seg = len(rec.segments[ch])
-            cid = ch if n_seg == 1 else f"{ch}#{k + 1}"
-
-            def progress(done: int, total: int, j: int = j) -> None:
-                bar(j * total + done, len(jobs) * total)
-
-            curves.append(overlapping(rec.data[ch][seg.start:seg.stop], rec.rate,
-                                      taus=taus_spec, confidence=confidence,
-                                      unit=rec.units[ch], channel=cid, progress=progress))
-            pieces.append({"id": cid, "channel": ch, "column": rec.columns[ch],
-                           "start": seg.start, "stop": seg.stop, "start_time": seg.start_time})
-            quantity = rec.quantities[ch]
-            if quantity in ("angular_rate", "acceleration"):
-                unit, label = DISPLAY_UNITS[quantity]
-                display[cid] = (label, convert_from_si(1.0, quantity, unit))
-            else:
-                display[cid] = (rec.units[ch], 1.0)
-            span = (f", segment {k + 1} of {n_seg}: samples {seg.start}-{seg.stop - 1} from "
-                    f"t = {format_value(seg.start_time, 's')}" if n_seg > 1 else "")
-            headings.append(
-                f"{cid} [{rec.units[ch]}]{span}: {seg.n} samples at "
-                f"{format_value(rec.rate, 'Hz')} ({_format_time(seg.n / rec.rate)}), "
-                f"{100 * confidence:.1f} % intervals"
-            )
+        curves = overlapping_many([rec.data[ch][seg.start:seg.stop] for ch, _, seg in jobs],
+                                  rec.rate, taus=taus_spec, confidence=confidence,
+                                  units=[rec.units[ch] for ch, _, _ in jobs],
+                                  channels=[p["id"] for p in pieces], progress=bar)
     finally:
         bar.close()
 
@@ -1186,7 +1183,7 @@ def identify_command(recording_file: str, output: str, terms: str, confidence: f
     import pathlib
 
     from ._io import check_writable
-    from .allan import overlapping
+    from .allan import overlapping_many
     from .errors import AnalysisError
     from .identify import fit, to_model
     from .quantities import format_value
@@ -1204,13 +1201,20 @@ def identify_command(recording_file: str, output: str, terms: str, confidence: f
     for f in rec.findings:
         where = f"{rec.source}:{f.where}" if f.where else rec.source
         click.echo(f"note: {where}: {f.detail}", err=True)
+    bar = _StderrBar("Allan deviation")
+    try:
+        firsts = [rec.segments[ch][0] for ch in rec.channels]
+        curves = overlapping_many([rec.data[ch][seg.start:seg.stop]
+                                   for ch, seg in zip(rec.channels, firsts, strict=True)],
+                                  rec.rate, taus=taus_spec,
+                                  units=[rec.units[ch] for ch in rec.channels],
+                                  channels=list(rec.channels), progress=bar)
+    finally:
+        bar.close()
     results = []
     bar = _StderrBar("bootstrap")
     try:
-        for j, ch in enumerate(rec.channels):
-            seg = rec.segments[ch][0]
-            curve = overlapping(rec.data[ch][seg.start:seg.stop], rec.rate, taus=taus_spec,
-                                unit=rec.units[ch], channel=ch)
+        for j, curve in enumerate(curves):
 
             def progress(done: int, total: int, j: int = j) -> None:
                 bar(j * total + done, len(rec.channels) * total)
