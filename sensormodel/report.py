@@ -375,6 +375,7 @@ def verdict_document(report) -> dict:
                         "high": hi,
                     },
                     "note": t.note,
+                    "limit_test": None if t.limit_test is None else dict(t.limit_test),
                 }
             )
         c = ch.curve
@@ -451,9 +452,15 @@ def _verdict_row_note(t) -> str:
     if t.verdict != "inconclusive":
         return ""
     where = f" (read at τ ≈ {t.read_at:.3g} s)" if t.read_at else ""
+    test = getattr(t, "limit_test", None) or {}
+    why = (
+        "interval excluded the limit, the test at the limit did not confirm; "
+        if (test.get("confirmed") is False)
+        else ""
+    )
     if t.required_duration is None:
-        return f"no record length decides it: {t.note}"
-    return f"needs a record of ≈ {format_duration(t.required_duration)}{where}"
+        return f"{why}no record length decides it: {t.note}"
+    return f"{why}needs a record of ≈ {format_duration(t.required_duration)}{where}"
 
 
 def verdict_text(report) -> str:
