@@ -1337,7 +1337,8 @@ class _ChannelGenerator(_Source):
 
     def _fuse(self) -> None:
         """Run the innovations stream and the single-state random walks (each its own normal
-        stream) as one :class:`_Parallel` source, when there is at least one state."""
+        stream) as one :class:`_Parallel` source, when the innovations stream has poles (white
+        noise and random walks alone are as fast as a scaled stream and a running sum)."""
         normals: list[Any] = []
         direct: list[float] = []
         stream: list[int] = []
@@ -1345,10 +1346,12 @@ class _ChannelGenerator(_Source):
         gains: list[float] = []
         state: list[float] = []
         rest: list[_Source] = []
+        coloured = False
         for src in self.sources:
             if isinstance(src, _Innovations) and isinstance(src._normals, _Normals):
                 d = src.innovations
                 if src._zi is not None:
+                    coloured = True
                     stream += [len(normals)] * d.poles.size
                     poles += d.poles.tolist()
                     gains += (d.std * d.gains).tolist()
@@ -1374,7 +1377,7 @@ class _ChannelGenerator(_Source):
                 direct.append(float(b0))
             else:
                 rest.append(src)
-        if poles:
+        if coloured:
             self.sources = [_Parallel(normals, direct, stream, poles, gains, state), *rest]
 
     def _block(self, size: int) -> _FloatArray:
