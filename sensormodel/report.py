@@ -304,7 +304,10 @@ def _conventions(report) -> dict[str, str]:
         ),
         "verdict": (
             "pass: the whole interval is within the limit; fail: the whole interval is beyond "
-            "it; inconclusive: the limit lies inside the interval."
+            "it; inconclusive: the limit lies inside the interval. A pass or fail call must be "
+            "confirmed by a parametric bootstrap test at the limit (records simulated with the "
+            "term held at the limit); where it is not, the term is inconclusive and its "
+            "interval is widened to the limit."
         ),
         "limits": (
             f"Limits are the datasheet's {report.against} values. Densities are IEEE Std 952 "
