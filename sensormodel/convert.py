@@ -158,16 +158,24 @@ def axis_terms(ax: AxisSpec, *, basis: str = "typ") -> tuple[list[Term], list[st
     band = values["bandwidth"].pick("typ")[0] if "bandwidth" in values else None
     order = (ax.filter_order or 1) if band is not None else None
     walk = "angle_random_walk" if ax.instrument == "gyro" else "velocity_random_walk"
+    white_meta = None
     if walk in values:
         n, text, used = pick(walk)
-        terms.append(White(density=n, bandwidth=band, filter_order=order,
-                           meta=_meta(ax, walk, basis, text, used)))
+        white_meta = _meta(ax, walk, basis, text, used)
     elif "noise_density" in values:
         n, text, used = pick("noise_density")
+        white_meta = _meta(ax, "noise_density", basis, text, used)
         if conv["density_is"] == "one-sided":
             n /= math.sqrt(2.0)
-        terms.append(White(density=n, bandwidth=band, filter_order=order,
-                           meta=_meta(ax, "noise_density", basis, text, used)))
+            white_meta["datasheet"]["convention"] = "one-sided"
+    if white_meta is not None:
+        if band is not None:
+            # where the band limit came from (the density's own field gives only N)
+            white_meta["datasheet"]["bandwidth_field"] = ax.origin.get("bandwidth", "bandwidth")
+            white_meta["datasheet"]["filter_order_field"] = (
+                "datasheet filter_order" if ax.filter_order else "not printed: 1-pole assumed"
+            )
+        terms.append(White(density=n, bandwidth=band, filter_order=order, meta=white_meta))
     if "bias_instability" in values:
         b, text, used = pick("bias_instability")
         floor = b if conv["bias_instability_is"] == "floor" else b * FLOOR_FACTOR
@@ -254,8 +262,10 @@ def datasheet_to_model(ds: Datasheet, *, worst_case: bool = False):
         rate, _, _ = ax.values["sample_rate"].pick("typ")
         bw = ax.values["bandwidth"].pick("typ")[0] if "bandwidth" in ax.values else None
         if bw is not None and ax.filter_order is None:
-            notes.append(f"{ax.channel_id}: bandwidth without filter_order; a 1-pole "
-                         "(first-order) output filter is assumed")
+            notes.append(
+                f"{ax.channel_id}: bandwidth without filter_order; a 1-pole "
+                "(first-order) output filter is assumed"
+            )
         channels.append(
             Channel(
                 id=ax.channel_id,

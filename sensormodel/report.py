@@ -99,8 +99,13 @@ def term_rows(channel) -> list[TermRow]:
         for name, value in term.parameters().items():
             rel = type(term).units.get(name, "")
             kind = _param_kind(channel.unit, rel)
+            where = origin
+            if name == "bandwidth" and ds.get("bandwidth_field"):
+                where = ds["bandwidth_field"]
+            elif name == "filter_order" and ds.get("filter_order_field"):
+                where = ds["filter_order_field"]
             if rel == "1":  # a plain count (filter order)
-                rows.append(TermRow(term.type, name, f"{value:g}", f"{value:g}", origin))
+                rows.append(TermRow(term.type, name, f"{value:g}", f"{value:g}", where))
                 continue
             if isinstance(value, (list, tuple)):  # shaped filter polynomials in s
                 si = "[" + ", ".join(f"{v:.4g}" for v in value) + "] (in s)"
@@ -121,12 +126,15 @@ def term_rows(channel) -> list[TermRow]:
                 else:
                     pretty = unit_text
                 display = format_value(convert_from_si(value, kind, unit_text), pretty)
+                if ds.get("convention") == "one-sided" and name == "density":
+                    # the model's N is the IEEE (two-sided) density: say so beside the print
+                    display += f" two-sided (printed one-sided: {ds.get('text', '')})"
                 if term.type == "flicker" and name == "coefficient":
                     from .convert import FLOOR_FACTOR
 
                     floor = convert_from_si(value * FLOOR_FACTOR, kind, unit_text)
                     display += f" (Allan floor {format_value(floor, pretty)})"
-            rows.append(TermRow(term.type, name, si, display, origin))
+            rows.append(TermRow(term.type, name, si, display, where))
     return rows
 
 

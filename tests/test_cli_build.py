@@ -250,6 +250,22 @@ def test_inspect_rate_and_channel(runner, examples_dir, tmp_path):
     expected = math.radians(5e-3) / math.sqrt(2) * math.sqrt(100.0)
     assert (rate, unit) == ("100", "rad/s")
     assert float(std) == pytest.approx(expected, rel=5e-4)
+    # the density row says which convention its number is in, and shows the print
+    row = next(line for line in result.stdout.splitlines() if "density" in line)
+    assert "0.003536 dps/rtHz two-sided (printed one-sided: 5 x 10^-3 dps/rtHz)" in row
+
+
+def test_inspect_names_the_bandwidth_field(runner, examples_dir, tmp_path):
+    # BW-M200 prints its output bandwidth in [sensor]: the band-limited white term's bandwidth
+    # row comes from there, not from the density's field
+    model = tmp_path / "m200.json"
+    args = ["build", str(examples_dir / "bw-m200.toml"), "-o", str(model)]
+    assert runner.invoke(cli, args).exit_code == 0
+    out = runner.invoke(cli, ["inspect", str(model), "--channel", "gyro.x"]).stdout
+    rows = {line.split()[1]: line for line in out.splitlines() if line.strip().startswith("white")}
+    assert rows["density"].rstrip().endswith("gyro.noise_density")
+    assert rows["bandwidth"].rstrip().endswith("sensor.bandwidth")
+    assert rows["filter_order"].rstrip().endswith("datasheet filter_order")
 
 
 def test_inspect_refuses_bad_rate(runner, t900_model):
