@@ -282,16 +282,20 @@ COVERAGE_BOOT = 100
 COVERAGE_TRUTH = {"white": 0.21, "flicker": 1.0, "random_walk": 0.813}
 
 
-def _coverage_trial(k: int) -> dict[str, tuple[float, float, float, bool, float, float, float]]:
-    rng = np.random.default_rng(100_000 + k)
-    n = COVERAGE_SAMPLES
+def _truth_record(seed: int, n: int) -> np.ndarray:
+    """A record of the coverage study's model (:data:`COVERAGE_TRUTH`) from the independent
+    generators."""
+    rng = np.random.default_rng(seed)
     t = COVERAGE_TRUTH
-    y = (
+    return (
         white(rng, n, RATE, t["white"])
         + flicker(rng, n, RATE, t["flicker"])
         + random_walk(rng, n, RATE, t["random_walk"])
     )
-    curve = overlapping(y, RATE)
+
+
+def _coverage_trial(k: int) -> dict[str, tuple[float, float, float, bool, float, float, float]]:
+    curve = overlapping(_truth_record(100_000 + k, COVERAGE_SAMPLES), RATE)
     result = identify.fit(curve, seed=k, n_boot=COVERAGE_BOOT)
     # the naive interval: weighted least squares with independent points of variance
     # 2·AVAR²/edf (what a per-point fit would state), 90 %, on the variance scale
@@ -601,14 +605,8 @@ LEVEL_SAMPLES = 4096
 def _level_trial(k: int) -> dict[str, tuple[float, float, float, float]]:
     """One record of the coverage study's model (white, flicker between it and a random walk),
     fitted, then each term tested at its true value: (p_above, p_below, low, high)."""
-    rng = np.random.default_rng(300_000 + k)
     t = COVERAGE_TRUTH
-    n = LEVEL_SAMPLES
-    y = (
-        white(rng, n, RATE, t["white"])
-        + flicker(rng, n, RATE, t["flicker"])
-        + random_walk(rng, n, RATE, t["random_walk"])
-    )
+    y = _truth_record(300_000 + k, LEVEL_SAMPLES)
     idn = identify.fit(_curve(y), terms=("white", "flicker", "random_walk"), seed=k, n_boot=41)
     out = {}
     for name in ("white", "flicker"):
