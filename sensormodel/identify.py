@@ -83,6 +83,7 @@ from the nearest end point along its line, and a note says so.
 from __future__ import annotations
 
 import math
+import threading
 from collections.abc import Callable, Mapping, Sequence
 from dataclasses import dataclass, field
 from typing import Any
@@ -1505,9 +1506,13 @@ def _bootstrap(
 
     workers = 1 if c.n < _THREAD_MIN_SAMPLES else min(2, _usable_cpus(), count)
 
+    sim = _Simulator(params, time_constant, c.n, c.rate)  # read-only: shared by the threads
+    local = threading.local()  # the Allan-variance buffers: one set per thread
+
     def run(indices: range) -> None:
-        sim = _Simulator(params, time_constant, c.n, c.rate)
-        oavar = _Oavar(c.n, c.m)
+        oavar = getattr(local, "oavar", None)
+        if oavar is None:
+            oavar = local.oavar = _Oavar(c.n, c.m)
         for i in indices:
             out[i] = oavar(sim.record(np.random.default_rng(children[i])))
 
