@@ -17,7 +17,13 @@ One float64 phase array is built block by block (the only copy of the input; a
 :class:`numpy.memmap` is read block by block), then every τ is evaluated block-major: for each
 block of ``_BLOCK`` second differences, all τ of the grid are accumulated while the phase slices
 are still in cache, so the memory traffic per τ is about one stream instead of three. The index
-range is split across threads (numpy releases the GIL in its loops); the phase array is only read.
+range is cut into fixed chunks of 2^20 second differences that worker threads share (numpy
+releases the GIL in its loops; the phase array is only read); each chunk's sums are kept and the
+chunks added exactly (``math.fsum``), so a result does not depend on the number of threads, to
+the bit. The noise identification runs beside the chunks. Several records
+(:func:`overlapping_many`) share one pool of workers: all take chunks of the earliest unfinished
+record, and the next record's phase is built by the first worker that runs out of chunks; at
+most one phase array per worker exists at a time, and a finished record's array is reused.
 Peak memory is the phase array (8 (n+1) bytes) plus a few blocks per thread.
 
 Precision: the phase is formed exactly as ``allantools.frequency2phase`` forms it (mean removed,
@@ -1429,8 +1435,8 @@ def overlapping(
     channel : str
         Channel id kept in the result.
     threads : int, optional
-        Threads for the engine (default: up to 2 usable CPUs for records of 2^20 samples or
-        more, else 1). Results do not depend on it beyond rounding (summation order).
+        Threads for the engine (default: one per usable CPU for records of 2^20 samples or
+        more, else the calling thread only). Results do not depend on it, to the bit.
     progress : callable, optional
         ``progress(done, total)`` is called from the calling thread as the work advances
         (work units are samples processed; ``done == total`` at the end). Nothing is printed.
