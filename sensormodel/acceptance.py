@@ -105,6 +105,7 @@ __all__ = [
     "allan_edf",
     "reading_tau",
     "fit_terms",
+    "output_filter",
     "TermVerdict",
     "CurveCheck",
     "ChannelVerdict",
@@ -947,6 +948,15 @@ def fit_terms(ax: AxisSpec) -> tuple[str, ...]:
     return tuple(t for t in order if t in wanted)
 
 
+def output_filter(ax: AxisSpec) -> tuple[float | None, int | None]:
+    """The channel's output filter from its datasheet: (bandwidth [Hz], Butterworth order), or
+    (None, None) when none is printed. The white term is fitted as band-limited white through
+    it (a 1-pole filter where the order is not printed, as in the datasheet model)."""
+    if "bandwidth" not in ax.values:
+        return None, None
+    return float(ax.values["bandwidth"].pick("typ")[0]), int(ax.filter_order or 1)
+
+
 def _fitted(identification: Any, term: str, parameter: str) -> Any | None:
     for ft in identification.terms:
         if ft.term == term and ft.parameter == parameter:
@@ -995,8 +1005,15 @@ def verify_curve(
     if identification is None:
         from .identify import fit
 
+        bandwidth, order = output_filter(ax)
         identification = fit(
-            curve, terms=list(fit_terms(ax)), confidence=confidence, seed=seed, n_boot=n_boot
+            curve,
+            terms=list(fit_terms(ax)),
+            confidence=confidence,
+            seed=seed,
+            n_boot=n_boot,
+            bandwidth=bandwidth,
+            filter_order=order,
         )
     fitted_types = {ft.term for ft in identification.terms}
     model = identification.to_channel() if hasattr(identification, "to_channel") else None

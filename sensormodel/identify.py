@@ -68,9 +68,11 @@ misses a true value below it in 10-13 % of records instead of α = 5 % (the othe
 conservative). A decision against a given value (a datasheet limit) therefore uses
 :func:`limit_test`, which simulates *at* that value.
 
-Assumptions: the samples are means over their sample period (an output filter that rolls off
-within a few sample periods lowers the first points of the curve; leave them out with an explicit
-τ grid); the terms are independent; a flicker term has its cut-off at the Nyquist frequency.
+Assumptions: the samples are means over their sample period, of white noise that is either
+unfiltered or band-limited by a stated output filter (``bandwidth``, ``filter_order``: an
+unstated filter that rolls off within a few sample periods lowers the first points of the curve
+and is read as less white noise and more flicker); the terms are independent; a flicker term
+has its cut-off at the Nyquist frequency.
 
 Classical slope readings (IEEE Std 952-1997 Annex C) are reported beside the fit: white density
 N = σ(τ)·√τ from the point nearest τ = 1 s (on the −½ line), random walk K = σ(τ)·√(3/τ) from
@@ -86,6 +88,7 @@ import math
 import threading
 from collections.abc import Callable, Mapping, Sequence
 from dataclasses import dataclass, field
+from functools import lru_cache
 from typing import Any
 
 import numpy as np
@@ -255,6 +258,8 @@ class Identification:
         Bootstrap records used.
     seed : int or None
         The bootstrap seed.
+    white_filter : (float, int) or None
+        The output filter (bandwidth [Hz], Butterworth order) the white term was fitted with.
     refit_state : object or None
         What :func:`limit_test` needs to repeat the fit on new records (the checked curve, the
         design, the terms in the estimate); None for an identification not made by :func:`fit`.
@@ -273,6 +278,7 @@ class Identification:
     chi2: float = 0.0
     n_boot: int = 0
     seed: int | None = None
+    white_filter: tuple[float, int] | None = None
     refit_state: Any = field(default=None, repr=False, compare=False)
 
     def term(self, name: str) -> FittedTerm | None:
@@ -288,7 +294,7 @@ class Identification:
         return self.n_samples / self.sample_rate
 
     def _model_terms(self, *, supported_only: bool) -> list[Any]:
-        from .terms import Flicker, GaussMarkov, Quantization, Ramp, RandomWalk, White
+        from .terms import Flicker, GaussMarkov, Quantization, Ramp, RandomWalk
 
         out = []
         for ft in self.terms:
@@ -300,7 +306,7 @@ class Identification:
                 "origin": "identified",
             }
             if ft.term == "white":
-                out.append(White(density=ft.estimate, meta=meta))
+                out.append(_white_term(ft.estimate, self.white_filter, meta=meta))
             elif ft.term == "flicker":
                 out.append(Flicker(coefficient=ft.estimate, meta=meta))
             elif ft.term == "random_walk":
@@ -528,11 +534,17 @@ def _check_curve(curve: Any, n_terms: int) -> _Curve:
 # ---------------------------------------------------------------------------------------------
 
 
-def _basis(name: str, tau: _FloatArray, rate: float, time_constant: float = 1.0) -> _FloatArray:
-    from .terms import Flicker, GaussMarkov, Quantization, Ramp, RandomWalk, White
+def _basis(
+    name: str,
+    tau: _FloatArray,
+    rate: float,
+    time_constant: float = 1.0,
+    white_filter: tuple[float, int] | None = None,
+) -> _FloatArray:
+    from .terms import Flicker, GaussMarkov, Quantization, Ramp, RandomWalk
 
     if name == "white":
-        term: Any = White(density=1.0)
+        term: Any = _white_term(1.0, white_filter)
     elif name == "flicker":
         term = Flicker(coefficient=1.0)
     elif name == "random_walk":
@@ -544,6 +556,36 @@ def _basis(name: str, tau: _FloatArray, rate: float, time_constant: float = 1.0)
     else:
         term = GaussMarkov(sigma=1.0, time_constant=time_constant)
     return np.asarray(term.allan_variance(tau, sample_rate=rate), dtype=np.float64)
+
+
+def _white_term(density: float, white_filter: tuple[float, int] | None, **meta: Any) -> Any:
+    """White noise of density N [u·√s], band-limited by the sensor's output filter (bandwidth
+    [Hz], Butterworth order) when one is given."""
+    from .terms import White
+
+    if white_filter is None:
+        return White(density=density, **meta)
+    return White(density=density, bandwidth=white_filter[0], filter_order=white_filter[1], **meta)
+
+
+def _check_white_filter(bandwidth: Any, filter_order: Any) -> tuple[float, int] | None:
+    if bandwidth is None:
+        if filter_order is not None:
+            raise AnalysisError(
+                f"filter_order {filter_order!r} without a bandwidth",
+                "a bandwidth [Hz] with the filter order",
+                field="filter_order",
+            )
+        return None
+    if isinstance(bandwidth, bool) or not isinstance(bandwidth, (int, float, np.floating)):
+        raise AnalysisError(f"got {bandwidth!r}", "a bandwidth [Hz] > 0", field="bandwidth")
+    bw = float(bandwidth)
+    if not math.isfinite(bw) or bw <= 0:
+        raise AnalysisError(f"got {bandwidth!r}", "a bandwidth [Hz] > 0", field="bandwidth")
+    order = 1 if filter_order is None else filter_order
+    if isinstance(order, bool) or not isinstance(order, (int, np.integer)) or not 1 <= order <= 8:
+        raise AnalysisError(f"got {filter_order!r}", "a filter order 1 to 8", field="filter_order")
+    return bw, int(order)
 
 
 # ---------------------------------------------------------------------------------------------
@@ -563,6 +605,7 @@ class _Design:
     gm_index: int | None
     gm_grid: _FloatArray | None
     gm_columns: _FloatArray | None  # (n_grid, k)
+    white_filter: tuple[float, int] | None = None  # the white term's band limit
 
     def with_gm(self, time_constant: float) -> _FloatArray:
         phi = self.phi.copy()
@@ -571,21 +614,23 @@ class _Design:
         return phi
 
 
-def _design(names: tuple[str, ...], c: _Curve) -> _Design:
+def _design(
+    names: tuple[str, ...], c: _Curve, white_filter: tuple[float, int] | None = None
+) -> _Design:
     phi = np.zeros((c.tau.size, len(names)))
     gm_index = None
     for j, name in enumerate(names):
         if name == "gauss_markov":
             gm_index = j
         else:
-            phi[:, j] = _basis(name, c.tau, c.rate)
+            phi[:, j] = _basis(name, c.tau, c.rate, white_filter=white_filter)
     grid = cols = None
     if gm_index is not None:
         lo = math.log10(c.tau[0] / 4.0)
         hi = math.log10(c.tau[-1] * 2.0)
         grid = 10.0 ** np.arange(lo, hi + 1e-9, 1.0 / _GM_PER_DECADE)
         cols = np.array([_basis("gauss_markov", c.tau, c.rate, t) for t in grid])
-    return _Design(names, c.tau, c.rate, c.edf, phi, gm_index, grid, cols)
+    return _Design(names, c.tau, c.rate, c.edf, phi, gm_index, grid, cols, white_filter)
 
 
 def _irls(
@@ -705,7 +750,10 @@ class _Simulator:
     L = 2n samples of which the first n are kept, with the one-sided PSD of the sample means
     (0 < f ≤ rate/2, dt = 1/rate):
 
-    * white N: flat 2N² (variance N²·rate per sample; IEEE Std 952 Annex C);
+    * white N: flat 2N² (variance N²·rate per sample; IEEE Std 952 Annex C); band-limited by
+      an output filter B (bandwidth, Butterworth order): 2N² Σ_k |B(f + k·rate)|²
+      sinc²((f + k·rate)·dt), the period means' spectrum folded into the band (integrate, then
+      sample; for B = 1 the sum is 1);
     * quantization Q: 8Q²·rate·sin²(πf dt), the PSD of (e_{k+1} − e_k)/dt with e white of
       variance Q² (its covariance is banded, so the circular embedding is exact on n samples);
     * flicker B: (B²/(πf))·sinc²(f dt): the 1/f PSD B²/(πf) up to rate/2 (two-sided
@@ -725,7 +773,12 @@ class _Simulator:
     """
 
     def __init__(
-        self, params: Mapping[str, float], time_constant: float | None, n: int, rate: float
+        self,
+        params: Mapping[str, float],
+        time_constant: float | None,
+        n: int,
+        rate: float,
+        white_filter: tuple[float, int] | None = None,
     ) -> None:
         self.n = int(n)
         self.rate = float(rate)
@@ -738,7 +791,8 @@ class _Simulator:
         k = params.get("random_walk", 0.0)
         q = params.get("quantization", 0.0)
         b = params.get("flicker", 0.0)
-        s1[1:] += 2.0 * w**2 + k**2 * dt**2 / 6.0
+        s1[1:] += k**2 * dt**2 / 6.0
+        s1[1:] += 2.0 * w**2 * _white_alias_sum(f[1:], self.rate, white_filter)
         s1[1:] += 8.0 * q**2 * self.rate * np.sin(np.pi * f[1:] * dt) ** 2
         s1[1:] += b**2 / (np.pi * f[1:]) * np.sinc(f[1:] * dt) ** 2
         # E|Z_j|² = L·S1(f_j)/(2 dt): then Var y = Σ S1(f_j) Δf with Δf = 1/(L dt)
@@ -810,6 +864,51 @@ class _Simulator:
         x = lfilter([1.0], [1.0, -phi], drive)
         integral = tc * (1.0 - phi) * x + g * w + rng.standard_normal(n) * math.sqrt(ve)
         return integral / dt
+
+
+#: Aliases folded one by one into the band-limited white spectrum of the bootstrap (the rest
+#: as an integral).
+_ALIASES = 64
+
+
+def _white_alias_sum(
+    f: _FloatArray, rate: float, white_filter: tuple[float, int] | None
+) -> _FloatArray:
+    """Σ_k |B(f + k·rate)|² sinc²((f + k·rate)/rate) for 0 < f ≤ rate/2 (1 without a filter).
+
+    With x = f/rate, sinc²(x + k) = sin²(πx)/(π(x + k))² for every k, so the sum is
+    sin²(πx)/π² · Σ_k |B|²/(x + k)², |B(g)|² = 1/(1 + (g/bandwidth)^(2·order)) (Butterworth).
+    """
+    if white_filter is None:
+        return np.ones(f.shape)
+    return _alias_sum_cached(f.size, float(f[0]), float(f[-1]), rate, white_filter).copy()
+
+
+@lru_cache(maxsize=4)
+def _alias_sum_cached(
+    size: int, f_first: float, f_last: float, rate: float, white_filter: tuple[float, int]
+) -> _FloatArray:
+    from scipy.integrate import quad
+    from scipy.interpolate import CubicSpline
+
+    bw, order = white_filter
+    c = rate / bw
+    x = np.linspace(f_first, f_last, size) / rate
+    total = np.zeros(size)
+    for k in range(-_ALIASES, _ALIASES + 1):
+        g = x + k
+        total += 1.0 / (g * g * (1.0 + ((g * c) ** 2) ** order))
+    # the aliases beyond ±K by the midpoint rule, Σ_{k>K} h(x + k) ≈ ∫_{K+½}^∞ h(x + t) dt
+    # (error ~h'/24 ≈ 3e-7 of the sum at K = 64), the integral G tabulated on [K, K + 1]
+    def h(u: float) -> float:
+        return 1.0 / (u * u * (1.0 + (c * u) ** (2 * order)))
+
+    grid = np.linspace(_ALIASES, _ALIASES + 1.0, 17)
+    tail = CubicSpline(grid, [quad(h, u0, np.inf, epsabs=0.0, epsrel=1e-12)[0] for u0 in grid])
+    total += tail(_ALIASES + 0.5 + x) + tail(_ALIASES + 0.5 - x)
+    total *= (np.sin(np.pi * x) / np.pi) ** 2
+    total.setflags(write=False)
+    return total
 
 
 class _Oavar:
@@ -1069,6 +1168,8 @@ def fit(
     seed: int | None = None,
     n_boot: int | None = None,
     progress: ProgressCallback | None = None,
+    bandwidth: float | None = None,
+    filter_order: int | None = None,
 ) -> Identification:
     """Identify noise terms from an overlapping Allan-deviation curve.
 
@@ -1095,6 +1196,14 @@ def fit(
         selection uses max(⌈2/α⌉, n_boot/2) more.
     progress : callable, optional
         ``progress(done, total)`` after each batch of bootstrap records.
+    bandwidth : float, optional
+        The sensor's output filter [Hz] (−3 dB), when it rolls off within a few sample periods:
+        the white term is then band-limited white (:class:`sensormodel.terms.White` with this
+        bandwidth: its Allan variance falls below N²/τ at τ ≲ 1/bandwidth), in the fit and in
+        the bootstrap. Without it the samples are taken as unfiltered period means, and a
+        band-limited record's first τ would be read as less white noise and more flicker.
+    filter_order : int, optional
+        Butterworth order of that filter (1 to 8; default 1 with a bandwidth).
 
     Returns
     -------
@@ -1109,6 +1218,7 @@ def fit(
         (0, 1), too few bootstrap records.
     """
     names = _check_terms(terms)
+    white_filter = _check_white_filter(bandwidth, filter_order)
     confidence = _check_confidence(confidence)
     n_boot = _check_n_boot(n_boot, confidence)
     seed = _check_seed(seed)
@@ -1120,7 +1230,7 @@ def fit(
     p = len(names)
 
     # 1. all requested terms
-    d_full = _design(names, c)
+    d_full = _design(names, c, white_filter)
     coef_full, _chi2, t_full = _fit_one(c.avar, d_full)
     if not np.any(coef_full > 0):
         raise AnalysisError(
@@ -1133,8 +1243,9 @@ def fit(
     coef_u = a_lin @ c.avar
 
     # 2. selection bootstrap: records from the full fit, the unconstrained estimate's spread
+    wf = d_full.white_filter
     av1 = _bootstrap(
-        _params(names, coef_full), t_full, c, n_pilot, seeds.spawn(1)[0], progress, 0, total
+        _params(names, coef_full), t_full, c, n_pilot, seeds.spawn(1)[0], progress, 0, total, wf
     )
     dev = av1 @ a_lin.T - coef_full[None, :]  # the records were drawn with coef_full
     lin_high = np.maximum(coef_u, 0.0) - np.array([_quantile(dev[:, j], alpha) for j in range(p)])
@@ -1176,7 +1287,7 @@ def fit(
         return out, out_t
 
     av2 = _bootstrap(
-        _params(names, coef), t_gm, c, n_boot, seeds.spawn(1)[0], progress, n_pilot, total
+        _params(names, coef), t_gm, c, n_boot, seeds.spawn(1)[0], progress, n_pilot, total, wf
     )
     boot, boot_t = refits(av2)
 
@@ -1269,6 +1380,7 @@ def fit(
         chi2=chi2,
         n_boot=n_boot,
         seed=seed,
+        white_filter=white_filter,
         refit_state=_RefitState(
             curve=c,
             design=d_full,
@@ -1428,7 +1540,15 @@ def limit_test(
     null[j] = held
     params = _params(d.names, null)
     av = _bootstrap(
-        params, t_null, c, int(n_records), np.random.SeedSequence(seed), progress, 0, n_records
+        params,
+        t_null,
+        c,
+        int(n_records),
+        np.random.SeedSequence(seed),
+        progress,
+        0,
+        n_records,
+        d.white_filter,
     )
     null_model = _phi(d, t_null) @ null
     stats = np.array([_fit_subset(a, d, mask, start=null_model)[0][j] for a in av])
@@ -1475,6 +1595,7 @@ def _fit_subset(
         gm_index=None if gm is None else int(np.flatnonzero(idx == gm)[0]),
         gm_grid=d.gm_grid if gm is not None else None,
         gm_columns=d.gm_columns if gm is not None else None,
+        white_filter=d.white_filter,
     )
     c_sub, _chi2, t = _fit_one(avar, sub, start=start, offset=offset)
     out = np.zeros(len(d.names))
@@ -1491,6 +1612,7 @@ def _bootstrap(
     progress: ProgressCallback | None,
     done_before: int,
     total: int,
+    white_filter: tuple[float, int] | None = None,
 ) -> _FloatArray:
     """Allan variances at the curve's τ of ``count`` records simulated from ``params``.
 
@@ -1506,7 +1628,8 @@ def _bootstrap(
 
     workers = 1 if c.n < _THREAD_MIN_SAMPLES else min(2, _usable_cpus(), count)
 
-    sim = _Simulator(params, time_constant, c.n, c.rate)  # read-only: shared by the threads
+    # read-only: shared by the threads
+    sim = _Simulator(params, time_constant, c.n, c.rate, white_filter)
     local = threading.local()  # the Allan-variance buffers: one set per thread
 
     def run(indices: range) -> None:
@@ -1549,6 +1672,8 @@ def fit_recording(
     seed: int | None = None,
     n_boot: int | None = None,
     progress: ProgressCallback | None = None,
+    bandwidth: float | None = None,
+    filter_order: int | None = None,
 ) -> list[Identification]:
     """Identify every channel of a :class:`sensormodel.recording.Recording`.
 
@@ -1564,9 +1689,9 @@ def fit_recording(
         Channel ids to identify (default all).
     taus : optional
         τ grid for the Allan deviation (see :func:`sensormodel.allan.tau_grid`).
-    terms, confidence, seed, n_boot, progress
-        As for :func:`fit`; ``progress(done, total)`` counts bootstrap records over all
-        channels.
+    terms, confidence, seed, n_boot, progress, bandwidth, filter_order
+        As for :func:`fit` (the same output filter for every channel); ``progress(done,
+        total)`` counts bootstrap records over all channels.
     """
     from .allan import overlapping
 
@@ -1601,7 +1726,16 @@ def fit_recording(
                 progress(base + done, total)
 
         out.append(
-            fit(curve, terms=terms, confidence=confidence, seed=seed, n_boot=n_boot, progress=sub)
+            fit(
+                curve,
+                terms=terms,
+                confidence=confidence,
+                seed=seed,
+                n_boot=n_boot,
+                progress=sub,
+                bandwidth=bandwidth,
+                filter_order=filter_order,
+            )
         )
     return out
 

@@ -135,6 +135,9 @@ def test_oavar_engine_matches_reference_libraries() -> None:
     ("params", "time_constant", "extra"),
     [
         ({"white": 0.3}, None, 0.0),
+        # through a 1-pole output filter at 2 Hz (sample rate 10 Hz): a Gauss-Markov process
+        # of T = 1/(2π·2 Hz), σ² = N²·π·2 Hz (two-sided N²|B|² integrated), IEEE 952 Markov row
+        ({"white": 0.3, "white_filter": (2.0, 1)}, None, 0.0),
         ({"quantization": 0.02}, None, 0.0),
         ({"random_walk": 0.1}, None, 0.0),
         # spectral synthesis over 2n samples with the slope for the missing band: within 1 %
@@ -143,19 +146,35 @@ def test_oavar_engine_matches_reference_libraries() -> None:
         ({"ramp": 0.01}, None, 0.0),
         ({"gauss_markov": 0.5}, 2.0, 0.0),
     ],
-    ids=["white", "quantization", "random_walk", "flicker", "ramp", "gauss_markov"],
+    ids=[
+        "white",
+        "band-limited white",
+        "quantization",
+        "random_walk",
+        "flicker",
+        "ramp",
+        "gauss_markov",
+    ],
 )
 def test_simulator_has_the_exact_allan_variance(params, time_constant, extra) -> None:
     n, rate = 4096, 10.0
     m = 2 ** np.arange(10)  # τ up to n/8 samples
     tau = m / rate
-    sim = identify._Simulator(params, time_constant, n, rate)
+    params = dict(params)
+    white_filter = params.pop("white_filter", None)
+    sim = identify._Simulator(params, time_constant, n, rate, white_filter)
     rng = np.random.default_rng(5)
     engine = identify._Oavar(n, m)
     samples = np.array([engine(sim.record(rng)) for _ in range(300)])
     (name, value), *_ = params.items()
+    if white_filter is not None:
+        name = "band-limited white"
+        bw = white_filter[0]
+        t_c = 1.0 / (2.0 * math.pi * bw)
+        sigma = value * math.sqrt(math.pi * bw)
     theory = {
         "white": lambda: ieee952.avar_white(tau, value),
+        "band-limited white": lambda: ieee952.avar_markov(tau, sigma * math.sqrt(2.0 / t_c), t_c),
         "quantization": lambda: ieee952.avar_quantization(tau, value),
         "random_walk": lambda: ieee952.avar_random_walk(tau, value),
         "flicker": lambda: flicker_avar(tau, value, rate / 2.0),
@@ -169,6 +188,28 @@ def test_simulator_has_the_exact_allan_variance(params, time_constant, extra) ->
         np.testing.assert_allclose(samples.mean(axis=0), theory, rtol=1e-9)
     else:
         _mean_within(samples, theory, extra)
+    if white_filter is not None:
+        # the fit's basis is the same curve (terms.White with the bandwidth), and far above
+        # the filter's time constant it is the plain white line
+        basis = identify._basis("white", tau, rate, white_filter=white_filter) * value**2
+        np.testing.assert_allclose(basis, theory, rtol=1e-9)
+        assert theory[0] < 0.7 * ieee952.avar_white(tau[0], value)
+        # (the relative gap is about 3T/(2τ), 2.3e-3 at τ = 51.2 s)
+        np.testing.assert_allclose(theory[-1], ieee952.avar_white(tau[-1], value), rtol=3e-3)
+
+
+def test_band_limited_white_spectrum_folds_every_alias() -> None:
+    # Σ_k sinc²(x + k) = 1 (the spectrum of period means of white noise is flat), and with a
+    # Butterworth |B|² the brute-force sum over 40 001 aliases (its own truncation ~1e-5)
+    f = np.fft.rfftfreq(1000, d=1 / 200.0)[1:]
+    np.testing.assert_allclose(identify._white_alias_sum(f, 200.0, None), 1.0)
+    np.testing.assert_allclose(identify._white_alias_sum(f, 200.0, (1e9, 2)), 1.0, atol=1e-6)
+    for bw, order in ((50.0, 1), (50.0, 3), (8000.0, 1)):
+        k = np.arange(-20_000, 20_001)[:, None]
+        g = f[None, :] + k * 200.0
+        brute = np.sum(np.sinc(g / 200.0) ** 2 / (1.0 + (g / bw) ** (2 * order)), axis=0)
+        got = identify._white_alias_sum(f, 200.0, (bw, order))
+        np.testing.assert_allclose(got, brute, rtol=2e-5)
 
 
 # ---------------------------------------------------------------------------------------------
@@ -215,6 +256,65 @@ def test_recovers_independent_record_within_intervals() -> None:
     stat = curve.edf * (result.adev / fitted) ** 2
     assert np.all(chi2.ppf(0.0005, curve.edf) <= stat), stat
     assert np.all(stat <= chi2.ppf(0.9995, curve.edf)), stat
+
+
+def band_limited_white(
+    rng: np.random.Generator, n: int, rate: float, density: float, bandwidth: float
+) -> np.ndarray:
+    """Period means of white noise of density N through a 1-pole low-pass at ``bandwidth``.
+
+    That process is Gauss-Markov with T = 1/(2π·bandwidth) and σ² = N²·π·bandwidth (two-sided
+    N²/(1 + (f/bandwidth)²) integrated over f). Its point samples 64 times per period follow
+    the exact AR(1) step φ = e^(−h/T); each period mean is the average of its 64 points (the
+    rectangle rule: a variance error of order (h/T)²/12 ≈ 1e-4 here).
+    """
+    sub = 64
+    h = 1.0 / (rate * sub)
+    t_c = 1.0 / (2.0 * math.pi * bandwidth)
+    sigma = density * math.sqrt(math.pi * bandwidth)
+    phi = math.exp(-h / t_c)
+    drive = rng.standard_normal(n * sub) * sigma * math.sqrt(1.0 - phi**2)
+    drive[0] = rng.standard_normal() * sigma  # stationary start
+    from scipy.signal import lfilter
+
+    x = lfilter([1.0], [1.0, -phi], drive)
+    return x.reshape(n, sub).mean(axis=1)
+
+
+def test_band_limited_record_needs_its_bandwidth() -> None:
+    # 2^15 samples at 100 Hz of white noise through a 1-pole filter at 20 Hz (a MEMS output
+    # filter; the Allan deviation at τ = 10 ms is 0.48 of the white line) plus a random walk.
+    # Fitted with the bandwidth, the white density and the random walk lie within their 0.98
+    # intervals and no flicker is claimed; fitted as unfiltered samples, the roll-off is read
+    # as less white noise (and flicker made up to fill the curve): the white interval misses.
+    rng = np.random.default_rng(77)
+    n, rate, bw = 1 << 15, 100.0, 20.0
+    truth = {"white": 2e-3, "random_walk": 2e-5}
+    y = band_limited_white(rng, n, rate, truth["white"], bw) + random_walk(
+        rng, n, rate, truth["random_walk"]
+    )
+    curve = _curve(y, rate)
+    terms = ("white", "flicker", "random_walk")
+    good = identify.fit(curve, terms=terms, confidence=0.98, seed=3, n_boot=200, bandwidth=bw)
+    for name, value in truth.items():
+        ft = good.term(name)
+        assert ft.low <= value <= ft.high, (name, value, ft)
+    assert good.white_filter == (bw, 1)
+    flick = good.term("flicker")
+    assert not flick.supported, flick
+    # the identified model keeps the band limit
+    white_term = next(t for t in good.to_channel().terms if t.type == "white")
+    assert (white_term.bandwidth, white_term.filter_order) == (bw, 1)
+    naive = identify.fit(curve, terms=terms, confidence=0.98, seed=3, n_boot=200)
+    w = naive.term("white")
+    assert w.high < truth["white"], w
+    assert naive.term("flicker").supported
+    with pytest.raises(AnalysisError, match="bandwidth"):
+        identify.fit(curve, terms=terms, bandwidth=-1.0)
+    with pytest.raises(AnalysisError, match="filter_order"):
+        identify.fit(curve, terms=terms, filter_order=2)
+    with pytest.raises(AnalysisError, match="filter order"):
+        identify.fit(curve, terms=terms, bandwidth=bw, filter_order=0)
 
 
 def test_recovers_project_simulator_record() -> None:
