@@ -168,19 +168,29 @@ _CAUTION_HELP = (
 )
 
 
-def _seconds(value: str, option: str) -> float:
-    """A time option: a bare number is seconds; otherwise a time with its unit ('10 ms')."""
+def _positive_quantity(value: str, option: str, kind: str, example: str) -> float:
+    """A positive quantity option in SI: a bare number is SI; otherwise a value with its unit."""
     from .errors import AnalysisError
     from .quantities import parse_quantity
 
     text = value.strip()
     try:
-        seconds = float(text)
+        si = float(text)
     except ValueError:
-        seconds = parse_quantity(text, "time", field=option)
-    if not (seconds > 0 and seconds < float("inf")):
-        raise AnalysisError(f"{option} {value}", "a positive time, e.g. 0.01 or '10 ms'")
-    return seconds
+        si = parse_quantity(text, kind, field=option)
+    if not (si > 0 and si < float("inf")):
+        raise AnalysisError(f"{option} {value}", f"a positive {kind}, e.g. {example}")
+    return si
+
+
+def _seconds(value: str, option: str) -> float:
+    """A time option: a bare number is seconds; otherwise a time with its unit ('10 ms')."""
+    return _positive_quantity(value, option, "time", "0.01 or '10 ms'")
+
+
+def _frequency_option(value: str, option: str) -> float:
+    """A frequency option: a bare number is hertz; otherwise a frequency with its unit."""
+    return _positive_quantity(value, option, "frequency", "50 or '50 Hz'")
 
 
 def _realization_lines(model: Any) -> dict[str, list[str]]:
@@ -1159,12 +1169,20 @@ def _identify_table(ident: Any) -> str:
                    "confidence above 0.98; more: steadier interval ends, slower).")
 @click.option("--seed", type=click.IntRange(min=0), default=0, show_default=True,
               help="Seed of the bootstrap (the same seed gives the same intervals).")
+@click.option("--bandwidth", "bandwidth", default=None, metavar="FREQ",
+              help="The sensor's output filter (-3 dB), e.g. '50 Hz': the white term is fitted "
+                   "as white noise through it (its Allan deviation falls below the white line "
+                   "at tau below about 1/bandwidth). Without it the samples are taken as "
+                   "unfiltered.")
+@click.option("--filter-order", "filter_order", type=click.IntRange(1, 8), default=None,
+              metavar="N", help="Butterworth order of that filter (default 1).")
 @_force_option
 @guarded
 def identify_command(recording_file: str, output: str, terms: str, confidence: float,
                      rate: float | None, units: tuple[str, ...], increments: bool | None,
                      channel_map: tuple[str, ...], taus: str | None, n_boot: int | None,
-                     seed: int, force: bool) -> None:
+                     seed: int, bandwidth: str | None, filter_order: int | None,
+                     force: bool) -> None:
     """Fit noise terms to the overlapping Allan variance of each channel of a recording, with
     intervals from a parametric bootstrap, and write them as a noise model.
 
@@ -1179,6 +1197,7 @@ def identify_command(recording_file: str, output: str, terms: str, confidence: f
       sensormodel identify static.csv -o static-model.json
       sensormodel identify log.tsv --channel rate_z=gyro.z --unit rate_z=deg/s --rate 400 \\
           --terms white,flicker,random_walk -o unit42.json
+      sensormodel identify mems.npy --bandwidth "50 Hz" --filter-order 2 -o mems-model.json
     """
     import pathlib
 
@@ -1191,6 +1210,10 @@ def identify_command(recording_file: str, output: str, terms: str, confidence: f
 
     check_writable(output, force=force)
     taus_spec = _taus_option(taus)
+    band = None if bandwidth is None else _frequency_option(bandwidth, "--bandwidth")
+    if filter_order is not None and band is None:
+        raise AnalysisError("--filter-order without --bandwidth", "a --bandwidth with it",
+                            field="--filter-order")
     bar = _StderrBar("reading")
     try:
         rec = read_recording(recording_file, rate=rate, unit=_unit_option(units),
@@ -1221,7 +1244,8 @@ def identify_command(recording_file: str, output: str, terms: str, confidence: f
 
             try:
                 results.append(fit(curve, terms=terms, confidence=confidence, seed=seed,
-                                   n_boot=n_boot, progress=progress))
+                                   n_boot=n_boot, progress=progress, bandwidth=band,
+                                   filter_order=filter_order))
             except AnalysisError as exc:  # name the option rather than the argument
                 option = {"terms": "--terms", "confidence": "--confidence",
                           "n_boot": "--bootstrap"}.get(exc.field or "")

@@ -161,3 +161,34 @@ def test_identify_refuses_bad_input(recording, runner, tmp_path) -> None:
     r = runner.invoke(cli, ["identify", str(recording), "-o", str(out)])
     assert_refused(r, f"error: {out}")
     assert out.read_text(encoding="utf-8") == "{}"
+
+
+def test_identify_with_an_output_filter(recording, runner, tmp_path) -> None:
+    # --bandwidth makes the white term band-limited white (identify.fit(bandwidth=...)); the
+    # written model keeps the filter (here far above the 25 Hz Nyquist frequency, so the
+    # estimate is the unfiltered one within 1 %: the Allan variance of white noise through a
+    # 1-pole filter at 1 kHz differs from N²/τ by about 3/(4π·1 kHz·τ) ≤ 1.2 % at τ = 20 ms)
+    out = tmp_path / "filtered.json"
+    args = ["identify", str(recording), "-o", str(out), *ARGS, "--terms", "white,random_walk"]
+    r = runner.invoke(cli, [*args, "--bandwidth", "1 kHz", "--filter-order", "1"])
+    assert r.exit_code == 0, r.output
+    model = NoiseModel.load(out)
+    white = next(t for t in model.channel("gyro.z").terms if t.type == "white")
+    assert (white.bandwidth, white.filter_order) == (1000.0, 1)
+    plain = tmp_path / "plain.json"
+    assert (
+        runner.invoke(
+            cli,
+            ["identify", str(recording), "-o", str(plain), *ARGS, "--terms", "white,random_walk"],
+        ).exit_code
+        == 0
+    )
+    w0 = next(t for t in NoiseModel.load(plain).channel("gyro.z").terms if t.type == "white")
+    assert white.density == pytest.approx(w0.density, rel=0.01)
+    bad = tmp_path / "bad.json"
+    r = runner.invoke(cli, [*args[:3], str(bad), *args[4:], "--filter-order", "2"])
+    assert_refused(r, "error: --filter-order: --filter-order without --bandwidth", leftovers=[bad])
+    r = runner.invoke(cli, [*args[:3], str(bad), *args[4:], "--bandwidth", "-3"])
+    assert_refused(r, "error: --bandwidth -3; expected a positive frequency", leftovers=[bad])
+    r = runner.invoke(cli, [*args[:3], str(bad), *args[4:], "--bandwidth", "3 s"])
+    assert_refused(r, "error: --bandwidth", leftovers=[bad])
