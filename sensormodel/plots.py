@@ -210,7 +210,7 @@ def _single_figure() -> tuple[Any, Any]:
     from matplotlib.figure import Figure
 
     fig = Figure(figsize=(7.5, 4.6))
-    fig.subplots_adjust(left=0.11, right=0.975, bottom=0.115, top=0.925)
+    fig.subplots_adjust(left=0.135, right=0.975, bottom=0.115, top=0.925)
     return fig, fig.subplots()
 
 
