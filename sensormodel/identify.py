@@ -898,6 +898,7 @@ def _alias_sum_cached(
     for k in range(-_ALIASES, _ALIASES + 1):
         g = x + k
         total += 1.0 / (g * g * (1.0 + ((g * c) ** 2) ** order))
+
     # the aliases beyond ±K by the midpoint rule, Σ_{k>K} h(x + k) ≈ ∫_{K+½}^∞ h(x + t) dt
     # (error ~h'/24 ≈ 3e-7 of the sum at K = 64), the integral G tabulated on [K, K + 1]
     def h(u: float) -> float:
@@ -1424,6 +1425,9 @@ class LimitTest:
     null_parameters : dict
         The model the null records were drawn from: the tested term at ``value``, the others
         refitted with it held there [SI].
+    null_time_constant : float or None
+        The Gauss-Markov time constant of that model [s] (profiled when the Gauss-Markov σ is
+        the tested parameter); None without a Gauss-Markov term.
     """
 
     term: str
@@ -1434,6 +1438,7 @@ class LimitTest:
     p_below: float
     n_records: int
     null_parameters: dict[str, float]
+    null_time_constant: float | None = None
 
 
 def limit_test(
@@ -1451,7 +1456,8 @@ def limit_test(
     Chapman & Hall 1993, ch. 16; A. C. Davison & D. V. Hinkley, *Bootstrap Methods and their
     Application*, Cambridge 1997, section 4.2) under the null hypothesis "the parameter equals
     ``value``": the other terms of the estimate are refitted with this one held at ``value``
-    (weighted least squares with the fixed term as an offset), ``n_records`` records of the
+    (weighted least squares with the fixed term as an offset; a Gauss-Markov term tested by its
+    σ has its time constant profiled too), ``n_records`` records of the
     measured length are simulated from that null model (the generator of the fit's
     bootstrap), and the term's coefficient T is refitted on each (the same terms in the
     model; the rare-term tests are not repeated, so the statistic is the same function of
@@ -1528,15 +1534,18 @@ def limit_test(
     observed = float(_fit_subset(c.avar, d, mask, start=start)[0][j])
     # the null model: term j at the value, the others refitted beside it
     held = value**2
-    offset = held * phi[:, j]
     others = mask.copy()
     others[j] = False
-    null = np.zeros(len(d.names))
-    t_null = state.time_constant
-    if np.any(others):
-        null, t_fit = _fit_subset(c.avar, d, others, start=start, offset=offset)
-        if t_fit is not None:
-            t_null = t_fit
+    if d.names[j] == "gauss_markov":
+        # σ is held, its time constant is a nuisance parameter like the other terms: profiled
+        null, t_null = _null_gauss_markov(c, d, others, held, start)
+    else:
+        null = np.zeros(len(d.names))
+        t_null = state.time_constant
+        if np.any(others):
+            null, t_fit = _fit_subset(c.avar, d, others, start=start, offset=held * phi[:, j])
+            if t_fit is not None:
+                t_null = t_fit
     null[j] = held
     params = _params(d.names, null)
     av = _bootstrap(
@@ -1562,7 +1571,47 @@ def limit_test(
         p_below=float((1 + np.count_nonzero(stats <= observed)) / (b + 1)),
         n_records=b,
         null_parameters=params,
+        null_time_constant=None if d.gm_index is None else t_null,
     )
+
+
+def _null_gauss_markov(
+    c: _Curve, d: _Design, others: npt.NDArray[np.bool_], held: float, start: _FloatArray
+) -> tuple[_FloatArray, float]:
+    """The fit with the Gauss-Markov variance held at ``held`` (σ²): its time constant profiled
+    over the design's grid and refined between the best point's neighbours (as in
+    :func:`_fit_one`), the ``others`` refitted beside it. Returns coefficients and T [s]."""
+    from scipy.optimize import minimize_scalar
+
+    assert d.gm_grid is not None and d.gm_index is not None
+    idx = np.flatnonzero(others)
+    phi_o = d.phi[:, idx]
+
+    def fit_at(t: float) -> tuple[_FloatArray, float]:
+        offset = held * _basis("gauss_markov", c.tau, c.rate, t)
+        if idx.size == 0:
+            model = np.maximum(offset, 1e-300)
+            return np.zeros(0), float(np.sum((c.avar - model) ** 2 * c.edf / (2.0 * model**2)))
+        return _irls(c.avar, phi_o, d.edf, start, offset)
+
+    chi = [fit_at(float(t))[1] for t in d.gm_grid]
+    i = int(np.argmin(chi))
+    lo = math.log(d.gm_grid[max(i - 1, 0)])
+    hi = math.log(d.gm_grid[min(i + 1, d.gm_grid.size - 1)])
+    t_best = float(d.gm_grid[i])
+    if hi > lo:
+        res = minimize_scalar(
+            lambda lt: fit_at(math.exp(lt))[1],
+            bounds=(lo, hi),
+            method="bounded",
+            options={"xatol": 1e-3},
+        )
+        if float(res.fun) < chi[i]:
+            t_best = math.exp(float(res.x))
+    coef_o, _chi2 = fit_at(t_best)
+    out = np.zeros(len(d.names))
+    out[idx] = coef_o
+    return out, t_best
 
 
 def _params(names: Sequence[str], coef: _FloatArray) -> dict[str, float]:

@@ -742,3 +742,28 @@ def test_limit_test_level_by_simulation() -> None:
         # and the test is not trivially passive: at the truth its p-values spread over (0, 1]
         p = np.array([r[name][0] for r in rows])
         assert 0.3 < float(np.median(p)) < 0.7, (name, float(np.median(p)))
+
+
+def test_limit_test_profiles_a_gauss_markov_time_constant() -> None:
+    # A Gauss-Markov bias (σ = 1 mrad/s, T = 30 s; generated as white noise through a 1-pole
+    # filter at 1/(2πT), see band_limited_white) under white noise, 2^13 s at 1 Hz. Testing σ
+    # at a value, the null model's T is refitted with σ held there (a nuisance parameter like
+    # the other terms): at the estimate it is the fitted T, at half the estimate another one.
+    rng = np.random.default_rng(31)
+    n, rate, t_c, sigma = 1 << 13, 1.0, 30.0, 1e-3
+    bw = 1.0 / (2.0 * math.pi * t_c)
+    y = band_limited_white(rng, n, rate, sigma / math.sqrt(math.pi * bw), bw)
+    y += white(rng, n, rate, 2e-3)
+    idn = identify.fit(_curve(y, rate), terms=("white", "gauss_markov"), seed=2, n_boot=41)
+    gm = idn.term("gauss_markov")
+    assert gm.supported and gm.low <= sigma <= gm.high, gm
+    t_fit = gm.details["time_constant"]
+    at = identify.limit_test(idn, "gauss_markov", gm.estimate, seed=3)
+    assert at.null_time_constant == pytest.approx(t_fit, rel=0.02)
+    assert at.p_above > 0.05 and at.p_below > 0.05
+    half = identify.limit_test(idn, "gauss_markov", 0.5 * gm.estimate, seed=3)
+    assert abs(math.log(half.null_time_constant / t_fit)) > 0.05, (half, t_fit)
+    assert half.p_above <= 0.05  # the estimate is far above half of itself
+    # a test of the white term keeps the fitted T
+    w = identify.limit_test(idn, "white", idn.term("white").estimate, seed=3)
+    assert w.null_time_constant == pytest.approx(t_fit, rel=0.02)
