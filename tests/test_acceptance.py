@@ -697,8 +697,9 @@ def test_error_rates_gauss_markov_bias_at_limit() -> None:
     # 2 h at 2 Hz (12 T, so T itself is poorly known) from sensormodel.simulate. The test at
     # the limit profiles T under the null; before it did (T held at the estimate, and the skip
     # rule applied to this term) a development run gave 5 pass calls in its first 20 records.
-    # 160 development records with it: 4.4 % fail, 4.4 % pass. Here 60 records (two processes): each call's count is binomial(60, ≤ 0.05),
-    # allowed up to its 99.9 % quantile (scipy.stats.binom: 9).
+    # 160 development records with it: 4.4 % fail, 4.4 % pass. Here 60 records (two
+    # processes): each call's count is binomial(60, ≤ 0.05), allowed up to its 99.9 % quantile
+    # (scipy.stats.binom: 9).
     import multiprocessing
     import os
     from concurrent.futures import ProcessPoolExecutor
