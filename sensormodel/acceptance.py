@@ -1058,6 +1058,14 @@ def verify_curve(
                 confidence=confidence,
                 power=power,
             )
+            if (
+                test is not None
+                and test.get("confirmed") is False
+                and (req is None or req <= duration * (1.0 + 1e-9))
+            ):
+                # the interval's width, which the test just refuted, is no guide to the length
+                req = None
+                why = "a longer record is needed; how much longer, the interval does not say"
             note = "; ".join(x for x in (note, why) if x)
         read_at = edf = None
         idx = next((i for i, t in enumerate(model_terms) if t.type == name), None)
@@ -1152,7 +1160,7 @@ def _confirm_at_limit(
         # far beyond the bootstrap: the limit is more than _SKIP_MARGIN times as far from the
         # estimate (in log) as the farthest bootstrap record went on that side
         reach = math.log(est / b_low) if verdict == "fail" else math.log(b_high / est)
-        if abs(math.log(value / est)) > _SKIP_MARGIN * reach:
+        if reach > 0 and abs(math.log(value / est)) > _SKIP_MARGIN * reach:
             why = f"the limit is over {_SKIP_MARGIN:g} times as far as any bootstrap record"
             return verdict, low, high, {"skipped": why}, ""
     test = limit_test(identification, name, value, seed=seed)
@@ -1169,10 +1177,12 @@ def _confirm_at_limit(
         f"confirm it (p = {p:.3f} > {alpha:g}, {test.n_records} records): interval widened to "
         "the limit"
     )
+    # the limit inside the widened interval (decide() calls an interval ending at the limit
+    # from below a pass)
     if verdict == "fail":
         low = min(low, limit)
     else:
-        high = max(high, limit)
+        high = max(high, math.nextafter(limit, math.inf))
     return "inconclusive", low, high, record, note
 
 

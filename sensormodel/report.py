@@ -469,6 +469,8 @@ def _verdict_row_note(t) -> str:
         if (test.get("confirmed") is False)
         else ""
     )
+    if t.required_duration is None and why:
+        return f"{why}a longer record is needed"
     if t.required_duration is None:
         return f"{why}no record length decides it: {t.note}"
     return f"{why}needs a record of ≈ {format_duration(t.required_duration)}{where}"

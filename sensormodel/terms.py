@@ -307,17 +307,41 @@ class White(Term):
         self, tau: npt.ArrayLike, *, sample_rate: float | None = None
     ) -> _FloatArray:
         """Allan variance N²/τ [u²] (IEEE Std 952 Annex C); band-limited: exact, from the
-        filter's realization (:meth:`Shaped.allan_variance`)."""
+        filter's realization (:meth:`Shaped.allan_variance`).
+
+        The band-limited form is computed for the filter normalized to ωc = 2π·bandwidth = 1
+        rad/s and rescaled, AVAR(τ) = N²·ωc·AVAR₁(ωc·τ) (white noise through B(s/ωc) has the
+        autocovariance ωc·R₁(ωc·u)): the realization of B(s/ωc) itself has coefficients up to
+        ωc^order, whose steady state is ill-conditioned for high orders and bandwidths."""
+        tau = _positive_array(tau, "tau")
         if self.bandwidth is not None:
-            return self.shaping_filter().allan_variance(tau, sample_rate=sample_rate)
-        return self.density**2 / _positive_array(tau, "tau")
+            wc = 2.0 * np.pi * self.bandwidth
+            unit = White(density=1.0, bandwidth=1.0 / (2.0 * np.pi), filter_order=self.filter_order)
+            return self.density**2 * wc * unit.shaping_filter().allan_variance(wc * tau)
+        return self.density**2 / tau
 
     def state_space(self, *, sample_rate: float | None = None) -> StateSpace:
         """No state: white output noise of two-sided PSD N² (``StateSpace.white``); in discrete
         time it becomes R = N²/dt (:func:`sensormodel.linear.discretize`). Band-limited: the
         Butterworth states of :meth:`shaping_filter`."""
         if self.bandwidth is not None:
-            return self.shaping_filter().state_space(sample_rate=sample_rate)
+            # the filter normalized to ωc = 1 rad/s, then time-scaled: N·B(s/ωc) is realized by
+            # (ωc·F₁, N·ωc·G₁, H₁) with P0 = N²·ωc·P₁ (the Lyapunov equation scales so): entries
+            # of order ωc and states in the output's unit. The companion form of B(s/ωc) itself
+            # has entries up to ωc^order and an ill-conditioned steady state for high orders and
+            # bandwidths.
+            wc = 2.0 * np.pi * self.bandwidth
+            unit = White(density=1.0, bandwidth=1.0 / (2.0 * np.pi), filter_order=self.filter_order)
+            ss = unit.shaping_filter().state_space(sample_rate=sample_rate)
+            return StateSpace(
+                F=wc * ss.F,
+                G=(self.density * wc) * ss.G,
+                Qc=ss.Qc,
+                H=ss.H,
+                P0=(self.density**2 * wc) * ss.P0,
+                states=ss.states,
+                sample_rate=sample_rate,
+            )
         return _no_state(white=self.density**2, sample_rate=sample_rate)
 
 

@@ -609,9 +609,32 @@ def test_call_of_the_interval_needs_the_test_at_the_limit(write_datasheet, monke
         assert t.limit_test["p_value"] == p and t.limit_test["confirmed"] is (p <= 0.05)
         if verdict == "fail":
             assert (t.low, t.high) == (real.low, real.high)
-        else:  # widened to the limit, and the length that would decide it is given
+        else:  # widened to the limit
             assert t.low == limit and t.high == real.high
-            assert "does not confirm" in t.note and t.required_duration is not None
+            assert acc.decide(t.low, t.high, limit) == "inconclusive"
+            # the refuted interval is no guide to a length: none is given unless it is longer
+            assert "does not confirm" in t.note
+            assert t.required_duration is None or t.required_duration > 2000.0
+            if t.required_duration is None:
+                assert "a longer record is needed" in t.note
+    # the pass side: a unit at 0.6 × its limit, the test's p-value below the limit our choice
+    low_unit = overlapping(
+        rng.normal(0.0, 0.6 * limit, 2000), 1.0, confidence=0.9, unit="rad/s", channel="gyro.z"
+    )
+
+    def fake_below(identification, term, value, **kw):
+        return identify.LimitTest(term, "density", value, 0.0, 1.0, p, 59, {})
+
+    monkeypatch.setattr(identify, "limit_test", fake_below)
+    for p, verdict in ((0.02, "pass"), (0.3, "inconclusive")):
+        t = acc.verify_curve(low_unit, ax, duration=2000.0, n_boot=_N_BOOT, seed=1).terms[0]
+        assert t.verdict == verdict, (p, t.verdict)
+        if verdict == "pass":
+            assert t.high <= limit
+        else:  # the limit strictly inside the widened interval: decide() agrees
+            assert t.low < limit < t.high and acc.decide(t.low, t.high, limit) == "inconclusive"
+            assert t.required_duration is None or t.required_duration > 2000.0
+            assert "does not confirm" in t.note
 
 
 _BAND_LIMITED_SHEET = """

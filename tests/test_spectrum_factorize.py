@@ -189,6 +189,49 @@ def test_band_limited_white_allan_rolls_off_and_recovers():
     assert_allclose(ratio[2:], 1.0, rtol=3e-3)  # τ ≫ 1/bandwidth: N²/τ (IEEE 952 Annex C)
 
 
+@pytest.mark.parametrize(
+    ("bw", "order", "tau"),
+    [(50.0, 1, 0.005), (400.0, 6, 1e-3), (100.0, 8, 1e-3), (1000.0, 6, 0.01), (40.0, 8, 0.01)],
+)
+def test_band_limited_white_allan_matches_psd_quadrature(bw, order, tau):
+    # AVAR(τ) = ∫₀^∞ S₁(f)·2 sin⁴(πfτ)/(πfτ)² df (IEEE Std 952 Annex C, NIST SP 1065 §5.2),
+    # one-sided S₁ = 2N²/(1 + (f/bw)^(2·order)), by scipy.integrate.quad one period 1/τ of the
+    # kernel at a time up to F = 2000/τ; the rest is below 4|B(F)|²/(π²τ²F), < 1e-9 here.
+    # High orders and bandwidths once failed here (an ill-conditioned ωc^order realization).
+    from scipy.integrate import quad
+
+    def integrand(f):
+        return (
+            2.0
+            / (1.0 + (f / bw) ** (2 * order))
+            * 2.0
+            * np.sin(np.pi * f * tau) ** 4
+            / (np.pi * f * tau) ** 2
+        )
+
+    ref = sum(
+        quad(integrand, k / tau, (k + 1) / tau, epsabs=0.0, epsrel=1e-12)[0] for k in range(2000)
+    )
+    got = White(density=1.0, bandwidth=bw, filter_order=order).allan_variance(np.array([tau]))
+    assert_allclose(got[0], ref, rtol=1e-9)
+
+
+@pytest.mark.parametrize(("bw", "order"), [(400.0, 6), (100.0, 8), (50.0, 1), (200.0, 3)])
+def test_band_limited_white_state_space_is_well_conditioned(bw, order):
+    # the realization's output variance is 2 N² ENBW with ENBW/f3dB = (π/2n)/sin(π/2n) (the
+    # Butterworth noise bandwidth, Winder Table A.3 / Carlson, module notes), also for orders
+    # whose companion form in s has coefficients up to ωc^order; and its P0 solves the
+    # Lyapunov equation (scipy.linalg.solve_continuous_lyapunov as the reference)
+    from scipy.linalg import solve_continuous_lyapunov
+
+    n = 1e-3
+    ss = White(density=n, bandwidth=bw, filter_order=order).state_space(sample_rate=1000.0)
+    x = np.pi / (2 * order)
+    assert_allclose((ss.H @ ss.P0 @ ss.H.T).item(), 2 * n**2 * bw * x / np.sin(x), rtol=1e-9)
+    ref = solve_continuous_lyapunov(ss.F, -ss.G @ ss.Qc @ ss.G.T)
+    assert_allclose(ss.P0, ref, rtol=1e-7, atol=1e-12 * np.max(np.abs(ref)))
+
+
 def test_datasheet_bandwidth_band_limits_the_white_term(example_datasheet):
     model = NoiseModel.from_datasheet(example_datasheet)
     for ch in model.channels:
