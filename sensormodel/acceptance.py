@@ -1139,10 +1139,12 @@ def _confirm_at_limit(
     The interval comes from a bootstrap around the *estimate*; the call stands only if the
     parametric bootstrap test *at the limit* (:func:`sensormodel.identify.limit_test`)
     also rejects the limit on the same side at level α = (1 − confidence)/2. Otherwise the
-    verdict is ``inconclusive`` and the interval is widened to the limit (so that the reported
-    interval and the verdict agree). The test is skipped where the limit lies beyond every
-    bootstrap record of the interval (``details["bootstrap_low"/"bootstrap_high"]``), or where
-    the identification cannot be refitted (one made elsewhere): the interval's call stands.
+    verdict is ``inconclusive`` and the interval is widened to take the limit in (so that the
+    reported interval and the verdict agree). The test is skipped where the limit lies more
+    than :data:`_SKIP_MARGIN` times as far (log scale) from the estimate as the farthest
+    bootstrap record of the interval (``details["bootstrap_low"/"bootstrap_high"]``; never for
+    a Gauss-Markov term), or where the identification cannot be refitted (one made
+    elsewhere): the interval's call stands.
 
     Returns the verdict, the interval, the test record and a note.
     """
