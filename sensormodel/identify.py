@@ -694,34 +694,47 @@ def _fit_one(
         return c, chi2, None
     assert d.gm_grid is not None and d.gm_columns is not None
     phi = d.phi.copy()
-    best = (math.inf, 0)
-    results = []
-    for i, col in enumerate(d.gm_columns):
-        phi[:, d.gm_index] = col
-        c, chi2 = _irls(avar, phi, d.edf, start, offset)
-        results.append(c)
-        if chi2 < best[0]:
-            best = (chi2, i)
-    i = best[1]
-    # refine log T between the grid neighbours (golden-section on a unimodal bracket)
+    gm = d.gm_index
+
+    def fit_grid(k: int) -> tuple[_FloatArray, float]:
+        phi[:, gm] = d.gm_columns[k]  # type: ignore[index]
+        return _irls(avar, phi, d.edf, start, offset)
+
+    def fit_at(t: float) -> tuple[_FloatArray, float]:
+        return _irls(avar, d.with_gm(t), d.edf, start, offset)
+
+    t_best, c, chi2 = _profile_time_constant(d.gm_grid, fit_grid, fit_at)
+    return c, chi2, t_best
+
+
+def _profile_time_constant(
+    grid: _FloatArray,
+    fit_grid: Callable[[int], tuple[_FloatArray, float]],
+    fit_at: Callable[[float], tuple[_FloatArray, float]],
+) -> tuple[float, _FloatArray, float]:
+    """The Gauss-Markov time constant of least χ²: the best point of ``grid`` [s], refined in
+    log T between its neighbours (bounded golden-section search on a unimodal bracket) and kept
+    only if no worse. ``fit_grid(k)`` and ``fit_at(T)`` return (coefficients, χ²) at grid
+    point k and at any T. Returns (T, coefficients, χ²)."""
     from scipy.optimize import minimize_scalar
 
-    lo = math.log(d.gm_grid[max(i - 1, 0)])
-    hi = math.log(d.gm_grid[min(i + 1, d.gm_grid.size - 1)])
-
-    def objective(logt: float) -> float:
-        return _irls(avar, d.with_gm(math.exp(logt)), d.edf, start, offset)[1]
-
+    results = [fit_grid(k) for k in range(grid.size)]
+    i = int(np.argmin([r[1] for r in results]))
+    t_best, best = float(grid[i]), results[i]
+    lo = math.log(grid[max(i - 1, 0)])
+    hi = math.log(grid[min(i + 1, grid.size - 1)])
     if hi > lo:
-        res = minimize_scalar(objective, bounds=(lo, hi), method="bounded", options={"xatol": 1e-3})
-        t_best = math.exp(float(res.x))
-    else:
-        t_best = float(d.gm_grid[i])
-    c, chi2 = _irls(avar, d.with_gm(t_best), d.edf, start, offset)
-    if chi2 > best[0]:
-        t_best = float(d.gm_grid[i])
-        c, chi2 = results[i], best[0]
-    return c, chi2, t_best
+        res = minimize_scalar(
+            lambda logt: fit_at(math.exp(logt))[1],
+            bounds=(lo, hi),
+            method="bounded",
+            options={"xatol": 1e-3},
+        )
+        t = math.exp(float(res.x))
+        refined = fit_at(t)
+        if refined[1] <= best[1]:
+            t_best, best = t, refined
+    return t_best, best[0], best[1]
 
 
 def _wls_matrix(phi: _FloatArray, model: _FloatArray, edf: _FloatArray) -> _FloatArray:
@@ -1579,36 +1592,24 @@ def _null_gauss_markov(
     c: _Curve, d: _Design, others: npt.NDArray[np.bool_], held: float, start: _FloatArray
 ) -> tuple[_FloatArray, float]:
     """The fit with the Gauss-Markov variance held at ``held`` (σ²): its time constant profiled
-    over the design's grid and refined between the best point's neighbours (as in
-    :func:`_fit_one`), the ``others`` refitted beside it. Returns coefficients and T [s]."""
-    from scipy.optimize import minimize_scalar
-
-    assert d.gm_grid is not None and d.gm_index is not None
+    over the design's grid and refined (:func:`_profile_time_constant`), the ``others``
+    refitted beside it. Returns coefficients and T [s]."""
+    assert d.gm_grid is not None and d.gm_columns is not None
     idx = np.flatnonzero(others)
     phi_o = d.phi[:, idx]
 
-    def fit_at(t: float) -> tuple[_FloatArray, float]:
-        offset = held * _basis("gauss_markov", c.tau, c.rate, t)
+    def fit_with(column: _FloatArray) -> tuple[_FloatArray, float]:
+        offset = held * column
         if idx.size == 0:
             model = np.maximum(offset, 1e-300)
             return np.zeros(0), float(np.sum((c.avar - model) ** 2 * c.edf / (2.0 * model**2)))
         return _irls(c.avar, phi_o, d.edf, start, offset)
 
-    chi = [fit_at(float(t))[1] for t in d.gm_grid]
-    i = int(np.argmin(chi))
-    lo = math.log(d.gm_grid[max(i - 1, 0)])
-    hi = math.log(d.gm_grid[min(i + 1, d.gm_grid.size - 1)])
-    t_best = float(d.gm_grid[i])
-    if hi > lo:
-        res = minimize_scalar(
-            lambda lt: fit_at(math.exp(lt))[1],
-            bounds=(lo, hi),
-            method="bounded",
-            options={"xatol": 1e-3},
-        )
-        if float(res.fun) < chi[i]:
-            t_best = math.exp(float(res.x))
-    coef_o, _chi2 = fit_at(t_best)
+    t_best, coef_o, _chi2 = _profile_time_constant(
+        d.gm_grid,
+        lambda k: fit_with(d.gm_columns[k]),  # type: ignore[index]
+        lambda t: fit_with(_basis("gauss_markov", c.tau, c.rate, t)),
+    )
     out = np.zeros(len(d.names))
     out[idx] = coef_o
     return out, t_best
