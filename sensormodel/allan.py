@@ -65,6 +65,7 @@ from typing import Any
 import numpy as np
 import numpy.typing as npt
 
+from .confidence import DEFAULT_CONFIDENCE, chi2_interval
 from .errors import AnalysisError, ModelFileError, SensorModelError
 
 __all__ = [
@@ -94,8 +95,6 @@ __all__ = [
 SCHEMA_ID = "sensormodel/allan-curve/1"
 #: The JSON Schema file of that document in ``schemas/``.
 SCHEMA_FILE = "allan-curve.schema.json"
-#: Default confidence of the intervals: 1 σ of a normal distribution, to three digits.
-DEFAULT_CONFIDENCE = 0.683
 #: Power-law exponents α of the rate PSD for which the EDF is defined here (d = 2, AVAR).
 NOISE_ALPHAS = (2, 1, 0, -1, -2)
 #: Names of the power-law types (time-and-frequency names; the inertial meaning in brackets).
@@ -1096,39 +1095,6 @@ def edf_simple(alpha: int, m: int, n_phase: int) -> float:
             (N - 2.0) / (m * (N - 3.0) ** 2) * ((N - 1.0) ** 2 - 3.0 * m * (N - 1.0) + 4.0 * m * m)
         )
     raise AnalysisError(f"got α = {alpha}", "α in {2, 1, 0, -1, -2}", field="alpha")
-
-
-def chi2_interval(
-    deviation: npt.ArrayLike, edf: npt.ArrayLike, confidence: float = DEFAULT_CONFIDENCE
-) -> tuple[npt.NDArray[np.float64], npt.NDArray[np.float64]]:
-    """Chi-square confidence interval of a deviation (NIST SP 1065, eq. (45)).
-
-    σ_low = σ̂ sqrt(edf / χ²_{(1+c)/2}(edf)),  σ_high = σ̂ sqrt(edf / χ²_{(1−c)/2}(edf)).
-
-    Parameters
-    ----------
-    deviation : array_like
-        Estimated deviation σ̂ [any unit].
-    edf : array_like
-        Equivalent degrees of freedom [-], > 0.
-    confidence : float
-        Two-sided confidence c, 0 < c < 1.
-
-    Returns
-    -------
-    low, high : ndarray
-        Interval bounds [unit of ``deviation``].
-    """
-    from scipy.stats import chi2
-
-    c = _check_confidence(confidence)
-    dev = np.asarray(deviation, dtype=np.float64)
-    nu = np.asarray(edf, dtype=np.float64)
-    if np.any(~np.isfinite(nu)) or np.any(nu <= 0.0):
-        raise AnalysisError(f"got edf = {nu!r}", "equivalent degrees of freedom > 0", field="edf")
-    low = dev * np.sqrt(nu / chi2.ppf(0.5 * (1.0 + c), nu))
-    high = dev * np.sqrt(nu / chi2.ppf(0.5 * (1.0 - c), nu))
-    return low, high
 
 
 # ---------------------------------------------------------------------------------------------

@@ -94,6 +94,7 @@ from typing import Any
 import numpy as np
 import numpy.typing as npt
 
+from .confidence import chi2_interval
 from .errors import AnalysisError
 
 __all__ = [
@@ -1047,17 +1048,6 @@ def _reading_points(tau: _FloatArray, adev: _FloatArray) -> dict[str, tuple[int,
     }
 
 
-def _chi2_interval(sigma: float, edf: float, confidence: float) -> tuple[float, float]:
-    """Chi-square interval of a deviation with ``edf`` degrees of freedom (NIST SP 1065
-    eq. (45))."""
-    from scipy.stats import chi2
-
-    return (
-        sigma * math.sqrt(edf / chi2.ppf(0.5 * (1.0 + confidence), edf)),
-        sigma * math.sqrt(edf / chi2.ppf(0.5 * (1.0 - confidence), edf)),
-    )
-
-
 def _quantile(x: _FloatArray, q: float) -> float:
     return float(np.quantile(x, q, method="weibull"))
 
@@ -1342,7 +1332,8 @@ def fit(
             # the reading's own chi-square interval at the same confidence (one curve point,
             # its edf; NIST SP 1065 eq. (45)); flagged where it misses the fitted interval
             jr, factor = points[nm]
-            r_lo, r_hi = _chi2_interval(float(c.adev[jr]), float(c.edf[jr]), confidence)
+            lo_hi = chi2_interval(float(c.adev[jr]), float(c.edf[jr]), confidence)
+            r_lo, r_hi = float(lo_hi[0]), float(lo_hi[1])
             details["slope_reading_low"] = r_lo * factor
             details["slope_reading_high"] = r_hi * factor
             disagrees = bool(r_hi * factor < low or r_lo * factor > high)
