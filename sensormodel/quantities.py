@@ -41,6 +41,9 @@ __all__ = [
     "normalize_unit",
     "format_value",
     "DISPLAY_UNITS",
+    "INSTRUMENT_KIND",
+    "SI_LABEL",
+    "display_scale",
     "split_value",
     "kind_of",
 ]
@@ -392,6 +395,35 @@ DISPLAY_UNITS: dict[str, tuple[str, str]] = {
     "frequency": ("Hz", "Hz"),
     "dimensionless": ("", ""),
 }
+
+
+#: The quantity each instrument measures: datasheet table (and channel-id prefix) → kind.
+INSTRUMENT_KIND: dict[str, str] = {"gyro": "angular_rate", "accelerometer": "acceleration"}
+
+#: The SI unit label of a channel's quantity as model files, recordings and curves write it.
+SI_LABEL: dict[str, str] = {
+    "angular_rate": "rad/s",
+    "acceleration": "m/s^2",
+    "angle": "rad",
+    "velocity": "m/s",
+}
+
+
+def display_scale(kind: str) -> tuple[str, float]:
+    """The readable label of a kind and the factor that turns an SI value into it.
+
+    Parameters
+    ----------
+    kind : str
+        A key of :data:`DISPLAY_UNITS` (e.g. ``"angular_rate"`` → ``("°/h", 206264.8…)``).
+
+    Returns
+    -------
+    (str, float)
+        The pretty label and ``convert_from_si(1.0, kind, unit)``.
+    """
+    unit, label = DISPLAY_UNITS[kind]
+    return label, convert_from_si(1.0, kind, unit)
 
 
 def split_value(text: str) -> tuple[float, str]:

@@ -64,6 +64,7 @@ __all__ = [
     "FlickerRealization",
     "DEFAULT_LONGEST_TIME",
     "FLICKER_FLOOR",
+    "FLICKER_FLOOR_FACTOR",
     "gauss_markov_peak",
     "gauss_markov_from_floor",
     "gauss_markov_allan_variance",
@@ -79,6 +80,8 @@ DEFAULT_LONGEST_TIME = 1.0e4
 
 #: Allan-variance floor of flicker noise per unit coefficient², 2 ln2/π (IEEE Std 952 Annex C).
 FLICKER_FLOOR = 2.0 * math.log(2.0) / math.pi
+#: Allan-deviation floor of flicker noise per unit coefficient, √(2 ln2/π) ≈ 0.6643.
+FLICKER_FLOOR_FACTOR = math.sqrt(FLICKER_FLOOR)
 
 
 @dataclass(frozen=True)
