@@ -1,0 +1,73 @@
+"""The recording → analysis path (sensormodel.pipeline): one segment policy, one Allan engine,
+one Welch."""
+
+from __future__ import annotations
+
+import numpy as np
+import pytest
+
+from sensormodel import allan, pipeline, spectrum
+from sensormodel.errors import AnalysisError
+from sensormodel.recording import read_recording
+
+RATE = 100.0
+
+
+def _gap_csv(tmp_path, lengths: tuple[int, ...], seed: int = 3):
+    """A static gyro log whose logger dropped 0.5 s between stretches of ``lengths`` samples
+    (white noise, 0.01 deg/s per sample), written as a rig would: time [s] and one rate column."""
+    rng = np.random.default_rng(seed)
+    rows, t = ["time [s],gyro_z [deg/s]"], 0.0
+    truth = []
+    for n in lengths:
+        y = rng.normal(0.0, 0.01, n)
+        truth.append(np.deg2rad(y))
+        for v in y:
+            rows.append(f"{t:.4f},{v:.8f}")
+            t += 1.0 / RATE
+        t += 0.5
+    path = tmp_path / "gappy.csv"
+    path.write_text("\n".join(rows) + "\n")
+    return path, truth
+
+
+def test_the_longest_clean_segment_is_analysed(tmp_path):
+    path, truth = _gap_csv(tmp_path, (700, 2500, 1200))
+    rec = read_recording(path, gaps="split")
+    result = pipeline.analyse(rec, confidence=0.9)
+    (ch,) = result.channels
+    assert ch.channel == "gyro.z" and ch.n_segments == 3
+    assert ch.segment.n == 2500 and ch.samples_total == 4400
+    # the analysed samples are the middle stretch, to the file's 8 digits
+    np.testing.assert_allclose(rec.data["gyro.z"][ch.segment.start : ch.segment.stop], truth[1],
+                               atol=np.deg2rad(1e-8))
+    assert ch.duration == pytest.approx(25.0)
+    assert ch.reasons == (("segments_left_out", {"count": 2.0, "samples": 1900.0}),)
+
+
+def test_curve_is_the_allan_engine_of_that_segment(tmp_path):
+    path, _ = _gap_csv(tmp_path, (900, 1500))
+    rec = read_recording(path, gaps="split")
+    ch = pipeline.analyse(rec, confidence=0.683, spectrum_bins=10)["gyro.z"]
+    y = rec.data["gyro.z"][ch.segment.start : ch.segment.stop]
+    ref = allan.overlapping(y, RATE, confidence=0.683, unit="rad/s", channel="gyro.z")
+    # the same engine: equal to the last bits (summation in the same chunks)
+    np.testing.assert_allclose(ch.curve.adev, ref.adev, rtol=1e-14, atol=0)
+    np.testing.assert_allclose(ch.curve.ci_high, ref.ci_high, rtol=1e-14, atol=0)
+    np.testing.assert_array_equal(ch.curve.edf, ref.edf)
+    binned = spectrum.log_bins(spectrum.welch(y, RATE), per_decade=10)
+    np.testing.assert_array_equal(ch.psd.psd, binned.psd)
+
+
+def test_equal_segments_take_the_first(tmp_path):
+    path, _ = _gap_csv(tmp_path, (1000, 1000))
+    rec = read_recording(path, gaps="split")
+    seg = pipeline.analysed_segment(rec, "gyro.z")
+    assert seg == rec.segments["gyro.z"][0]
+
+
+def test_unknown_channel_is_named(tmp_path):
+    path, _ = _gap_csv(tmp_path, (800,))
+    rec = read_recording(path)
+    with pytest.raises(AnalysisError, match="no channel 'gyro.x'.*one of gyro.z"):
+        pipeline.analyse(rec, channels=["gyro.x"])
