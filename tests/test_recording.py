@@ -18,8 +18,9 @@ import numpy as np
 import pytest
 
 from sensormodel import recording as rec
+from sensormodel.recording import _csv as csv_engine
 from sensormodel._io import OutputExistsError
-from sensormodel.errors import RecordingError, UnitError
+from sensormodel.errors import AnalysisError, RecordingError, UnitError
 from sensormodel.recording import Finding, open_writer, read_recording
 
 DEG = math.pi / 180  # SI Brochure Table 8
@@ -586,9 +587,10 @@ def test_missing_and_unknown_files(tmp_path: pathlib.Path) -> None:
     )
     p = _write(tmp_path, "bad.npy", "not numpy")
     assert _err(p).startswith(f"{p}: not a readable .npy file (")
-    assert _err(_write(tmp_path, "ok.csv", _csv(["0,1", "1,2"])), rate=-1) == (
-        "--rate: rate -1; expected a positive sample rate in Hz"
-    )
+    # the rate argument is checked by the shared validator (not file content: no file named)
+    with pytest.raises(AnalysisError) as info:
+        read_recording(_write(tmp_path, "ok.csv", _csv(["0,1", "1,2"])), rate=-1)
+    assert str(info.value) == "--rate: got -1 Hz; expected a finite sample rate > 0 Hz"
 
 
 def test_rate_agreement_within_tolerance(tmp_path: pathlib.Path) -> None:
@@ -762,7 +764,7 @@ def test_engines_identical(tmp_path: pathlib.Path, monkeypatch: pytest.MonkeyPat
     path, expected = _engine_file(tmp_path)
     ref = np.array(expected)
     used: list[str] = []
-    real_numpy, real_python = rec._numpy_piece, rec._TextSource._python_piece
+    real_numpy, real_python = csv_engine._numpy_piece, csv_engine.TextSource._python_piece
 
     def numpy_spy(*a: object, **k: object) -> object:
         used.append("numpy")
@@ -772,16 +774,16 @@ def test_engines_identical(tmp_path: pathlib.Path, monkeypatch: pytest.MonkeyPat
         used.append("python")
         return real_python(self, *a, **k)
 
-    monkeypatch.setattr(rec, "_numpy_piece", numpy_spy)
-    monkeypatch.setattr(rec._TextSource, "_python_piece", python_spy)
-    monkeypatch.setattr(rec, "_PIECE_BYTES", 20000)  # many pieces
+    monkeypatch.setattr(csv_engine, "_numpy_piece", numpy_spy)
+    monkeypatch.setattr(csv_engine.TextSource, "_python_piece", python_spy)
+    monkeypatch.setattr(csv_engine, "_PIECE_BYTES", 20000)  # many pieces
     results = {}
     results["pyarrow"] = _read_all(path)
     assert used == []  # pyarrow read every piece
-    monkeypatch.setattr(rec, "_import_pyarrow_csv", lambda: None)
+    monkeypatch.setattr(csv_engine, "import_pyarrow_csv", lambda: None)
     results["numpy"] = _read_all(path)
     assert used and set(used) == {"numpy"}
-    monkeypatch.setattr(rec, "_numpy_piece", lambda *a, **k: None)
+    monkeypatch.setattr(csv_engine, "_numpy_piece", lambda *a, **k: None)
     used.clear()
     results["python"] = _read_all(path)
     assert used and set(used) == {"python"}
@@ -797,13 +799,13 @@ def test_error_line_in_a_later_piece(
     rows = [f"{i / 10!r},{i % 7}" for i in range(3000)]
     rows[2345] = f"{2345 / 10!r},1.2.3"
     path = _write(tmp_path, "x.csv", "# c\n" + _csv(rows))
-    monkeypatch.setattr(rec, "_PIECE_BYTES", 4096)
+    monkeypatch.setattr(csv_engine, "_PIECE_BYTES", 4096)
     expected = (
         f"{path}:line 2348: column 'gyro_x' holds '1.2.3', not a number; expected a decimal "
         "number such as -0.0123 (with '.' as the decimal mark)"
     )
     assert _err(path, cache=False) == expected
-    monkeypatch.setattr(rec, "_import_pyarrow_csv", lambda: None)
+    monkeypatch.setattr(csv_engine, "import_pyarrow_csv", lambda: None)
     assert _err(path, cache=False) == expected
 
 
@@ -879,7 +881,7 @@ def test_many_problems_are_summarized(tmp_path: pathlib.Path) -> None:
     )
     r = read_recording(path, rate=1.0, gaps="split", min_segment=2)
     nan_findings = [f for f in r.findings if f.kind == "non_finite"]
-    assert len(nan_findings) == 1001  # rec._MAX_FINDINGS, then one for the rest
+    assert len(nan_findings) == 1001  # MAX_FINDINGS, then one for the rest
     assert nan_findings[-1].count == 250 and nan_findings[-1].position == 4000
     assert nan_findings[-1].detail == (
         "column 'ch0' holds NaN or an empty field in 2 consecutive samples, and 249 more such "
