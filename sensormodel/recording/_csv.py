@@ -34,11 +34,17 @@ from ._sources import Source
 __all__ = ["TextSource"]
 
 _PIECE_BYTES = 64 * 2**20
+# The comment settings that hold a quantity: its kind and how it is parsed.
+_QUANTITY_SETTINGS: dict[str, tuple[str, dict[str, bool]]] = {
+    "rate": ("frequency", {"allow_zero": False}),
+    "start_time": ("time", {"allow_negative": True}),
+}
 
 
 class TextSource(Source):
     fmt = "csv"
     text = True
+    position_words = ("line", "lines")
 
     def __init__(self, path: pathlib.Path, src: str) -> None:
         super().__init__(path, src)
@@ -92,14 +98,14 @@ class TextSource(Source):
         if headerless:
             self.names = [f"ch{i}" for i in range(len(fields))]
             self.units = [None] * len(fields)
-            self.first_line = header_line
+            self.first_position = header_line
             self.data_offset = header_start
         else:
             for i, f in enumerate(fields):
                 name, unit = split_header(f)
                 self.names.append(name or f"ch{i}")
                 self.units.append(unit)
-            self.first_line = header_line + 1
+            self.first_position = header_line + 1
             self.data_offset = data_offset
         self.data_end = self._data_end()
         if self.data_end <= self.data_offset:
@@ -126,16 +132,10 @@ class TextSource(Source):
             return
         key, value = m.group(1).lower(), m.group(2)
         where = f"line {line_no}"
-        if key == "rate":
+        if key in ("rate", "start_time"):
+            kind, options = _QUANTITY_SETTINGS[key]
             try:
-                self.rate = parse_quantity(value, "frequency", allow_zero=False)
-            except UnitError as exc:
-                raise RecordingError(
-                    exc.problem, exc.expected, source=self.src, field=where
-                ) from None
-        elif key == "start_time":
-            try:
-                self.start_time = parse_quantity(value, "time", allow_negative=True)
+                setattr(self, key, parse_quantity(value, kind, **options))
             except UnitError as exc:
                 raise RecordingError(
                     exc.problem, exc.expected, source=self.src, field=where
@@ -166,12 +166,6 @@ class TextSource(Source):
                     return start + len(chunk)
                 end = start
         return 0
-
-    def where(self, i: int, length: int = 1) -> str:
-        line = self.first_line + i
-        if length > 1:
-            return f"lines {line}-{line + length - 1}"
-        return f"line {line}"
 
     # -- parsing -------------------------------------------------------------------------------
     def load(
@@ -260,7 +254,7 @@ class TextSource(Source):
 
     def _python_piece(self, raw: bytes, row0: int, wanted: Sequence[int]) -> list[np.ndarray]:
         """The reference reader: csv-module rules, :func:`_number` per field, exact errors."""
-        line0 = self.first_line + row0
+        line0 = self.first_position + row0
         try:
             text = raw.decode("utf-8")
         except UnicodeDecodeError as exc:

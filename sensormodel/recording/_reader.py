@@ -20,7 +20,7 @@ from ..errors import RecordingError
 from ._columns import UnitPlan, plan_columns, to_si
 from ._csv import TextSource
 from ._formats import FORMATS_TEXT, format_of
-from ._results import Finding, Recording
+from ._results import Finding, Recording, Segment
 from ._sources import Hdf5Source, NpySource, NpzSource, Source
 from ._timebase import data_findings, fail_or_split, resolve_rate, sort_findings, time_base
 
@@ -120,44 +120,11 @@ def read_recording(
     channels = _channels(
         source, plan, raw, final_rate, constant_run=constant_run, saturation_run=saturation_run
     )
-    findings = [*plan.notes, *clock.findings, *channels.findings]
-    sort_findings(findings)
-    start_time = clock.start_time(source.start_time)
-
-    def start_of(i: int) -> float:
-        if clock.time is not None and np.isfinite(clock.time[i]):
-            return float(clock.time[i])
-        return start_time + i / final_rate
-
-    segments = fail_or_split(
-        findings,
-        [(c.channel, c.name) for c in plan.columns],
-        len(raw[0]),
-        gaps=gaps,
-        bad_of=channels.bad,
-        time_bad=clock.bad,
-        brk=clock.brk,
-        start_time=start_time,
-        start_of=start_of,
-        min_segment=min_segment,
-        where=source.where,
-        src=src,
+    checked = _Checked(
+        source, plan, clock, channels, final_rate, clock.start_time(source.start_time)
     )
-    return Recording(
-        source=src,
-        format=source.fmt,
-        channels=tuple(c.channel for c in plan.columns),
-        data=MappingProxyType(channels.data),
-        units=MappingProxyType({c.channel: c.si_unit for c in plan.columns}),
-        quantities=MappingProxyType({c.channel: c.si_quantity for c in plan.columns}),
-        columns=MappingProxyType({c.channel: c.name for c in plan.columns}),
-        rate=final_rate,
-        start_time=start_time,
-        increments=plan.increments,
-        findings=tuple(findings),
-        segments=MappingProxyType(segments),
-        time=None if clock.time is None else _readonly(clock.time),
-    )
+    findings, segments = checked.segments(gaps=gaps, min_segment=min_segment)
+    return checked.recording(findings, segments)
 
 
 def open_source(path: pathlib.Path, src: str) -> Source:
@@ -268,6 +235,69 @@ def _channels(
         out.findings += found
         out.data[pl.channel] = _readonly(to_si(x, pl, rate))
     return out
+
+
+@dataclass(frozen=True)
+class _Checked:
+    """The results of the steps up to the data checks, and the last two steps on them."""
+
+    source: Source
+    plan: UnitPlan
+    clock: _Clock
+    channels: _Channels
+    rate: float
+    start_time: float
+
+    def segments(
+        self, *, gaps: str, min_segment: int
+    ) -> tuple[list[Finding], dict[str, tuple[Segment, ...]]]:
+        """Every finding in file order, and the segments of each channel (or the refusal)."""
+        clock, plan = self.clock, self.plan
+        findings = [*plan.notes, *clock.findings, *self.channels.findings]
+        sort_findings(findings)
+
+        def start_of(i: int) -> float:
+            if clock.time is not None and np.isfinite(clock.time[i]):
+                return float(clock.time[i])
+            return self.start_time + i / self.rate
+
+        segments = fail_or_split(
+            findings,
+            [(c.channel, c.name) for c in plan.columns],
+            len(clock.bad),
+            gaps=gaps,
+            bad_of=self.channels.bad,
+            time_bad=clock.bad,
+            brk=clock.brk,
+            start_time=self.start_time,
+            start_of=start_of,
+            min_segment=min_segment,
+            where=self.source.where,
+            src=self.source.src,
+        )
+        return findings, segments
+
+    def recording(
+        self, findings: list[Finding], segments: dict[str, tuple[Segment, ...]]
+    ) -> Recording:
+        """The :class:`Recording` (read-only mappings and arrays)."""
+        cols = self.plan.columns
+        time = self.clock.time
+        return Recording(
+            source=self.source.src,
+            format=self.source.fmt,
+            channels=tuple(c.channel for c in cols),
+            data=MappingProxyType(self.channels.data),
+            units=MappingProxyType({c.channel: c.si_unit for c in cols}),
+            quantities=MappingProxyType({c.channel: c.si_quantity for c in cols}),
+            columns=MappingProxyType({c.channel: c.name for c in cols}),
+            rate=self.rate,
+            start_time=self.start_time,
+            increments=self.plan.increments,
+            findings=tuple(findings),
+            segments=MappingProxyType(segments),
+            time=None if time is None else _readonly(time),
+        )
 
 
 def _readonly(x: np.ndarray) -> np.ndarray:

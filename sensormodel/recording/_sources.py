@@ -27,12 +27,33 @@ __all__ = ["Source", "NpySource", "NpzSource", "Hdf5Source"]
 
 
 class Source:
+    """A recording file opened for reading: what it says about itself, and its loader.
+
+    Attributes
+    ----------
+    fmt : str
+        The format (a value of ``_formats.SUFFIXES``).
+    text : bool
+        A text format: messages name file lines, else sample indices.
+    position_words : (str, str)
+        How messages name one sample's place and a stretch's (``index``/``indices``).
+    first_position : int
+        The place of sample 0 in those words (0, or the first data line of a text file).
+    names, units : list
+        Column names and the units the file gives (None where it gives none).
+    rate, increments, start_time
+        What the file states (None where it says nothing): rate [Hz], whether the samples
+        are increments, time of the first sample [s].
+    """
+
     fmt = ""
     text = False
+    position_words = ("index", "indices")
 
     def __init__(self, path: pathlib.Path, src: str) -> None:
         self.path = path
         self.src = src
+        self.first_position = 0
         self.names: list[str] = []
         self.units: list[str | None] = []
         self.rate: float | None = None
@@ -52,10 +73,13 @@ class Source:
         self.rate, self._rate_what = r, what
 
     def where(self, i: int, length: int = 1) -> str:
-        """The place of samples ``i`` … ``i + length - 1`` in the file, for messages."""
+        """The place of samples ``i`` … ``i + length - 1`` in the file, for messages: the
+        0-based sample index (binary) or the file line as an editor shows it (text)."""
+        first = self.first_position + i
+        one, several = self.position_words
         if length > 1:
-            return f"indices {i}-{i + length - 1}"
-        return f"index {i}"
+            return f"{several} {first}-{first + length - 1}"
+        return f"{one} {first}"
 
     def load(
         self, wanted: Sequence[int], *, cache: Any, progress: Callable[[int, int], None] | None
