@@ -42,6 +42,9 @@ _QUANTITY_SETTINGS: dict[str, tuple[str, dict[str, bool]]] = {
 
 
 class TextSource(Source):
+    """A CSV / TSV file: comment settings, header (or none), delimiter; columns parsed by
+    the engines, through the cache for large files. Messages name file lines."""
+
     fmt = "csv"
     text = True
     position_words = ("line", "lines")

@@ -115,6 +115,9 @@ class Source:
 
 
 class NpySource(Source):
+    """A ``.npy`` array (1-D: one channel; 2-D: samples × columns), memory-mapped; names,
+    units and settings from the ``<name>.npy.json`` sidecar when there is one."""
+
     fmt = "npy"
 
     def __init__(self, path: pathlib.Path, src: str) -> None:
@@ -164,6 +167,9 @@ class NpySource(Source):
 
 
 class NpzSource(Source):
+    """A ``.npz`` archive: one 1-D array per column, a 0-d ``rate`` (or ``fs``) array, the
+    metadata in a ``_sensormodel`` entry; stored (uncompressed) entries are memory-mapped."""
+
     fmt = "npz"
 
     def __init__(self, path: pathlib.Path, src: str) -> None:
@@ -246,6 +252,9 @@ def _zip_data_offset(path: pathlib.Path, info: zipfile.ZipInfo) -> int:
 
 
 class Hdf5Source(Source):
+    """An HDF5 file: one 1-D dataset per column (``unit`` attributes, ``rate`` attributes or
+    0-d datasets); contiguous uncompressed native datasets are memory-mapped."""
+
     fmt = "hdf5"
 
     def __init__(self, path: pathlib.Path, src: str) -> None:
