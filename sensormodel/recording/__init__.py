@@ -42,7 +42,8 @@ HDF5 (``.h5``, ``.hdf5``; needs the optional ``h5py``: ``pip install sensormodel
 Channels and units (DESIGN §10)
 -------------------------------
 A column whose name equals a channel id (``gyro.x``, ``gyro_x``, ``GYRO_X``: ``.`` and ``_``
-alike, case ignored) is that channel; ``channel_map={"COLUMN": "gyro.x"}`` maps any other.
+alike, case ignored) is that channel; ``channel_map={"COLUMN": "gyro.x"}`` maps any other
+(:func:`parse_channel_map` reads it from ``COLUMN=CHANNEL_ID`` option values).
 Columns that map to no channel keep their name as id. A gyro column's unit must be an angular
 rate (an angle with ``increments``), an accelerometer column's an acceleration (a velocity with
 ``increments``); there ``g``, ``mg``, ``µg`` are standard gravity. An unmapped column's kind is
@@ -94,6 +95,15 @@ Files of at least ``CACHE_MIN_BYTES`` (8 MiB) are converted once into raw float6
 modification time: ``$SENSORMODEL_CACHE`` if set, else ``$XDG_CACHE_HOME/sensormodel/csv``
 (default ``~/.cache/sensormodel/csv``). ``SENSORMODEL_CACHE=off`` or ``cache=False`` disables it;
 ``cache=True`` caches any size; the folder can be deleted at any time.
+
+Modules
+-------
+Everything but the names below is private to the package: ``_formats`` (the format table,
+stated-rate check), ``_sources`` (NPY, NPZ, HDF5) and ``_csv`` (text layout, the three
+engines) with ``_cache``; ``_columns`` (channel ids, time column, selection, unit plans);
+``_timebase`` (time base, findings, fail or split); ``_results`` (:class:`Recording`,
+:class:`Finding`, :class:`Segment`); ``_reader`` (:func:`read_recording`, step by step);
+``_writers`` (:func:`open_writer`).
 """
 
 from __future__ import annotations
