@@ -237,33 +237,21 @@ def _select(
 
 @dataclass(frozen=True)
 class ColumnPlan:
-    """How one data column becomes one channel.
+    """How one data column becomes one channel."""
 
-    Attributes
-    ----------
-    index : int
-        The column's position in the file.
-    name : str
-        The column's name in the file.
-    channel : str
-        The channel id (or the column name for an unmapped column).
-    unit : str or None
-        The column's unit as written (file or option), None without one.
-    quantity : str
-        The kind of the values in the file (``angular_rate``, ``angle``, …) or
-        ``as_recorded``.
-    factor : float
-        File value × factor = SI value of that kind.
-    per_sample : bool
-        The values are increments per sample period (divided by the period, i.e. × rate).
-    """
-
+    #: The column's position in the file.
     index: int
+    #: The column's name in the file.
     name: str
+    #: The channel id (or the column name for an unmapped column).
     channel: str
+    #: The column's unit as written (file or option), None without one.
     unit: str | None
+    #: The kind of the values in the file (``angular_rate``, ``angle``, …) or ``as_recorded``.
     quantity: str
+    #: File value × factor = SI value of that kind.
     factor: float
+    #: The values are increments per sample period (divided by the period, i.e. × rate).
     per_sample: bool
 
     @property

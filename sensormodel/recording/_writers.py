@@ -38,16 +38,23 @@ UnitsArg = str | Sequence[str | None] | Mapping[str, str] | None
 
 @dataclass(frozen=True)
 class _Layout:
-    """What a writer writes, checked: channels, output unit labels and the divisors that turn
-    SI samples into them, rate [Hz], increments, time column, start time [s], sample count."""
+    """What a writer writes, checked (:meth:`build`)."""
 
+    #: Channel ids, one per block column.
     channels: tuple[str, ...]
+    #: Output unit label per channel (``""``: as recorded).
     units: tuple[str, ...]
+    #: Per channel, file value = SI sample / divisor.
     divisors: tuple[float, ...]
+    #: Sample rate [Hz].
     rate: float
+    #: Write increments per sample period (marked in the file).
     increments: bool
+    #: Write a time column ``time [s]``.
     time_column: bool
+    #: Time of the first sample [s].
     start_time: float
+    #: The number of samples to be written, when known (preallocation).
     n_samples: int | None
 
     @classmethod
