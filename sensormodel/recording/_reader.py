@@ -1,0 +1,307 @@
+"""The reader: a recording file into a :class:`~sensormodel.recording.Recording`, in named steps.
+
+open the source (``_sources``, ``_csv``) → plan its columns and units (``_columns``) → load the
+raw columns → the time base (``_timebase``) → the rate → the channels in SI with their findings
+→ fail or split into segments → the :class:`Recording`.
+"""
+
+from __future__ import annotations
+
+import os
+import pathlib
+from collections.abc import Callable, Mapping, Sequence
+from dataclasses import dataclass, field
+from types import MappingProxyType
+
+import numpy as np
+
+from .. import validate
+from ..errors import RecordingError
+from ._columns import UnitPlan, plan_columns, to_si
+from ._csv import TextSource
+from ._formats import FORMATS_TEXT, format_of
+from ._results import Finding, Recording, Segment
+from ._sources import Hdf5Source, NpySource, NpzSource, Source
+from ._timebase import data_findings, fail_or_split, resolve_rate, sort_findings, time_base
+
+__all__ = ["read_recording", "open_source"]
+
+#: The source class of each format of ``_formats.SUFFIXES``.
+_SOURCES: dict[str, type[Source]] = {
+    "csv": TextSource,
+    "npy": NpySource,
+    "npz": NpzSource,
+    "hdf5": Hdf5Source,
+}
+
+
+def read_recording(
+    path: str | os.PathLike[str],
+    *,
+    rate: float | None = None,
+    unit: str | Mapping[str, str] | None = None,
+    increments: bool | None = None,
+    columns: str | Sequence[str] | None = None,
+    channel_map: Mapping[str, str] | None = None,
+    gaps: str = "fail",
+    progress: Callable[[int, int], None] | None = None,
+    cache: bool | str | os.PathLike[str] | None = None,
+    constant_run: int = 1000,
+    saturation_run: int = 16,
+    min_segment: int = 100,
+) -> Recording:
+    """Read a recording file into SI arrays, check its time base and report its problems.
+
+    Parameters
+    ----------
+    path : path-like
+        A ``.csv``, ``.tsv``, ``.txt``, ``.npy``, ``.npz``, ``.h5`` or ``.hdf5`` file (module
+        docstring: formats).
+    rate : float, optional
+        Sample rate [Hz]. Needed when the file has neither a time column nor a stated rate; when
+        it has, the two must agree within a relative 1e-6.
+    unit : str or mapping, optional
+        One unit for every column that has none in the file (``"deg/s"``), or a unit per
+        column name (``{"gyro_x": "mdps", "time": "ms"}``), which overrides the file's (noted).
+    increments : bool, optional
+        Samples are increments per sample period (angle, velocity); they are returned as mean
+        rates over the period. Default: as the file states, else False.
+    columns : str or sequence of str, optional
+        Column names or globs (``"gyro*"``, comma-separated in one string) to read; default all
+        but the time column. Columns named in ``channel_map`` are always read.
+    channel_map : mapping, optional
+        ``{"COLUMN": "gyro.x"}``: the channel id of columns whose name is not one.
+    gaps : {"fail", "split"}
+        ``"fail"``: raise on the first problem; ``"split"``: return the clean segments.
+    progress : callable, optional
+        Called as ``progress(done, total)`` while a CSV file is parsed (bytes).
+    cache : bool or path-like, optional
+        CSV binary cache: None caches files of at least :data:`CACHE_MIN_BYTES` in
+        :func:`cache_folder`; True caches any size; False never; a folder caches there.
+    constant_run : int
+        This many identical consecutive samples are a ``constant`` finding (0: no check).
+    saturation_run : int
+        This many consecutive samples at a column's maximum or minimum are ``saturated``
+        (0: no check).
+    min_segment : int
+        With ``gaps="split"``, clean stretches shorter than this (≥ 2) are dropped (and
+        reported).
+
+    Returns
+    -------
+    Recording
+        Channels, SI data (rad/s, m/s², rad, m/s, or as recorded), units, rate [Hz], start time
+        [s], findings and segments.
+
+    Raises
+    ------
+    RecordingError
+        A file that cannot be read as a uniformly sampled record, naming the file and the line
+        (text) or index (binary), what was found and what was expected.
+    """
+    src = str(path)
+    min_segment = _check_options(gaps, min_segment, constant_run, saturation_run)
+    option_rate = None if rate is None else validate.rate(rate, "--rate")
+    source = open_source(pathlib.Path(path), src)
+    plan = plan_columns(
+        source.names,
+        source.units,
+        unit=unit,
+        increments=increments,
+        file_increments=source.increments,
+        columns=columns,
+        channel_map=channel_map,
+        src=src,
+    )
+    raw = _load(source, plan, cache=cache, progress=progress)
+    clock = _clock(source, plan, raw)
+    time_name = None if plan.time_index is None else source.names[plan.time_index]
+    final_rate = resolve_rate(option_rate, source.rate, clock.rate, time_name, src)
+    channels = _channels(
+        source, plan, raw, final_rate, constant_run=constant_run, saturation_run=saturation_run
+    )
+    checked = _Checked(
+        source, plan, clock, channels, final_rate, clock.start_time(source.start_time)
+    )
+    findings, segments = checked.segments(gaps=gaps, min_segment=min_segment)
+    return checked.recording(findings, segments)
+
+
+def open_source(path: pathlib.Path, src: str) -> Source:
+    """The source of a recording file, by its name ending (format), after its header."""
+    fmt_name = format_of(path, src)
+    if not path.exists():
+        raise RecordingError("no such file", f"an existing recording ({FORMATS_TEXT})", source=src)
+    if path.is_dir():
+        raise RecordingError("is a folder", f"a recording file ({FORMATS_TEXT})", source=src)
+    return _SOURCES[fmt_name](path, src)
+
+
+def _check_options(gaps: str, min_segment: int, constant_run: int, saturation_run: int) -> int:
+    """Check the reader's policy arguments; return ``min_segment`` as an int."""
+    if gaps not in ("fail", "split"):
+        raise RecordingError(f"gaps={gaps!r}", "'fail' or 'split'", field="gaps")
+    validate.whole_number(constant_run, "constant_run", minimum=0)
+    validate.whole_number(saturation_run, "saturation_run", minimum=0)
+    return validate.whole_number(min_segment, "min_segment", minimum=2)
+
+
+def _load(
+    source: Source,
+    plan: UnitPlan,
+    *,
+    cache: bool | str | os.PathLike[str] | None,
+    progress: Callable[[int, int], None] | None,
+) -> list[np.ndarray]:
+    """The raw columns of the plan (data columns, then time), at least two samples each."""
+    raw = source.load(plan.wanted, cache=cache, progress=progress)
+    if len(raw[0]) < 2:
+        row_word = "data row" if source.text else "sample"
+        raise RecordingError(
+            f"only one {row_word}",
+            f"at least 2 {row_word}s",
+            source=source.src,
+            field=source.where(0) if source.text else None,
+        )
+    return raw
+
+
+@dataclass(frozen=True)
+class _Clock:
+    """The time base: the time column in seconds (None without one), the rate of its regular
+    steps, the samples that break the regular steps, the non-finite time stamps, findings."""
+
+    time: np.ndarray | None
+    rate: float | None
+    brk: np.ndarray
+    bad: np.ndarray
+    findings: list[Finding]
+
+    def start_time(self, stated: float | None) -> float:
+        """Time of the first sample [s]: the time column's, else as the file states, else 0."""
+        if self.time is not None and np.isfinite(self.time[0]):
+            return float(self.time[0])
+        return stated or 0.0
+
+
+def _clock(source: Source, plan: UnitPlan, raw: Sequence[np.ndarray]) -> _Clock:
+    """The time base from the time column (the last raw column), or an empty one."""
+    n = len(raw[0])
+    if plan.time_index is None:
+        return _Clock(None, None, np.zeros(n, dtype=bool), np.zeros(n, dtype=bool), [])
+    traw = raw[-1]
+    t = traw if traw.dtype == np.float64 else traw.astype(np.float64)
+    if plan.time_factor != 1.0:
+        t = t * plan.time_factor
+    findings, rate, brk = time_base(t, source.where)
+    if rate is None:
+        raise RecordingError(
+            f"the time column '{source.names[plan.time_index]}' never increases",
+            "increasing time stamps",
+            source=source.src,
+        )
+    return _Clock(t, rate, brk, ~np.isfinite(t), findings)
+
+
+@dataclass
+class _Channels:
+    """Per channel, the SI data and the mask of its flagged samples; the data findings."""
+
+    data: dict[str, np.ndarray] = field(default_factory=dict)
+    bad: dict[str, np.ndarray] = field(default_factory=dict)
+    findings: list[Finding] = field(default_factory=list)
+
+
+def _channels(
+    source: Source,
+    plan: UnitPlan,
+    raw: Sequence[np.ndarray],
+    rate: float,
+    *,
+    constant_run: int,
+    saturation_run: int,
+) -> _Channels:
+    """Check each data column (in file units) and convert it to SI at ``rate`` [Hz]."""
+    out = _Channels()
+    for pl, x in zip(plan.columns, raw, strict=False):
+        found, out.bad[pl.channel] = data_findings(
+            x,
+            pl.name,
+            pl.channel,
+            source.where,
+            constant_run=constant_run,
+            saturation_run=saturation_run,
+        )
+        out.findings += found
+        out.data[pl.channel] = _readonly(to_si(x, pl, rate))
+    return out
+
+
+@dataclass(frozen=True)
+class _Checked:
+    """The results of the steps up to the data checks, and the last two steps on them."""
+
+    source: Source
+    plan: UnitPlan
+    clock: _Clock
+    channels: _Channels
+    rate: float
+    start_time: float
+
+    def segments(
+        self, *, gaps: str, min_segment: int
+    ) -> tuple[list[Finding], dict[str, tuple[Segment, ...]]]:
+        """Every finding in file order, and the segments of each channel (or the refusal)."""
+        clock, plan = self.clock, self.plan
+        findings = [*plan.notes, *clock.findings, *self.channels.findings]
+        sort_findings(findings)
+
+        def start_of(i: int) -> float:
+            if clock.time is not None and np.isfinite(clock.time[i]):
+                return float(clock.time[i])
+            return self.start_time + i / self.rate
+
+        segments = fail_or_split(
+            findings,
+            [(c.channel, c.name) for c in plan.columns],
+            len(clock.bad),
+            gaps=gaps,
+            bad_of=self.channels.bad,
+            time_bad=clock.bad,
+            brk=clock.brk,
+            start_time=self.start_time,
+            start_of=start_of,
+            min_segment=min_segment,
+            where=self.source.where,
+            src=self.source.src,
+        )
+        return findings, segments
+
+    def recording(
+        self, findings: list[Finding], segments: dict[str, tuple[Segment, ...]]
+    ) -> Recording:
+        """The :class:`Recording` (read-only mappings and arrays)."""
+        cols = self.plan.columns
+        time = self.clock.time
+        return Recording(
+            source=self.source.src,
+            format=self.source.fmt,
+            channels=tuple(c.channel for c in cols),
+            data=MappingProxyType(self.channels.data),
+            units=MappingProxyType({c.channel: c.si_unit for c in cols}),
+            quantities=MappingProxyType({c.channel: c.si_quantity for c in cols}),
+            columns=MappingProxyType({c.channel: c.name for c in cols}),
+            rate=self.rate,
+            start_time=self.start_time,
+            increments=self.plan.increments,
+            findings=tuple(findings),
+            segments=MappingProxyType(segments),
+            time=None if time is None else _readonly(time),
+        )
+
+
+def _readonly(x: np.ndarray) -> np.ndarray:
+    if x.flags.writeable:
+        x = x.view()
+        x.flags.writeable = False
+    return x
