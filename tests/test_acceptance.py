@@ -631,3 +631,38 @@ def test_error_rates_gauss_markov_bias_at_limit() -> None:
     assert calls.count("fail") <= _binom_max(_GM_TRIALS, 0.05), calls.count("fail")
     assert calls.count("pass") <= _binom_max(_GM_TRIALS, 0.05), calls.count("pass")
     assert calls.count("inconclusive") >= _GM_TRIALS - 2 * _binom_max(_GM_TRIALS, 0.05)
+
+
+def test_verify_recording_notes_as_reason_codes(write_datasheet, tmp_path) -> None:
+    # A recording through the one pipeline: the longest clean segment is analysed, and the
+    # report notes the segment left out, the datasheet channel not recorded and the recorded
+    # channel not on the datasheet, as reason codes with their numbers (words in the report).
+    from sensormodel.recording import read_recording
+
+    path = write_datasheet(_SHEET.replace('axes = ["z"]', 'axes = ["y", "z"]'))
+    n_lim = 0.02 * uref.DEG_PER_RT_H
+    rng = np.random.default_rng(11)
+    rows, t = ["time [s],gyro_x [deg/s],gyro_z [deg/s]"], 0.0
+    for n in (2000, 6000):  # two stretches at 10 Hz, 0.5 s apart
+        y = np.rad2deg(rng.normal(0.0, 3.0 * n_lim * math.sqrt(10.0), (n, 2)))
+        for a, b in y:
+            rows.append(f"{t:.2f},{a:.10g},{b:.10g}")
+            t += 0.1
+        t += 0.5
+    csv = tmp_path / "gappy.csv"
+    csv.write_text("\n".join(rows) + "\n")
+    rec = read_recording(csv, gaps="split")
+    rep = acc.verify(rec, path, n_boot=41, seed=1)
+    (ch,) = rep.channels
+    assert ch.id == "gyro.z" and ch.duration == pytest.approx(600.0, rel=1e-6)
+    assert ch.allan.n_samples == 6000 and ch.psd is not None
+    codes = dict(rep.notes)
+    assert codes["channels_missing"] == {"channels": ("gyro.y",)}
+    assert codes["channels_extra"] == {"channels": ("gyro.x",)}
+    left = codes["segments_left_out"]
+    assert left["channel"] == "gyro.z" and left["segments"] == 2 and left["count"] == 1.0
+    assert left["samples"] == 2000.0 and left["duration"] == pytest.approx(600.0, rel=1e-6)
+    text = report.verdict_text(rep)
+    assert "note: not in the recording, not verified: gyro.y" in text
+    assert "note: in the recording but not on the datasheet, ignored: gyro.x" in text
+    assert "gyro.z: the recording has 2 clean segments; the longest (600 s of" in text
