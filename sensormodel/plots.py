@@ -8,11 +8,17 @@ line builds it with :mod:`sensormodel.quantities`).
 
 from __future__ import annotations
 
+import io
 import os
+import pathlib
 from collections.abc import Mapping, Sequence
 from typing import Any
 
 import numpy as np
+
+from ._io import atomic_path
+from .errors import AnalysisError, SensorModelError
+from .terms import DEFAULT_LONGEST_TIME
 
 __all__ = [
     "allan_figure",
@@ -101,9 +107,6 @@ def model_figure(
         (right, up to the Nyquist frequency); terms dashed, their sum solid black. A flicker
         term's legend states its realization's worst Allan-deviation error.
     """
-    from .errors import AnalysisError
-    from .terms import DEFAULT_LONGEST_TIME
-
     chans = [model.channel(c) for c in channels] if channels else list(model.channels)
     fig, axes = _figure(len(chans), 2, fixed_margins=True)
     for row, ch in enumerate(chans):
@@ -204,10 +207,6 @@ def drift_figure(result: Any, *, display: Display | None = None) -> Any:
 
 def save_figure(fig: Any, path: str | os.PathLike[str], *, force: bool = False) -> None:
     """Write a figure atomically (format from the suffix: .png, .pdf, .svg)."""
-    import pathlib
-
-    from ._io import atomic_path
-
     suffix = pathlib.Path(path).suffix.lstrip(".").lower() or "png"
     with atomic_path(path, force=force) as tmp:
         fig.savefig(tmp, format=suffix, dpi=120)
@@ -283,8 +282,6 @@ def verdict_psd_figure(verdict: Any, *, display: tuple[str, float] | None = None
         Measured one-sided PSD (blue), the datasheet-limit model (red, dashed) and the fitted
         model (black), all one-sided (= 2 × the IEEE Std 952 two-sided PSD).
     """
-    from .errors import SensorModelError
-
     label, factor = display or (verdict.unit, 1.0)
     fig, ax = _single_figure()
     psd = getattr(verdict, "psd", None)
@@ -321,8 +318,6 @@ def verdict_psd_figure(verdict: Any, *, display: tuple[str, float] | None = None
 
 def figure_png(fig: Any, *, dpi: int = 110) -> bytes:
     """The figure as PNG bytes (for embedding in a report)."""
-    import io
-
     buf = io.BytesIO()
     fig.savefig(buf, format="png", dpi=dpi)
     return buf.getvalue()
@@ -362,8 +357,6 @@ def allan_figure(
     """
     items = list(curves)
     if not items:
-        from .errors import AnalysisError
-
         raise AnalysisError("got no curves", "at least one Allan curve", field="curves")
     names = list(labels) if labels is not None else [c.channel for c in items]
     shown = [(display or {}).get(c.channel, (c.unit, 1.0)) for c in items]

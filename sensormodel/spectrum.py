@@ -21,6 +21,7 @@ import numpy.typing as npt
 
 from . import validate
 from .errors import AnalysisError
+from .terms import Shaped
 
 __all__ = [
     "PSDResult",
@@ -685,8 +686,6 @@ def omega_polynomial_to_omega2(
 
 def shaped_term(filt: ShapingFilter, *, meta: dict[str, Any] | None = None):
     """The :class:`sensormodel.terms.Shaped` noise term of a shaping filter."""
-    from .terms import Shaped
-
     return Shaped(
         numerator=tuple(float(v) for v in filt.numerator),
         denominator=tuple(float(v) for v in filt.denominator),

@@ -292,3 +292,37 @@ def test_write_html_with_pngs(report, tmp_path: pathlib.Path) -> None:
 
     with pytest.raises(OutputExistsError):
         write_verdict_html(report, out)
+
+
+def test_reason_codes_become_the_sentences_of_the_reports():
+    # Every reason code the acceptance results carry has one sentence template; two pinned.
+    from sensormodel.report import REASONS, reason_text
+
+    values = {
+        "against": "max",
+        "column": "typ",
+        "text": "0.5 deg/h",
+        "side": "above",
+        "p_value": 0.1234,
+        "alpha": 0.05,
+        "n_records": 59,
+        "skip_margin": 2.0,
+        "channels": ("gyro.x", "gyro.y"),
+        "channel": "gyro.z",
+        "segments": 3,
+        "duration": 1234.5678,
+        "recording_duration": 4000.0,
+    }
+    for code in REASONS:
+        text = reason_text(code, values)
+        assert text and "{" not in text and "}" not in text, code
+    assert reason_text("no_limit_column", values) == (
+        "the datasheet gives no max value (only typ 0.5 deg/h); nothing to verify against"
+    )
+    assert reason_text("limit_test_not_confirmed", values) == (
+        "the interval lies above the limit, but the bootstrap test at the limit does not "
+        "confirm it (p = 0.123 > 0.05, 59 records): interval widened to the limit"
+    )
+    assert reason_text("channels_missing", values).endswith("not verified: gyro.x, gyro.y")
+    with pytest.raises(KeyError):
+        reason_text("an_unknown_code")

@@ -11,8 +11,10 @@ test at the limit (:func:`sensormodel.identify.limit_test`), and the whole-curve
 from __future__ import annotations
 
 import math
+import multiprocessing
 import zlib
 from collections.abc import Mapping, Sequence
+from concurrent.futures import ProcessPoolExecutor
 from dataclasses import replace
 from typing import Any
 
@@ -550,9 +552,6 @@ def _run_jobs(
             _verify_job(curve, ax, length, _channel_seed(seed, ax), options)
             for curve, ax, length, _ in jobs
         ]
-    import multiprocessing  # deferred: only a parallel run needs it
-    from concurrent.futures import ProcessPoolExecutor
-
     context = multiprocessing.get_context("spawn")
     with ProcessPoolExecutor(max_workers=n_workers, mp_context=context) as pool:
         futures = [

@@ -13,6 +13,7 @@ import numpy as np
 import numpy.typing as npt
 
 from .. import validate
+from .._io import validate as validate_schema
 from ..confidence import DEFAULT_CONFIDENCE, NOISE_ALPHAS
 from ..errors import AnalysisError, ModelFileError, SensorModelError
 
@@ -255,8 +256,6 @@ def curves_from_json(data: Any, *, source: str | None = None) -> list[AllanCurve
     The document is checked against ``schemas/allan-curve.schema.json``; an unknown ``schema``
     version is refused by name.
     """
-    from .._io import validate as validate_schema
-
     if not isinstance(data, Mapping):
         raise ModelFileError(
             f"got {type(data).__name__}",
