@@ -245,7 +245,7 @@ def edf_greenhall(alpha: int, m: int, n_phase: int, *, overlapping: bool = True)
     n_phase : int
         Number of phase points N (n + 1 for n rate samples).
     overlapping : bool
-        Overlapped estimator (the one :func:`overlapping` computes) or not.
+        Overlapped estimator (the one :func:`sensormodel.allan.overlapping` computes) or not.
 
     Returns
     -------
@@ -309,7 +309,8 @@ def _edf_moving_average(v: np.ndarray, M: int, step: int) -> float:
 
 
 def edf(alpha: int, m: int, n_phase: int, *, overlapping: bool = True) -> float:
-    """Equivalent degrees of freedom of the Allan variance as :func:`overlapping` uses them.
+    """Equivalent degrees of freedom of the Allan variance as :func:`sensormodel.allan.overlapping`
+    uses them.
 
     :func:`edf_greenhall` everywhere, except where its short-τ branch (F = m, used for
     3m ≤ 100) models the unmodified variance only approximately: for white rate noise (α = 0)
@@ -325,14 +326,14 @@ def edf(alpha: int, m: int, n_phase: int, *, overlapping: bool = True) -> float:
 
     Parameters
     ----------
-    alpha : int
-        Exponent of the rate PSD, one of 2, 1, 0, −1, −2.
-    m : int
-        Averaging factor.
-    n_phase : int
-        Number of phase points N.
-    overlapping : bool
-        Overlapped estimator or not.
+    alpha, m, n_phase, overlapping
+        As for :func:`edf_greenhall`: noise type α of the rate PSD, averaging factor (τ = m τ0),
+        phase points N, overlapped estimator or not.
+
+    Returns
+    -------
+    edf : float
+        Equivalent degrees of freedom [-].
     """
     alpha = int(alpha)
     m = int(m)

@@ -17,6 +17,18 @@ from .._io import validate as validate_schema
 from ..confidence import DEFAULT_CONFIDENCE, NOISE_ALPHAS
 from ..errors import AnalysisError, ModelFileError, SensorModelError
 
+__all__ = [
+    "SCHEMA_ID",
+    "SCHEMA_FILE",
+    "CSV_HEADER",
+    "AllanCurve",
+    "curves_to_json",
+    "curves_from_json",
+    "csv_rows",
+    "curves_to_csv",
+    "curves_from_csv",
+]
+
 #: Identifier written in the ``schema`` field of an Allan-curve JSON document (DESIGN §5).
 SCHEMA_ID = "sensormodel/allan-curve/1"
 #: The JSON Schema file of that document in ``schemas/``.

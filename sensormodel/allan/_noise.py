@@ -13,6 +13,8 @@ from ..confidence import NOISE_ALPHAS
 from ..errors import AnalysisError
 from ._samples import _as_samples, _check_finite_mean, _phase
 
+__all__ = ["NOISE_NAMES", "noise_alpha"]
+
 #: Names of the power-law types (time-and-frequency names; the inertial meaning in brackets).
 NOISE_NAMES = {
     2: "white PM (white angle noise)",

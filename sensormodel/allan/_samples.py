@@ -13,6 +13,8 @@ import numpy.typing as npt
 from .. import validate
 from ..errors import AnalysisError
 
+__all__ = ["averaging_factors", "tau_grid"]
+
 # ---------------------------------------------------------------------------------------------
 # Samples and phase
 # ---------------------------------------------------------------------------------------------
