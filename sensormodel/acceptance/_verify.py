@@ -374,7 +374,8 @@ def verify(
         records of at least 2^17 samples in all; default one, in this process). The results
         do not depend on it.
     progress : callable, optional
-        Called as ``progress(channel_id)`` before each channel.
+        Called as ``progress(channel_id)`` for each channel once its Allan deviation is
+        computed, before its identification.
 
     Returns
     -------
