@@ -8,11 +8,17 @@ line builds it with :mod:`sensormodel.quantities`).
 
 from __future__ import annotations
 
+import io
 import os
+import pathlib
 from collections.abc import Mapping, Sequence
 from typing import Any
 
 import numpy as np
+
+from ._io import atomic_path
+from .errors import AnalysisError, SensorModelError
+from .terms import DEFAULT_LONGEST_TIME
 
 __all__ = [
     "allan_figure",
@@ -28,6 +34,16 @@ __all__ = [
 Display = Mapping[str, tuple[str, float]]
 
 
+def _new_figure(figsize: tuple[float, float], **options: Any) -> Any:
+    """A matplotlib Figure on the Agg canvas (no pyplot state, no display)."""
+    import matplotlib
+
+    matplotlib.use("Agg")
+    from matplotlib.figure import Figure
+
+    return Figure(figsize=figsize, **options)
+
+
 def _figure(
     rows: int,
     cols: int,
@@ -36,16 +52,11 @@ def _figure(
     row_height: float = 3.0,
     fixed_margins: bool = False,
 ) -> Any:
-    import matplotlib
-
-    matplotlib.use("Agg")
-    from matplotlib.figure import Figure
-
     height = max(row_height * rows, 3.0)
     if not fixed_margins:
-        fig = Figure(figsize=(width, height), layout="constrained")
+        fig = _new_figure((width, height), layout="constrained")
         return fig, fig.subplots(rows, cols, squeeze=False)
-    fig = Figure(figsize=(width, height))
+    fig = _new_figure((width, height))
     # fixed margins in inches: a layout engine would draw a many-panel figure twice
     fig.subplots_adjust(
         left=0.9 / width,
@@ -57,6 +68,15 @@ def _figure(
     )
     axes = fig.subplots(rows, cols, squeeze=False)
     return fig, axes
+
+
+def _label(ax: Any, title: str, xlabel: str, ylabel: str) -> None:
+    """Title and axis labels of a log-log panel of a report, its grid and legend."""
+    ax.set_title(title)
+    ax.set_xlabel(xlabel)
+    ax.set_ylabel(ylabel)
+    ax.grid(True, which="both", alpha=0.3)
+    ax.legend(fontsize="small")
 
 
 def model_figure(
@@ -87,9 +107,6 @@ def model_figure(
         (right, up to the Nyquist frequency); terms dashed, their sum solid black. A flicker
         term's legend states its realization's worst Allan-deviation error.
     """
-    from .errors import AnalysisError
-    from .terms import DEFAULT_LONGEST_TIME
-
     chans = [model.channel(c) for c in channels] if channels else list(model.channels)
     fig, axes = _figure(len(chans), 2, fixed_margins=True)
     for row, ch in enumerate(chans):
@@ -190,10 +207,6 @@ def drift_figure(result: Any, *, display: Display | None = None) -> Any:
 
 def save_figure(fig: Any, path: str | os.PathLike[str], *, force: bool = False) -> None:
     """Write a figure atomically (format from the suffix: .png, .pdf, .svg)."""
-    import pathlib
-
-    from ._io import atomic_path
-
     suffix = pathlib.Path(path).suffix.lstrip(".").lower() or "png"
     with atomic_path(path, force=force) as tmp:
         fig.savefig(tmp, format=suffix, dpi=120)
@@ -204,12 +217,7 @@ def save_figure(fig: Any, path: str | os.PathLike[str], *, force: bool = False) 
 
 def _single_figure() -> tuple[Any, Any]:
     """One log-log panel of a report, fixed margins (quicker to render than a layout engine)."""
-    import matplotlib
-
-    matplotlib.use("Agg")
-    from matplotlib.figure import Figure
-
-    fig = Figure(figsize=(7.5, 4.6))
+    fig = _new_figure((7.5, 4.6))
     fig.subplots_adjust(left=0.135, right=0.975, bottom=0.115, top=0.925)
     return fig, fig.subplots()
 
@@ -248,11 +256,12 @@ def verdict_allan_figure(verdict: Any, *, display: tuple[str, float] | None = No
         lo, hi = t0 / 1.15, t1 * 1.15
         ax.axvspan(lo, hi, color="tab:red", alpha=0.12, lw=0,
                    label="limit exceeded" if k == 0 else None)
-    ax.set_title(f"{verdict.id}: Allan deviation against the datasheet ({verdict.verdict})")
-    ax.set_xlabel("averaging time τ [s]")
-    ax.set_ylabel(f"σ(τ) [{label}]")
-    ax.grid(True, which="both", alpha=0.3)
-    ax.legend(fontsize="small")
+    _label(
+        ax,
+        f"{verdict.id}: Allan deviation against the datasheet ({verdict.verdict})",
+        "averaging time τ [s]",
+        f"σ(τ) [{label}]",
+    )
     return fig
 
 
@@ -262,8 +271,8 @@ def verdict_psd_figure(verdict: Any, *, display: tuple[str, float] | None = None
     Parameters
     ----------
     verdict : ChannelVerdict
-        From :func:`sensormodel.acceptance.verify`; its ``psd`` is (f [Hz], one-sided PSD
-        [u²/Hz]) of the record (Welch), or None.
+        From :func:`sensormodel.acceptance.verify`; its ``psd`` is the one-sided Welch PSD
+        (:class:`~sensormodel.spectrum.PSDResult`, f [Hz], psd [u²/Hz]) of the record, or None.
     display : (str, float), optional
         Unit label and the factor that multiplies SI values; the PSD is multiplied by factor².
 
@@ -273,15 +282,13 @@ def verdict_psd_figure(verdict: Any, *, display: tuple[str, float] | None = None
         Measured one-sided PSD (blue), the datasheet-limit model (red, dashed) and the fitted
         model (black), all one-sided (= 2 × the IEEE Std 952 two-sided PSD).
     """
-    from .errors import SensorModelError
-
     label, factor = display or (verdict.unit, 1.0)
     fig, ax = _single_figure()
     psd = getattr(verdict, "psd", None)
     f_lo = 1.0 / max(verdict.duration, 1e-9)
     f_hi = 0.5 * verdict.rate
     if psd is not None:
-        f, s = psd
+        f, s = psd.f, psd.psd
         keep = f > 0
         ax.loglog(f[keep], s[keep] * factor**2, "-", color="tab:blue", lw=0.9,
                   label="measured (Welch)")
@@ -300,18 +307,17 @@ def verdict_psd_figure(verdict: Any, *, display: tuple[str, float] | None = None
                       label="fitted model")
         except SensorModelError:  # a fitted model without a PSD is just not drawn
             pass
-    ax.set_title(f"{verdict.id}: power spectral density (one-sided)")
-    ax.set_xlabel("frequency [Hz]")
-    ax.set_ylabel(f"S(f) [({label})²/Hz]")
-    ax.grid(True, which="both", alpha=0.3)
-    ax.legend(fontsize="small")
+    _label(
+        ax,
+        f"{verdict.id}: power spectral density (one-sided)",
+        "frequency [Hz]",
+        f"S(f) [({label})²/Hz]",
+    )
     return fig
 
 
 def figure_png(fig: Any, *, dpi: int = 110) -> bytes:
     """The figure as PNG bytes (for embedding in a report)."""
-    import io
-
     buf = io.BytesIO()
     fig.savefig(buf, format="png", dpi=dpi)
     return buf.getvalue()
@@ -351,8 +357,6 @@ def allan_figure(
     """
     items = list(curves)
     if not items:
-        from .errors import AnalysisError
-
         raise AnalysisError("got no curves", "at least one Allan curve", field="curves")
     names = list(labels) if labels is not None else [c.channel for c in items]
     shown = [(display or {}).get(c.channel, (c.unit, 1.0)) for c in items]
@@ -367,12 +371,13 @@ def allan_figure(
             ax.fill_between(c.tau, c.ci_low * factor, c.ci_high * factor,
                             color=line.get_color(), alpha=0.2, lw=0)
         conf = items[members[0]].confidence
-        ax.set_xlabel("averaging time τ [s]")
         unit = f" [{label}]" if label and label != "1" else " [as recorded]"
-        ax.set_ylabel(f"Allan deviation σ(τ){unit}")
-        ax.set_title(f"overlapping Allan deviation, {100 * conf:.1f} % intervals shaded")
-        ax.grid(True, which="both", alpha=0.3)
-        ax.legend(fontsize="small")
+        _label(
+            ax,
+            f"overlapping Allan deviation, {100 * conf:.1f} % intervals shaded",
+            "averaging time τ [s]",
+            f"Allan deviation σ(τ){unit}",
+        )
     if title:
         fig.suptitle(title)
     save_figure(fig, path, force=force)

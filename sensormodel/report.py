@@ -6,10 +6,31 @@ formatted (with :mod:`sensormodel.quantities`). It computes nothing of its own.
 
 from __future__ import annotations
 
+import base64
+import datetime
+import html
+import math
+import pathlib
+from collections.abc import Mapping
 from dataclasses import dataclass
+from typing import Any
 
+from . import __version__
+from ._io import atomic_writer, check_writable, write_json
+from .allan import NOISE_NAMES
 from .errors import SensorModelError
-from .quantities import DISPLAY_UNITS, convert_from_si, format_value, kind_of, split_value
+from .plots import figure_png, verdict_allan_figure, verdict_psd_figure
+from .quantities import (
+    DISPLAY_UNITS,
+    INSTRUMENT_KIND,
+    SI_LABEL,
+    convert_from_si,
+    display_scale,
+    format_value,
+    kind_of,
+    split_value,
+)
+from .terms import FLICKER_FLOOR_FACTOR
 
 __all__ = [
     "TermRow",
@@ -19,6 +40,9 @@ __all__ = [
     "VERDICT_SCHEMA_ID",
     "VERDICT_SCHEMA_FILE",
     "format_duration",
+    "REASONS",
+    "reason_text",
+    "term_note",
     "display_values",
     "channel_display",
     "verdict_document",
@@ -130,9 +154,7 @@ def term_rows(channel) -> list[TermRow]:
                     # the model's N is the IEEE (two-sided) density: say so beside the print
                     display += f" two-sided (printed one-sided: {ds.get('text', '')})"
                 if term.type == "flicker" and name == "coefficient":
-                    from .convert import FLOOR_FACTOR
-
-                    floor = convert_from_si(value * FLOOR_FACTOR, kind, unit_text)
+                    floor = convert_from_si(value * FLICKER_FLOOR_FACTOR, kind, unit_text)
                     display += f" (Allan floor {format_value(floor, pretty)})"
             rows.append(TermRow(term.type, name, si, display, where))
     return rows
@@ -158,71 +180,8 @@ def inspect_text(model, *, rate: float | None = None, extra: dict | None = None)
     if src:
         lines.append(f"from datasheet: {src} ({model.conventions.get('basis', 'typ')} values)")
     for ch in model.channels:
-        r = rate or ch.sample_rate
-        head = (
-            f"{ch.id}  ({ch.quantity}, SI unit {ch.unit}, "
-            f"output rate {format_value(ch.sample_rate, 'Hz')}"
-        )
-        if ch.bandwidth:
-            head += f", bandwidth {format_value(ch.bandwidth, 'Hz')}"
-            if ch.filter_order:
-                head += f" order {ch.filter_order}"
         lines.append("")
-        lines.append(head + ")")
-        rows = term_rows(ch)
-        if not rows:
-            lines.append("  (no noise terms)")
-        w = [
-            max([len(x) for x in col] + [len(h)])
-            for col, h in zip(
-                zip(*[(t.term, t.parameter, t.si, t.display) for t in rows], strict=False)
-                if rows
-                else [[], [], [], []],
-                ("term", "parameter", "SI", "datasheet units"),
-                strict=False,
-            )
-        ]
-        lines.append(
-            "  "
-            + "  ".join(
-                h.ljust(n)
-                for h, n in zip(("term", "parameter", "SI", "datasheet units"), w, strict=False)
-            )
-            + "  from"
-        )
-        for t in rows:
-            lines.append(
-                "  "
-                + "  ".join(
-                    v.ljust(n)
-                    for v, n in zip((t.term, t.parameter, t.si, t.display), w, strict=False)
-                )
-                + f"  {t.origin}".rstrip()
-            )
-        std = ch.white_sample_std(r)
-        if std > 0:
-            kind = (
-                "angular_rate"
-                if ch.unit == "rad/s"
-                else "acceleration"
-                if ch.unit == "m/s^2"
-                else None
-            )
-            shown = ""
-            if kind:
-                unit_text = "deg/s" if kind == "angular_rate" else "mg"
-                label = "°/s" if kind == "angular_rate" else "mg"
-                shown = f" = {format_value(convert_from_si(std, kind, unit_text), label)}"
-            rule = (
-                f"ENBW of the {ch.filter_order or 1}-pole Butterworth at "
-                f"{format_value(ch.bandwidth, 'Hz')}"
-                if ch.bandwidth
-                else "average over each sample"
-            )
-            lines.append(
-                f"  white noise per sample at {format_value(r, 'Hz')}: "
-                f"std {format_value(std, ch.unit)}{shown}  ({rule})"
-            )
+        lines.extend(_channel_lines(ch, rate or ch.sample_rate))
         for line in (extra or {}).get(ch.id, []):
             lines.append(f"  {line}")
     notes = model.provenance.get("notes", []) if model.provenance else []
@@ -231,6 +190,51 @@ def inspect_text(model, *, rate: float | None = None, extra: dict | None = None)
         lines.append("notes:")
         lines.extend(f"  - {n}" for n in notes)
     return "\n".join(lines)
+
+
+#: Units of the per-sample standard deviation shown beside the SI value: (unit, label).
+_SAMPLE_STD_UNITS = {"angular_rate": ("deg/s", "°/s"), "acceleration": ("mg", "mg")}
+
+
+def _channel_lines(ch, r: float) -> list[str]:
+    """The heading, the term table and the per-sample white noise of one channel."""
+    head = (
+        f"{ch.id}  ({ch.quantity}, SI unit {ch.unit}, "
+        f"output rate {format_value(ch.sample_rate, 'Hz')}"
+    )
+    if ch.bandwidth:
+        head += f", bandwidth {format_value(ch.bandwidth, 'Hz')}"
+        if ch.filter_order:
+            head += f" order {ch.filter_order}"
+    lines = [head + ")"]
+    rows = term_rows(ch)
+    if not rows:
+        lines.append("  (no noise terms)")
+    heads = ("term", "parameter", "SI", "datasheet units")
+    cells = [(t.term, t.parameter, t.si, t.display) for t in rows]
+    w = [max([len(c[i]) for c in cells] + [len(h)]) for i, h in enumerate(heads)]
+    lines.append("  " + "  ".join(h.ljust(n) for h, n in zip(heads, w, strict=True)) + "  from")
+    for t, c in zip(rows, cells, strict=True):
+        text = "  ".join(v.ljust(n) for v, n in zip(c, w, strict=True))
+        lines.append("  " + text + f"  {t.origin}".rstrip())
+    std = ch.white_sample_std(r)
+    if std > 0:
+        kind = next((k for k in INSTRUMENT_KIND.values() if SI_LABEL[k] == ch.unit), None)
+        shown = ""
+        if kind:
+            unit_text, label = _SAMPLE_STD_UNITS[kind]
+            shown = f" = {format_value(convert_from_si(std, kind, unit_text), label)}"
+        rule = (
+            f"ENBW of the {ch.filter_order or 1}-pole Butterworth at "
+            f"{format_value(ch.bandwidth, 'Hz')}"
+            if ch.bandwidth
+            else "average over each sample"
+        )
+        lines.append(
+            f"  white noise per sample at {format_value(r, 'Hz')}: "
+            f"std {format_value(std, ch.unit)}{shown}  ({rule})"
+        )
+    return lines
 
 
 # ---------------------------------------------------------------------------------------------
@@ -243,10 +247,71 @@ VERDICT_SCHEMA_ID = "sensormodel/verdict-report/1"
 VERDICT_SCHEMA_FILE = "verdict-report.schema.json"
 
 
+#: The sentence of each reason code the acceptance results carry (``str.format`` templates
+#: over the reason's values; a tuple of names is written as a comma-separated list).
+REASONS = {
+    # a datasheet term that is not verified (Unverified.reason)
+    "single_run": (
+        "not verifiable from a single run: bias repeatability is the spread of the turn-on bias "
+        "from run to run, and needs several turn-ons"
+    ),
+    "no_limit_column": (
+        "the datasheet gives no {against} value (only {column} {text}); nothing to verify against"
+    ),
+    # a term's verdict (TermVerdict.reasons)
+    "limit_test_not_confirmed": (
+        "the interval lies {side} the limit, but the bootstrap test at the limit does not "
+        "confirm it (p = {p_value:.3f} > {alpha:g}, {n_records} records): interval widened to "
+        "the limit"
+    ),
+    "within_limit": "already within the limit",
+    "bound_only": "bound only: upper bound ∝ duration^-1/4",
+    "estimate_at_limit": "the estimate equals the limit: no record length decides it",
+    "dof_scaling": "chi-square dof ∝ record length",
+    "length_unknown": "a longer record is needed; how much longer, the interval does not say",
+    # a test at the limit that was not run (TermVerdict.limit_test["skipped"])
+    "no_fit_state": "no fit state to test with",
+    "beyond_bootstrap": "the limit is over {skip_margin:g} times as far as any bootstrap record",
+    # the report (VerdictReport.notes)
+    "channels_missing": "not in the recording, not verified: {channels}",
+    "channels_extra": "in the recording but not on the datasheet, ignored: {channels}",
+    "segments_left_out": (
+        "{channel}: the recording has {segments} clean segments; the longest "
+        "({duration:.6g} s of {recording_duration:.6g} s) was analysed"
+    ),
+    "note": "{text}",
+}
+
+
+def reason_text(code: str, values: Mapping[str, Any] | None = None) -> str:
+    """The sentence of a reason code with its values (:data:`REASONS`)."""
+    shown = {
+        k: ", ".join(map(str, v)) if isinstance(v, (tuple, list)) else v
+        for k, v in (values or {}).items()
+    }
+    return REASONS[code].format(**shown)
+
+
+def term_note(term) -> str:
+    """The note of a :class:`~sensormodel.acceptance.TermVerdict`: its reasons, in order."""
+    return "; ".join(reason_text(code, values) for code, values in term.reasons)
+
+
+def _unverified_reason(u) -> str:
+    return reason_text(u.reason, {"text": u.text, **u.values})
+
+
+def _limit_test(test) -> dict | None:
+    """The test at the limit as written in the report (a skipped test's reason as text)."""
+    if test is None:
+        return None
+    if "skipped" in test:
+        return {"skipped": reason_text(test["skipped"], test)}
+    return dict(test)
+
+
 def format_duration(seconds: float | None) -> str:
     """A record length for people: ``45 s``, ``12.5 min``, ``3.2 h``, ``4.1 d``, ``2.3 years``."""
-    import math
-
     if seconds is None:
         return "none decides it"
     if not math.isfinite(seconds):
@@ -293,12 +358,10 @@ def display_values(spec, *values: float) -> tuple[str, list[float]]:
 
 def channel_display(channel_id: str) -> tuple[str, float]:
     """(label, factor from SI) of the readable unit of a channel's output (°/h, µg)."""
-    instrument = channel_id.split(".", 1)[0]
-    kind = {"gyro": "angular_rate", "accelerometer": "acceleration"}.get(instrument)
+    kind = INSTRUMENT_KIND.get(channel_id.split(".", 1)[0])
     if kind is None:
         return "", 1.0
-    unit, label = DISPLAY_UNITS[kind]
-    return label, convert_from_si(1.0, kind, unit)
+    return display_scale(kind)
 
 
 def _conventions(report) -> dict[str, str]:
@@ -345,75 +408,6 @@ def _conventions(report) -> dict[str, str]:
 def verdict_document(report) -> dict:
     """The JSON document of a :class:`~sensormodel.acceptance.VerdictReport` (DESIGN §10;
     ``schemas/verdict-report.schema.json``). SI values, τ and durations in s."""
-    import datetime
-
-    from . import __version__
-
-    def num(x):
-        return None if x is None else float(x)
-
-    channels = []
-    for ch in report.channels:
-        terms = []
-        for t in ch.terms:
-            s = t.spec
-            label, (lim, est, lo, hi) = display_values(s, s.limit, t.estimate, t.low, t.high)
-            terms.append(
-                {
-                    "term": s.key,
-                    "field": s.field,
-                    "type": s.type,
-                    "quantity": s.quantity,
-                    "unit": s.unit,
-                    "column": s.column,
-                    "limit_text": s.text,
-                    "limit": float(s.limit),
-                    "estimate": float(t.estimate),
-                    "low": float(t.low),
-                    "high": float(t.high),
-                    "confidence": float(t.confidence),
-                    "verdict": t.verdict,
-                    "required_duration": num(t.required_duration),
-                    "read_at_tau": num(t.read_at),
-                    "edf": num(t.edf),
-                    "dof": num(t.dof),
-                    "supported": bool(t.supported),
-                    "display": {
-                        "unit": label,
-                        "limit": lim,
-                        "estimate": est,
-                        "low": lo,
-                        "high": hi,
-                    },
-                    "note": t.note,
-                    "limit_test": None if t.limit_test is None else dict(t.limit_test),
-                }
-            )
-        c = ch.curve
-        channels.append(
-            {
-                "id": ch.id,
-                "unit": ch.unit,
-                "overall": ch.verdict,
-                "duration": float(ch.duration),
-                "sample_rate": float(ch.rate),
-                "terms": terms,
-                "not_verified": [
-                    {"term": u.key, "field": u.field, "text": u.text, "reason": u.reason}
-                    for u in ch.unverified
-                ],
-                "curve": {
-                    "tau": c.tau.tolist(),
-                    "adev": c.adev.tolist(),
-                    "ci_low": c.ci_low.tolist(),
-                    "ci_high": c.ci_high.tolist(),
-                    "limit": c.limit.tolist(),
-                    "confidence": float(c.confidence),
-                    "exceeded": [{"tau_from": a, "tau_to": b} for a, b in c.exceeded],
-                    "verdict": c.verdict,
-                },
-            }
-        )
     rec = {k: v for k, v in report.recording.items() if v is not None or k == "file"}
     return {
         "schema": VERDICT_SCHEMA_ID,
@@ -426,17 +420,73 @@ def verdict_document(report) -> dict:
         "created": datetime.datetime.now(datetime.UTC).isoformat(timespec="seconds"),
         "datasheet": dict(report.datasheet),
         "recording": rec,
-        "channels": channels,
-        "notes": list(report.notes),
+        "channels": [_channel_document(ch) for ch in report.channels],
+        "notes": [reason_text(code, values) for code, values in report.notes],
         "conventions": _conventions(report),
         "caution": SAFETY_CAUTION,
     }
 
 
+def _num(x) -> float | None:
+    return None if x is None else float(x)
+
+
+def _term_document(t) -> dict:
+    s = t.spec
+    label, (lim, est, lo, hi) = display_values(s, s.limit, t.estimate, t.low, t.high)
+    return {
+        "term": s.key,
+        "field": s.field,
+        "type": s.type,
+        "quantity": s.quantity,
+        "unit": s.unit,
+        "column": s.column,
+        "limit_text": s.text,
+        "limit": float(s.limit),
+        "estimate": float(t.estimate),
+        "low": float(t.low),
+        "high": float(t.high),
+        "confidence": float(t.confidence),
+        "verdict": t.verdict,
+        "required_duration": _num(t.required_duration),
+        "read_at_tau": _num(t.read_at),
+        "edf": _num(t.edf),
+        "dof": _num(t.dof),
+        "supported": bool(t.supported),
+        "display": {"unit": label, "limit": lim, "estimate": est, "low": lo, "high": hi},
+        "note": term_note(t),
+        "limit_test": _limit_test(t.limit_test),
+    }
+
+
+def _channel_document(ch) -> dict:
+    c = ch.curve
+    return {
+        "id": ch.id,
+        "unit": ch.unit,
+        "overall": ch.verdict,
+        "duration": float(ch.duration),
+        "sample_rate": float(ch.rate),
+        "terms": [_term_document(t) for t in ch.terms],
+        "not_verified": [
+            {"term": u.key, "field": u.field, "text": u.text, "reason": _unverified_reason(u)}
+            for u in ch.unverified
+        ],
+        "curve": {
+            "tau": c.tau.tolist(),
+            "adev": c.adev.tolist(),
+            "ci_low": c.ci_low.tolist(),
+            "ci_high": c.ci_high.tolist(),
+            "limit": c.limit.tolist(),
+            "confidence": float(c.confidence),
+            "exceeded": [{"tau_from": a, "tau_to": b} for a, b in c.exceeded],
+            "verdict": c.verdict,
+        },
+    }
+
+
 def write_verdict_json(report, path, *, force: bool = False) -> None:
     """Write the verdict report as JSON, validated against its schema, atomically."""
-    from ._io import write_json
-
     write_json(path, verdict_document(report), force=force, schema=VERDICT_SCHEMA_FILE)
 
 
@@ -472,8 +522,27 @@ def _verdict_row_note(t) -> str:
     if t.required_duration is None and why:
         return f"{why}a longer record is needed"
     if t.required_duration is None:
-        return f"{why}no record length decides it: {t.note}"
+        return f"{why}no record length decides it: {term_note(t)}"
     return f"{why}needs a record of ≈ {format_duration(t.required_duration)}{where}"
+
+
+def _unverified_groups(report) -> list[tuple[str, list[str], str]]:
+    """(term, channel ids, reason) of each distinct term not verified, in first-seen order."""
+    unver = [(ch.id, u.key, _unverified_reason(u)) for ch in report.channels for u in ch.unverified]
+    groups: dict[tuple[str, str], list[str]] = {}
+    for cid, key, why in unver:
+        groups.setdefault((key, why), []).append(cid)
+    return [(key, ids, why) for (key, why), ids in groups.items()]
+
+
+def _curve_result(check, *, dash: str, lead: str = "") -> str:
+    """The whole-curve check of one channel in words (``dash`` between the ends of a range)."""
+    if check.exceeded:
+        spans = ", ".join(f"{a:.3g}{dash}{b:.3g} s" for a, b in check.exceeded)
+        return f"{lead}exceeded with confidence at τ {spans}"
+    if check.verdict == "pass":
+        return "within the limit curve at every τ"
+    return "not exceeded with confidence at any τ"
 
 
 def verdict_text(report) -> str:
@@ -499,31 +568,15 @@ def verdict_text(report) -> str:
         lines.append(
             "  ".join(r[i].ljust(widths[i]) for i in range(5)) + ("  " + r[5] if r[5] else "")
         )
-    unver = [(ch.id, u) for ch in report.channels for u in ch.unverified]
-    if unver:
+    groups = _unverified_groups(report)
+    if groups:
         lines.append("")
         lines.append("not verified:")
-        seen = set()
-        for _cid, u in unver:
-            key = (u.key, u.reason)
-            if key in seen:
-                continue
-            seen.add(key)
-            ids = [i for i, v in unver if (v.key, v.reason) == key]
-            lines.append(f"  {u.key} ({', '.join(ids)}): {u.reason}")
+        lines.extend(f"  {key} ({', '.join(ids)}): {why}" for key, ids, why in groups)
     lines.append("")
     lines.append("whole-curve check (Allan deviation against the curve the limits imply):")
-    for ch in report.channels:
-        cc = ch.curve
-        if cc.exceeded:
-            spans = ", ".join(f"{a:.3g}-{b:.3g} s" for a, b in cc.exceeded)
-            lines.append(f"  {ch.id}: exceeded with confidence at τ {spans}")
-        elif cc.verdict == "pass":
-            lines.append(f"  {ch.id}: within the limit curve at every τ")
-        else:
-            lines.append(f"  {ch.id}: not exceeded with confidence at any τ")
-    for note in report.notes:
-        lines.append(f"note: {note}")
+    lines.extend(f"  {ch.id}: {_curve_result(ch.curve, dash='-')}" for ch in report.channels)
+    lines.extend(f"note: {reason_text(code, values)}" for code, values in report.notes)
     lines.append("")
     lines.append(f"overall: {report.overall}")
     return "\n".join(lines)
@@ -559,7 +612,7 @@ def plan_text(plan) -> str:
                 r.spec.text,
                 f"{r.read_at:.3g} s",
                 f"{100 * r.share:.0f} %",
-                r.noise,
+                NOISE_NAMES[r.noise_alpha].split(" (")[0],
                 f"{r.edf:.3g}",
                 format_duration(r.duration),
             )
@@ -574,12 +627,8 @@ def plan_text(plan) -> str:
         )
     if plan.unverified:
         lines.append("")
-        seen = set()
-        for u in plan.unverified:
-            if (u.key, u.reason) in seen:
-                continue
-            seen.add((u.key, u.reason))
-            lines.append(f"not verified: {u.key}: {u.reason}")
+        seen = {(u.key, _unverified_reason(u)): None for u in plan.unverified}
+        lines.extend(f"not verified: {key}: {why}" for key, why in seen)
     lines.append("")
     lines.append(
         f"why: a term is read at the τ where a record reaches ±{100 * plan.precision:.0f} % "
@@ -623,8 +672,6 @@ figcaption{color:#555;font-size:.9em}
 
 
 def _e(text) -> str:
-    import html
-
     return html.escape(str(text), quote=True)
 
 
@@ -656,14 +703,9 @@ def verdict_html(
     intro : list of str, optional
         Paragraphs shown under the title (plain text, escaped).
     """
-    import base64
-
-    from . import __version__
-
     sensor = report.datasheet.get("sensor", {})
     name = " ".join(str(sensor.get(k, "")) for k in ("name", "model")).strip() or "sensor"
     title = title or f"Acceptance report: {name}"
-    c = report.confidence
     out: list[str] = [
         "<!DOCTYPE html>",
         '<html lang="en"><head><meta charset="utf-8">',
@@ -672,106 +714,14 @@ def verdict_html(
         f"<style>{_CSS}</style></head><body>",
         f"<h1>{_e(title)}</h1>",
     ]
-    meta = [
-        f"Datasheet: {_e(report.datasheet.get('file'))} ({_e(report.against)} values)"
-        + (
-            f", SHA-256 {_e(report.datasheet['sha256'][:16])}…"
-            if report.datasheet.get("sha256")
-            else ""
-        ),
-        f"Recording: {_e(report.recording.get('file') or '(Allan curves)')}; "
-        f"{_e(_record_text(report))}",
-        f"Confidence: {100 * c:.0f} % two-sided intervals; each one-sided error at most "
-        f"{100 * (1 - c) / 2:.1f} %",
-    ]
-    if sensor.get("manufacturer"):
-        meta.insert(0, f"Sensor: {_e(name)}, {_e(sensor['manufacturer'])}")
-    out.append('<p class="meta">' + "<br>".join(meta) + "</p>")
+    out.append(_html_meta(report, name))
     for para in intro or []:
         out.append(f"<p>{_e(para)}</p>")
     out.append(f'<p class="overall">Overall verdict: {_badge(report.overall)}</p>')
     out.append(f'<div class="caution">{_e(SAFETY_CAUTION)}</div>')
-
-    out.append("<h2>Summary of verdicts</h2>")
-    out.append(
-        "<table><thead><tr><th>channel</th><th>term</th><th>limit (as printed)</th>"
-        f"<th>estimate [{100 * c:.0f} % interval]</th><th>verdict</th>"
-        "<th>record needed to decide</th></tr></thead><tbody>"
-    )
+    out.extend(_html_summary(report))
     for ch in report.channels:
-        for t in ch.terms:
-            _, lim, est = _interval_text(t)
-            need = ""
-            if t.verdict == "inconclusive":
-                need = _verdict_row_note(t)
-            out.append(
-                f"<tr><td>{_e(ch.id)}</td><td>{_e(t.spec.key)}<br><small>{_e(t.spec.field)}"
-                f'</small></td><td class="num">{_e(t.spec.text or lim)}</td>'
-                f'<td class="num">{_e(est)}</td><td>{_badge(t.verdict)}</td>'
-                f"<td>{_e(need)}</td></tr>"
-            )
-    out.append("</tbody></table>")
-    unver = [(ch.id, u) for ch in report.channels for u in ch.unverified]
-    if unver:
-        out.append("<h3>Not verified</h3><ul>")
-        seen: set = set()
-        for _cid, u in unver:
-            if (u.key, u.reason) in seen:
-                continue
-            seen.add((u.key, u.reason))
-            ids = [i for i, v in unver if (v.key, v.reason) == (u.key, u.reason)]
-            out.append(f"<li><b>{_e(u.key)}</b> ({_e(', '.join(ids))}): {_e(u.reason)}</li>")
-        out.append("</ul>")
-    out.append(
-        "<h3>Whole-curve check</h3><table><thead><tr><th>channel</th><th>result</th>"
-        "</tr></thead><tbody>"
-    )
-    for ch in report.channels:
-        cc = ch.curve
-        if cc.exceeded:
-            spans = ", ".join(f"{a:.3g}–{b:.3g} s" for a, b in cc.exceeded)
-            text = f"limit curve exceeded with confidence at τ {spans}"
-        elif cc.verdict == "pass":
-            text = "within the limit curve at every τ"
-        else:
-            text = "not exceeded with confidence at any τ"
-        out.append(f"<tr><td>{_e(ch.id)}</td><td>{_e(text)}</td></tr>")
-    out.append("</tbody></table>")
-    if report.notes:
-        out.append("<h3>Notes</h3><ul>")
-        out.extend(f"<li>{_e(n)}</li>" for n in report.notes)
-        out.append("</ul>")
-
-    for ch in report.channels:
-        out.append(f"<h2>{_e(ch.id)} {_badge(ch.verdict)}</h2>")
-        out.append(
-            f'<p class="meta">{_e(format_duration(ch.duration))} analysed at '
-            f"{_e(format_value(ch.rate, 'Hz'))}; SI unit {_e(ch.unit)}</p>"
-        )
-        out.append(
-            "<table><thead><tr><th>term</th><th>limit</th><th>estimate</th>"
-            "<th>interval</th><th>verdict</th><th>read at τ</th><th>EDF there</th>"
-            "</tr></thead><tbody>"
-        )
-        for t in ch.terms:
-            label, (lim, est, lo, hi) = display_values(
-                t.spec, t.spec.limit, t.estimate, t.low, t.high
-            )
-            out.append(
-                f'<tr><td>{_e(t.spec.key)}</td><td class="num">{_e(f"{lim:.4g} {label}")}</td>'
-                f'<td class="num">{_e(f"{est:.4g}")}</td>'
-                f'<td class="num">{_e(f"[{lo:.4g}, {hi:.4g}]")}</td><td>{_badge(t.verdict)}</td>'
-                f'<td class="num">{_e(f"{t.read_at:.3g} s" if t.read_at else "")}</td>'
-                f'<td class="num">{_e(f"{t.edf:.3g}" if t.edf else "")}</td></tr>'
-            )
-        out.append("</tbody></table>")
-        for caption, png in figures.get(ch.id, []):
-            data = base64.b64encode(png).decode("ascii")
-            out.append(
-                f'<figure><img alt="{_e(caption)}" src="data:image/png;base64,{data}">'
-                f"<figcaption>{_e(caption)}</figcaption></figure>"
-            )
-
+        out.extend(_html_channel(ch, figures.get(ch.id, [])))
     out.append("<h2>Conventions</h2><ul>")
     out.extend(f"<li>{_e(v)}</li>" for v in _conventions(report).values())
     out.append("</ul>")
@@ -781,10 +731,99 @@ def verdict_html(
     return "\n".join(out) + "\n"
 
 
+def _html_meta(report, name: str) -> str:
+    """The paragraph of what was verified against what, at which confidence."""
+    sensor = report.datasheet.get("sensor", {})
+    c = report.confidence
+    sha = report.datasheet.get("sha256")
+    meta = [
+        f"Datasheet: {_e(report.datasheet.get('file'))} ({_e(report.against)} values)"
+        + (f", SHA-256 {_e(sha[:16])}…" if sha else ""),
+        f"Recording: {_e(report.recording.get('file') or '(Allan curves)')}; "
+        f"{_e(_record_text(report))}",
+        f"Confidence: {100 * c:.0f} % two-sided intervals; each one-sided error at most "
+        f"{100 * (1 - c) / 2:.1f} %",
+    ]
+    if sensor.get("manufacturer"):
+        meta.insert(0, f"Sensor: {_e(name)}, {_e(sensor['manufacturer'])}")
+    return '<p class="meta">' + "<br>".join(meta) + "</p>"
+
+
+def _html_summary(report) -> list[str]:
+    """The summary of verdicts, the terms not verified, the whole-curve check and the notes."""
+    out = ["<h2>Summary of verdicts</h2>"]
+    out.append(
+        "<table><thead><tr><th>channel</th><th>term</th><th>limit (as printed)</th>"
+        f"<th>estimate [{100 * report.confidence:.0f} % interval]</th><th>verdict</th>"
+        "<th>record needed to decide</th></tr></thead><tbody>"
+    )
+    for ch in report.channels:
+        for t in ch.terms:
+            _, lim, est = _interval_text(t)
+            need = _verdict_row_note(t) if t.verdict == "inconclusive" else ""
+            out.append(
+                f"<tr><td>{_e(ch.id)}</td><td>{_e(t.spec.key)}<br><small>{_e(t.spec.field)}"
+                f'</small></td><td class="num">{_e(t.spec.text or lim)}</td>'
+                f'<td class="num">{_e(est)}</td><td>{_badge(t.verdict)}</td>'
+                f"<td>{_e(need)}</td></tr>"
+            )
+    out.append("</tbody></table>")
+    groups = _unverified_groups(report)
+    if groups:
+        out.append("<h3>Not verified</h3><ul>")
+        out.extend(
+            f"<li><b>{_e(key)}</b> ({_e(', '.join(ids))}): {_e(why)}</li>"
+            for key, ids, why in groups
+        )
+        out.append("</ul>")
+    out.append(
+        "<h3>Whole-curve check</h3><table><thead><tr><th>channel</th><th>result</th>"
+        "</tr></thead><tbody>"
+    )
+    for ch in report.channels:
+        text = _curve_result(ch.curve, dash="–", lead="limit curve ")
+        out.append(f"<tr><td>{_e(ch.id)}</td><td>{_e(text)}</td></tr>")
+    out.append("</tbody></table>")
+    if report.notes:
+        out.append("<h3>Notes</h3><ul>")
+        out.extend(f"<li>{_e(reason_text(code, values))}</li>" for code, values in report.notes)
+        out.append("</ul>")
+    return out
+
+
+def _html_channel(ch, figures: list[tuple[str, bytes]]) -> list[str]:
+    """One channel's section: its verdicts in the datasheet's units and its figures."""
+    out = [f"<h2>{_e(ch.id)} {_badge(ch.verdict)}</h2>"]
+    out.append(
+        f'<p class="meta">{_e(format_duration(ch.duration))} analysed at '
+        f"{_e(format_value(ch.rate, 'Hz'))}; SI unit {_e(ch.unit)}</p>"
+    )
+    out.append(
+        "<table><thead><tr><th>term</th><th>limit</th><th>estimate</th>"
+        "<th>interval</th><th>verdict</th><th>read at τ</th><th>EDF there</th>"
+        "</tr></thead><tbody>"
+    )
+    for t in ch.terms:
+        label, (lim, est, lo, hi) = display_values(t.spec, t.spec.limit, t.estimate, t.low, t.high)
+        out.append(
+            f'<tr><td>{_e(t.spec.key)}</td><td class="num">{_e(f"{lim:.4g} {label}")}</td>'
+            f'<td class="num">{_e(f"{est:.4g}")}</td>'
+            f'<td class="num">{_e(f"[{lo:.4g}, {hi:.4g}]")}</td><td>{_badge(t.verdict)}</td>'
+            f'<td class="num">{_e(f"{t.read_at:.3g} s" if t.read_at else "")}</td>'
+            f'<td class="num">{_e(f"{t.edf:.3g}" if t.edf else "")}</td></tr>'
+        )
+    out.append("</tbody></table>")
+    for caption, png in figures:
+        data = base64.b64encode(png).decode("ascii")
+        out.append(
+            f'<figure><img alt="{_e(caption)}" src="data:image/png;base64,{data}">'
+            f"<figcaption>{_e(caption)}</figcaption></figure>"
+        )
+    return out
+
+
 def verdict_figures(report) -> dict[str, list[tuple[str, str, object]]]:
     """The figures of a verdict report: {channel id: [(file tag, caption, Figure), ...]}."""
-    from .plots import verdict_allan_figure, verdict_psd_figure
-
     out = {}
     for ch in report.channels:
         display = channel_display(ch.id)
@@ -825,11 +864,6 @@ def write_verdict_html(
     list of str
         The files written, the HTML page first.
     """
-    import pathlib
-
-    from ._io import atomic_writer, check_writable
-    from .plots import figure_png
-
     target = pathlib.Path(path)
     check_writable(target, force=force)
     figs = verdict_figures(report)

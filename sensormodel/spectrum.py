@@ -19,7 +19,9 @@ from typing import Any
 import numpy as np
 import numpy.typing as npt
 
+from . import validate
 from .errors import AnalysisError
+from .terms import Shaped
 
 __all__ = [
     "PSDResult",
@@ -201,31 +203,9 @@ def welch(
     import scipy.signal
 
     arr = _check_samples(y)
-    try:
-        fs = float(rate)
-    except (TypeError, ValueError):
-        raise AnalysisError(f"got {rate!r}", "a sample rate in Hz", field="rate") from None
-    if not math.isfinite(fs) or fs <= 0.0:
-        raise AnalysisError(f"got {fs!r} Hz", "a finite sample rate > 0 Hz", field="rate")
+    fs = validate.rate(rate)
     n = arr.shape[0]
-    if nperseg is None:
-        nperseg = default_nperseg(n)
-    if isinstance(nperseg, bool) or int(nperseg) != nperseg or not (2 <= nperseg <= n):
-        raise AnalysisError(
-            f"got nperseg={nperseg!r} for {n} samples",
-            f"a whole number 2 ≤ nperseg ≤ {n}",
-            field="nperseg",
-        )
-    nperseg = int(nperseg)
-    if noverlap is None:
-        noverlap = nperseg // 2
-    if isinstance(noverlap, bool) or int(noverlap) != noverlap or not (0 <= noverlap < nperseg):
-        raise AnalysisError(
-            f"got noverlap={noverlap!r}",
-            f"a whole number 0 ≤ noverlap < nperseg = {nperseg}",
-            field="noverlap",
-        )
-    noverlap = int(noverlap)
+    nperseg, noverlap = _segment_layout(n, nperseg, noverlap)
     _check_finite(arr)
 
     step = nperseg - noverlap
@@ -252,6 +232,28 @@ def welch(
         total = p * k if total is None else total + p * k
     assert total is not None and f is not None
     return PSDResult(f=f, psd=total / n_seg, n_segments=n_seg, nperseg=nperseg)
+
+
+def _segment_layout(n: int, nperseg: Any, noverlap: Any) -> tuple[int, int]:
+    """Welch segment length and overlap [samples] for ``n`` samples (defaults, checks)."""
+    if nperseg is None:
+        nperseg = default_nperseg(n)
+    if isinstance(nperseg, bool) or int(nperseg) != nperseg or not (2 <= nperseg <= n):
+        raise AnalysisError(
+            f"got nperseg={nperseg!r} for {n} samples",
+            f"a whole number 2 ≤ nperseg ≤ {n}",
+            field="nperseg",
+        )
+    nperseg = int(nperseg)
+    if noverlap is None:
+        noverlap = nperseg // 2
+    if isinstance(noverlap, bool) or int(noverlap) != noverlap or not (0 <= noverlap < nperseg):
+        raise AnalysisError(
+            f"got noverlap={noverlap!r}",
+            f"a whole number 0 ≤ noverlap < nperseg = {nperseg}",
+            field="noverlap",
+        )
+    return nperseg, int(noverlap)
 
 
 def log_bins(result: PSDResult, *, per_decade: int = 20) -> PSDResult:
@@ -539,59 +541,10 @@ def fit_rational_psd(
     """
     from scipy.optimize import least_squares
 
-    f = np.asarray(frequency, dtype=float)
-    p = np.asarray(psd, dtype=float)
-    if f.shape != p.shape or f.ndim != 1 or f.size < 3:
-        raise AnalysisError(
-            f"frequency and psd of shapes {f.shape}, {p.shape}",
-            "two 1-D arrays of equal length ≥ 3",
-        )
-    ok = np.isfinite(f) & np.isfinite(p) & (f > 0) & (p > 0)
-    if ok.sum() < numerator_order + denominator_order + 2:
-        raise AnalysisError(
-            f"{int(ok.sum())} usable points (positive, finite)",
-            "more points than fitted parameters",
-        )
-    if not 0 <= numerator_order < denominator_order:
-        raise AnalysisError(
-            f"{numerator_order=}, {denominator_order=}",
-            "0 ≤ numerator_order < denominator_order (finite variance)",
-        )
-    if sided not in ("one-sided", "two-sided"):
-        raise AnalysisError(f"{sided=}", "'one-sided' or 'two-sided'")
-    f, p = f[ok], p[ok]
-    target = np.log(p / 2.0 if sided == "one-sided" else p)
+    f, target = _fit_inputs(frequency, psd, numerator_order, denominator_order, sided)
     w = 2.0 * np.pi * f
     nz, npole = _n_params(numerator_order), _n_params(denominator_order)
-
-    def model(theta: npt.NDArray[np.float64]) -> npt.NDArray[np.float64]:
-        with np.errstate(all="ignore"):
-            num = _sections(theta[1 : 1 + nz], numerator_order)
-            den = _sections(theta[1 + nz :], denominator_order)
-            s = 1j * w
-            out = 2.0 * theta[0] + 2.0 * (
-                np.log(np.abs(np.polyval(num, s))) - np.log(np.abs(np.polyval(den, s)))
-            )
-        return np.nan_to_num(out, nan=1e6, posinf=1e6, neginf=-1e6)
-
-    def start(lo: float, hi: float) -> npt.NDArray[np.float64]:
-        def corners(order: int, a: float, b: float) -> list[float]:
-            out: list[float] = []
-            k = _n_params(order)
-            freqs = np.exp(np.linspace(np.log(a), np.log(b), max(order, 1)))
-            j = 0
-            for _ in range(order // 2):
-                out += [np.log(freqs[j]), np.log(0.7)]
-                j += 2 if j + 2 <= len(freqs) else 0
-            if order % 2:
-                out.append(np.log(freqs[-1]))
-            return out[:k]
-
-        th = [0.0, *corners(numerator_order, lo, hi), *corners(denominator_order, lo, hi)]
-        th = np.array(th)
-        th[0] = np.mean(target - (model(th) - 2.0 * th[0])) / 2.0
-        return th
-
+    model = _log_model(w, numerator_order, denominator_order)
     best = None
     wmin, wmax = w.min(), w.max()
     for lo, hi in (
@@ -601,9 +554,13 @@ def fit_rational_psd(
         (wmin / 3, wmax * 3),
     ):
         try:
+            th = np.array(
+                [0.0, *_corners(numerator_order, lo, hi), *_corners(denominator_order, lo, hi)]
+            )
+            th[0] = np.mean(target - (model(th) - 2.0 * th[0])) / 2.0
             res = least_squares(
                 lambda t: model(t) - target,
-                start(lo, hi),
+                th,
                 method="lm" if target.size > 1 + nz + npole else "trf",
                 max_nfev=4000,
             )
@@ -613,7 +570,7 @@ def fit_rational_psd(
             best = res
     if best is None or not np.all(np.isfinite(best.x)):
         raise AnalysisError(
-            "the rational fit did not converge", "a smoother spectrum or other orders"
+            "the rational fit did not converge", "a smoother spectrum or other orders", field="psd"
         )
     theta = best.x
     num = np.exp(theta[0]) * _sections(theta[1 : 1 + nz], numerator_order)
@@ -629,6 +586,73 @@ def fit_rational_psd(
     return RationalFit(
         filt, float(np.sqrt(np.mean(err_db**2))), float(np.max(np.abs(err_db))), int(f.size)
     )
+
+
+def _fit_inputs(
+    frequency: npt.ArrayLike,
+    psd: npt.ArrayLike,
+    numerator_order: int,
+    denominator_order: int,
+    sided: str,
+) -> tuple[npt.NDArray[np.float64], npt.NDArray[np.float64]]:
+    """The usable frequencies [Hz] and the log of the two-sided PSD there (arguments checked)."""
+    f = np.asarray(frequency, dtype=float)
+    p = np.asarray(psd, dtype=float)
+    if f.shape != p.shape or f.ndim != 1 or f.size < 3:
+        raise AnalysisError(
+            f"frequency and psd of shapes {f.shape}, {p.shape}",
+            "two 1-D arrays of equal length ≥ 3",
+            field="psd",
+        )
+    ok = np.isfinite(f) & np.isfinite(p) & (f > 0) & (p > 0)
+    if ok.sum() < numerator_order + denominator_order + 2:
+        raise AnalysisError(
+            f"{int(ok.sum())} usable points (positive, finite)",
+            "more points than fitted parameters",
+            field="psd",
+        )
+    if not 0 <= numerator_order < denominator_order:
+        raise AnalysisError(
+            f"{numerator_order=}, {denominator_order=}",
+            "0 ≤ numerator_order < denominator_order (finite variance)",
+            field="numerator_order",
+        )
+    if sided not in ("one-sided", "two-sided"):
+        raise AnalysisError(f"{sided=}", "'one-sided' or 'two-sided'", field="sided")
+    f, p = f[ok], p[ok]
+    return f, np.log(p / 2.0 if sided == "one-sided" else p)
+
+
+def _log_model(w: npt.NDArray[np.float64], numerator_order: int, denominator_order: int) -> Any:
+    """θ ↦ log |H(iω)|² of the gain θ[0] and the sections' log-parameters, at ω = ``w``."""
+    nz = _n_params(numerator_order)
+
+    def model(theta: npt.NDArray[np.float64]) -> npt.NDArray[np.float64]:
+        with np.errstate(all="ignore"):
+            num = _sections(theta[1 : 1 + nz], numerator_order)
+            den = _sections(theta[1 + nz :], denominator_order)
+            s = 1j * w
+            out = 2.0 * theta[0] + 2.0 * (
+                np.log(np.abs(np.polyval(num, s))) - np.log(np.abs(np.polyval(den, s)))
+            )
+        return np.nan_to_num(out, nan=1e6, posinf=1e6, neginf=-1e6)
+
+    return model
+
+
+def _corners(order: int, a: float, b: float) -> list[float]:
+    """Start log-parameters of ``order`` poles (or zeros): corners spread over [a, b] rad/s,
+    pairs at damping 0.7."""
+    out: list[float] = []
+    k = _n_params(order)
+    freqs = np.exp(np.linspace(np.log(a), np.log(b), max(order, 1)))
+    j = 0
+    for _ in range(order // 2):
+        out += [np.log(freqs[j]), np.log(0.7)]
+        j += 2 if j + 2 <= len(freqs) else 0
+    if order % 2:
+        out.append(np.log(freqs[-1]))
+    return out[:k]
 
 
 def omega_polynomial_to_omega2(
@@ -662,8 +686,6 @@ def omega_polynomial_to_omega2(
 
 def shaped_term(filt: ShapingFilter, *, meta: dict[str, Any] | None = None):
     """The :class:`sensormodel.terms.Shaped` noise term of a shaping filter."""
-    from .terms import Shaped
-
     return Shaped(
         numerator=tuple(float(v) for v in filt.numerator),
         denominator=tuple(float(v) for v in filt.denominator),

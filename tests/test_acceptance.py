@@ -18,6 +18,7 @@ from reference import units as uref
 from scipy.stats import binom
 
 from sensormodel import acceptance as acc
+from sensormodel import confidence, report
 from sensormodel.datasheet import load_datasheet
 from sensormodel.errors import AnalysisError, DatasheetError
 
@@ -57,122 +58,8 @@ def test_combine() -> None:
 
 
 # ---------------------------------------------------------------------------------------------
-# chi-square intervals, degrees of freedom, required length
+# the reading τ
 # ---------------------------------------------------------------------------------------------
-
-
-def test_interval_factors_published_check() -> None:
-    # NIST SP 1065 eq. (45) chi-square interval; check value of the reference notes [N].
-    c, edf, lo, hi = ref.CHI2_INTERVAL
-    got = acc.interval_factors(edf, c)
-    np.testing.assert_allclose(got, (lo, hi), rtol=1e-6)
-
-
-@pytest.mark.parametrize("nu", [0.7, 3.0, 25.0, 400.0, 1e5])
-@pytest.mark.parametrize("c", [0.683, 0.9, 0.95])
-def test_dof_from_interval_inverts(nu: float, c: float) -> None:
-    lo, hi = acc.interval_factors(nu, c)
-    assert acc.dof_from_interval(2.0 * lo, 2.0 * hi, c) == pytest.approx(nu, rel=1e-6)
-
-
-def test_dof_from_interval_bound_is_none() -> None:
-    assert acc.dof_from_interval(0.0, 1.0, 0.9) is None
-
-
-def test_dof_for_precision() -> None:
-    nu = acc.dof_for_precision(0.25, 0.9)
-    lo, hi = acc.interval_factors(nu, 0.9)
-    assert 0.5 * (hi - lo) == pytest.approx(0.25, rel=1e-8)
-
-
-@pytest.mark.parametrize("c", [0.8, 0.9, 0.95])
-@pytest.mark.parametrize("nu", [2.0, 30.0, 500.0])
-def test_decision_probability_at_the_limit(c: float, nu: float) -> None:
-    # Exactly at the limit, each wrong call has probability (1 - c)/2: the chi-square interval
-    # contains the true value with probability c, half the miss on each side (SP 1065 eq. 45).
-    assert acc.decision_probability(1.0, 1.0, nu, c) == pytest.approx((1 - c) / 2, rel=1e-9)
-
-
-def test_decision_probability_monte_carlo() -> None:
-    # Seeded check of the decision model itself: p_hat = p sqrt(X/nu), X ~ chi2(nu); the
-    # interval is the chi-square interval. n = 20000 draws; the count is binomial, so a
-    # 99.9 % two-sided binomial band (scipy.stats.binom) bounds the difference.
-    rng = np.random.default_rng(11)
-    c, nu, n = 0.9, 12.0, 20000
-    lo_f, hi_f = acc.interval_factors(nu, c)
-    for p, limit in ((1.3, 1.0), (0.8, 1.0), (1.0, 1.0)):
-        x = rng.chisquare(nu, n)
-        est = p * np.sqrt(x / nu)
-        fail = np.mean(est * lo_f > limit)
-        ok = np.mean(est * hi_f <= limit)
-        decided = fail if p >= limit else ok
-        prob = acc.decision_probability(p, limit, nu, c)
-        lo, hi = binom.interval(0.999, n, prob)
-        assert lo / n <= decided <= hi / n, (p, decided, prob)
-
-
-@pytest.mark.parametrize(("value", "power"), [(1.3, 0.8), (0.7, 0.8), (1.1, 0.5), (0.95, 0.9)])
-def test_required_dof_meets_power(value: float, power: float) -> None:
-    nu = acc.required_dof(value, 1.0, confidence=0.9, power=power)
-    assert nu is not None
-    assert acc.decision_probability(value, 1.0, nu, 0.9) == pytest.approx(power, abs=1e-6)
-
-
-def test_required_dof_at_the_limit_is_none() -> None:
-    assert acc.required_dof(1.0, 1.0, confidence=0.9, power=0.8) is None
-
-
-def test_required_duration_scales_with_dof() -> None:
-    # Present interval with nu0 dof over 600 s; the length is 600 s * nu/nu0.
-    nu0, c = 10.0, 0.9
-    lo_f, hi_f = acc.interval_factors(nu0, c)
-    est, limit = 1.2, 1.0
-    t, dof, how = acc.required_duration(
-        est, limit, low=est * lo_f, high=est * hi_f, duration=600.0, confidence=c, power=0.8
-    )
-    assert dof == pytest.approx(nu0, rel=1e-6)
-    nu = acc.required_dof(est, limit, confidence=c, power=0.8)
-    assert t == pytest.approx(600.0 * nu / nu0, rel=1e-6)
-    assert t > 600.0
-    assert "proportion" in how or "dof" in how
-
-
-def test_required_duration_bound_and_limit() -> None:
-    t, dof, how = acc.required_duration(0.0, 1.0, low=0.0, high=2.0, duration=100.0)
-    assert dof is None and t == pytest.approx(100.0 * 2.0**4) and "bound" in how
-    t, _, how = acc.required_duration(1.0, 1.0, low=0.8, high=1.25, duration=100.0)
-    assert t is None and "equals the limit" in how
-
-
-# ---------------------------------------------------------------------------------------------
-# equivalent degrees of freedom (Greenhall & Riley) and the reading τ
-# ---------------------------------------------------------------------------------------------
-
-
-@pytest.mark.parametrize("alpha", [2, 0, -1, -2])
-def test_allan_edf_against_reference(alpha: int) -> None:
-    # Greenhall & Riley (2003) large-r EDF; values of the reference library allantools at
-    # m = 100, N = 1001 phase points (1000 samples at 1 Hz, tau = 100 s), printed to 4-5 digits.
-    got = acc.allan_edf(alpha, 100.0, 1000.0, 1.0)
-    assert got == pytest.approx(ref.GREENHALL_EDF_M100_N1001[alpha], abs=0.006)
-
-
-def test_allan_edf_live_allantools() -> None:
-    allantools_ci = pytest.importorskip("allantools.ci")
-    for alpha in (2, 0, -1, -2):
-        for m, n in ((1000, 100001), (300, 20001)):
-            want = allantools_ci.edf_greenhall(alpha, 2, m, n, overlapping=True)
-            assert acc.allan_edf(alpha, m, n - 1.0, 1.0) == pytest.approx(want, rel=1e-9)
-
-
-@pytest.mark.parametrize("alpha", [2, 0, -1, -2])
-def test_duration_for_edf_inverts(alpha: int) -> None:
-    for tau, edf in ((10.0, 30.0), (300.0, 80.0)):
-        t = acc._duration_for_edf(alpha, tau, edf, 20.0)
-        if alpha == 2:  # white PM: M = edf·a0 is a sufficient (conservative) length
-            assert acc.allan_edf(alpha, tau, t, 20.0) >= edf
-        else:
-            assert acc.allan_edf(alpha, tau, t, 20.0) == pytest.approx(edf, rel=1e-9)
 
 
 def test_reading_tau_random_walk_at_crossover() -> None:
@@ -211,9 +98,14 @@ def test_spec_limits_t900(examples_dir) -> None:
     bi = by_key["bias_instability"]
     assert bi.quantity == "allan_floor" and bi.type == "flicker"
     assert bi.limit == pytest.approx(0.15 * ref.DEG_PER_H, rel=1e-6)
-    reasons = {u.key: u.reason for u in skipped}
-    assert "single run" in reasons["bias_repeatability"]
-    assert "no max" in reasons["rate_random_walk"] and "no max" in reasons["quantization"]
+    reasons = {u.key: (u.reason, dict(u.values)) for u in skipped}
+    assert reasons["bias_repeatability"] == ("single_run", {})
+    no_max = ("no_limit_column", {"against": "max", "column": "typ"})
+    assert reasons["rate_random_walk"] == no_max and reasons["quantization"] == no_max
+    # the reports say it in words
+    words = {u.key: report.reason_text(u.reason, {"text": u.text, **u.values}) for u in skipped}
+    assert "single run" in words["bias_repeatability"]
+    assert "no max value (only typ" in words["quantization"]
 
 
 def test_spec_limits_gauss_markov_floor(examples_dir) -> None:
@@ -320,8 +212,8 @@ def test_verify_curve_constructed(write_datasheet) -> None:
             assert t.verdict == "inconclusive"
             # estimate 1.1 × limit, interval as wide as chi-square with nu0 dof -> longer record
             assert t.required_duration is not None and t.required_duration > 3600.0
-            nu0 = acc.dof_from_interval(t.low, t.high, 0.9)
-            nu = acc.required_dof(1.1, 1.0, confidence=0.9, power=acc.DEFAULT_POWER)
+            nu0 = confidence.dof_from_interval(t.low, t.high, 0.9)
+            nu = confidence.required_dof(1.1, 1.0, confidence=0.9, power=acc.DEFAULT_POWER)
             assert t.required_duration == pytest.approx(3600.0 * nu / nu0, rel=1e-6)
         else:
             assert all(t.required_duration is None for t in cv.terms)
@@ -394,8 +286,8 @@ def test_plan_t900(examples_dir) -> None:
     assert p.duration == max(r.duration for r in p.rows if r.verified)
     # each row's length gives the needed EDF at its τ (the duration solves edf·share² = dof)
     for r in p.rows:
-        edf = acc.allan_edf(
-            {"white PM": 2, "white FM": 0, "flicker FM": -1, "random-walk FM": -2}[r.noise],
+        edf = confidence.allan_edf(
+            r.noise_alpha,
             r.read_at,
             r.duration,
             p.sample_rate,
@@ -551,7 +443,7 @@ def test_required_length_decides_in_stated_fraction(write_datasheet) -> None:
     # the present interval's width (median of 7 references), rescaled to the true value
     ratio = float(np.median([t.high / t.low for t in ref_terms]))
     low, high = truth / math.sqrt(ratio), truth * math.sqrt(ratio)
-    t_req, _, _ = acc.required_duration(
+    t_req, _, _ = confidence.required_duration(
         truth, limit, low=low, high=high, duration=float(n0), confidence=0.9, power=0.8
     )
     assert t_req is not None and t_req > n0
@@ -601,7 +493,7 @@ def test_call_of_the_interval_needs_the_test_at_the_limit(write_datasheet, monke
         return identify.LimitTest(term, "density", value, 0.0, p, 1.0, 59, {})
 
     monkeypatch.setattr(identify, "limit_test", fake)
-    monkeypatch.setattr(acc, "_SKIP_MARGIN", math.inf)  # always test
+    monkeypatch.setattr(acc._verify, "_SKIP_MARGIN", math.inf)  # always test
     for p, verdict in ((0.01, "fail"), (0.05, "fail"), (0.2, "inconclusive")):
         t = acc.verify_curve(curve, ax, duration=2000.0, n_boot=_N_BOOT, seed=1).terms[0]
         assert calls[-1] == ("white", pytest.approx(limit))
@@ -613,10 +505,13 @@ def test_call_of_the_interval_needs_the_test_at_the_limit(write_datasheet, monke
             assert t.low == limit and t.high == real.high
             assert acc.decide(t.low, t.high, limit) == "inconclusive"
             # the refuted interval is no guide to a length: none is given unless it is longer
-            assert "does not confirm" in t.note
+            codes = [code for code, _ in t.reasons]
+            assert codes[0] == "limit_test_not_confirmed"
+            assert "does not confirm" in report.term_note(t)
             assert t.required_duration is None or t.required_duration > 2000.0
             if t.required_duration is None:
-                assert "a longer record is needed" in t.note
+                assert codes[-1] == "length_unknown"
+                assert "a longer record is needed" in report.term_note(t)
     # the pass side: a unit at 0.6 × its limit, the test's p-value below the limit our choice
     low_unit = overlapping(
         rng.normal(0.0, 0.6 * limit, 2000), 1.0, confidence=0.9, unit="rad/s", channel="gyro.z"
@@ -634,7 +529,8 @@ def test_call_of_the_interval_needs_the_test_at_the_limit(write_datasheet, monke
         else:  # the limit strictly inside the widened interval: decide() agrees
             assert t.low < limit < t.high and acc.decide(t.low, t.high, limit) == "inconclusive"
             assert t.required_duration is None or t.required_duration > 2000.0
-            assert "does not confirm" in t.note
+            assert t.reasons[0][0] == "limit_test_not_confirmed"
+            assert t.reasons[0][1]["side"] == "below"
 
 
 _BAND_LIMITED_SHEET = """
@@ -735,3 +631,38 @@ def test_error_rates_gauss_markov_bias_at_limit() -> None:
     assert calls.count("fail") <= _binom_max(_GM_TRIALS, 0.05), calls.count("fail")
     assert calls.count("pass") <= _binom_max(_GM_TRIALS, 0.05), calls.count("pass")
     assert calls.count("inconclusive") >= _GM_TRIALS - 2 * _binom_max(_GM_TRIALS, 0.05)
+
+
+def test_verify_recording_notes_as_reason_codes(write_datasheet, tmp_path) -> None:
+    # A recording through the one pipeline: the longest clean segment is analysed, and the
+    # report notes the segment left out, the datasheet channel not recorded and the recorded
+    # channel not on the datasheet, as reason codes with their numbers (words in the report).
+    from sensormodel.recording import read_recording
+
+    path = write_datasheet(_SHEET.replace('axes = ["z"]', 'axes = ["y", "z"]'))
+    n_lim = 0.02 * uref.DEG_PER_RT_H
+    rng = np.random.default_rng(11)
+    rows, t = ["time [s],gyro_x [deg/s],gyro_z [deg/s]"], 0.0
+    for n in (2000, 6000):  # two stretches at 10 Hz, 0.5 s apart
+        y = np.rad2deg(rng.normal(0.0, 3.0 * n_lim * math.sqrt(10.0), (n, 2)))
+        for a, b in y:
+            rows.append(f"{t:.2f},{a:.10g},{b:.10g}")
+            t += 0.1
+        t += 0.5
+    csv = tmp_path / "gappy.csv"
+    csv.write_text("\n".join(rows) + "\n")
+    rec = read_recording(csv, gaps="split")
+    rep = acc.verify(rec, path, n_boot=41, seed=1)
+    (ch,) = rep.channels
+    assert ch.id == "gyro.z" and ch.duration == pytest.approx(600.0, rel=1e-6)
+    assert ch.allan.n_samples == 6000 and ch.psd is not None
+    codes = dict(rep.notes)
+    assert codes["channels_missing"] == {"channels": ("gyro.y",)}
+    assert codes["channels_extra"] == {"channels": ("gyro.x",)}
+    left = codes["segments_left_out"]
+    assert left["channel"] == "gyro.z" and left["segments"] == 2 and left["count"] == 1.0
+    assert left["samples"] == 2000.0 and left["duration"] == pytest.approx(600.0, rel=1e-6)
+    text = report.verdict_text(rep)
+    assert "note: not in the recording, not verified: gyro.y" in text
+    assert "note: in the recording but not on the datasheet, ignored: gyro.x" in text
+    assert "gyro.z: the recording has 2 clean segments; the longest (600 s of" in text

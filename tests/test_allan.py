@@ -23,7 +23,7 @@ import pytest
 from reference import nist_sp1065 as ref
 from scipy.signal import fftconvolve
 
-from sensormodel import allan
+from sensormodel import allan, confidence
 from sensormodel._io import load_schema, read_json, write_json
 from sensormodel.errors import AnalysisError, ModelFileError
 
@@ -328,8 +328,8 @@ def test_many_reports_the_first_bad_record_by_its_id():
         ([], {}, "records", "got no records"),
         ([np.zeros(100)] * 2, {"units": ["rad/s"]}, "units", "2 labels"),
         ([np.zeros(100)] * 2, {"channels": ["gyro.x"]}, "channels", "2 channel ids"),
-        ([np.zeros(100)] * 2, {"workers": 0}, "workers", "workers ≥ 1"),
-        ([np.zeros(100)] * 2, {"workers": 1.5}, "workers", "workers ≥ 1"),
+        ([np.zeros(100)] * 2, {"workers": 0}, "workers", "a whole number ≥ 1"),
+        ([np.zeros(100)] * 2, {"workers": 1.5}, "workers", "a whole number ≥ 1"),
         ([np.zeros(100)], {"rate": -1.0}, "rate", "got -1.0 Hz"),
         ([np.zeros(100)], {"taus": [100.0]}, "taus", "τ = 100 s needs"),
     ],
@@ -404,7 +404,7 @@ def test_bad_taus_are_refused_by_name(taus, match):
         ({"confidence": 1.0}, "confidence", "strictly between 0 and 1"),
         ({"noise_type": 3}, "noise_type", r"α in \{2, 1, 0, -1, -2\}"),
         ({"noise_type": "pink"}, "noise_type", "'pink'"),
-        ({"threads": 0}, "threads", "threads ≥ 1"),
+        ({"threads": 0}, "threads", "a whole number ≥ 1"),
     ],
 )
 def test_bad_input_is_refused_naming_the_argument(kwargs, field, match):
@@ -422,96 +422,8 @@ def test_increments_name_their_argument():
 
 
 # ---------------------------------------------------------------------------------------------
-# Equivalent degrees of freedom and confidence intervals
+# Intervals of the curve
 # ---------------------------------------------------------------------------------------------
-
-ALPHAS = (2, 1, 0, -1, -2)  # order of the reference tables
-
-
-@pytest.mark.parametrize("m", sorted(ref.EDF_GREENHALL_LIBRARY_N1001))
-def test_edf_greenhall_reference_library_values(m):
-    # [L] allantools 2024.06 ci.edf_greenhall(alpha, 2, m, 1001, overlapping=True), two
-    # decimals (a reference library implementing Greenhall & Riley 2003, not a published table)
-    for alpha, value in zip(ALPHAS, ref.EDF_GREENHALL_LIBRARY_N1001[m], strict=True):
-        assert allan.edf_greenhall(alpha, m, 1001) == pytest.approx(value, abs=0.005 + 1e-9)
-
-
-@pytest.mark.parametrize("n_phase", [1001, 10_001, 100_001])
-@pytest.mark.parametrize("alpha", [1, 0, -1, -2])
-def test_edf_greenhall_equals_reference_library(alpha, n_phase):
-    # allantools.ci.edf_greenhall as a reference library over the octave grid (it does not
-    # implement white PM for r <= 2, which the exact form covers here; see the next test)
-    for m in 2 ** np.arange(int(math.log2((n_phase - 2) // 2)) + 1):
-        lib = allantools.ci.edf_greenhall(alpha, 2, int(m), n_phase, overlapping=True)
-        # flicker PM at large m: the library's plain second difference of t² ln|t| at step 1/m
-        # loses digits (relative error ~ 1e-16 m²); ours is rewritten with log1p/atanh
-        rtol = 1e-9 if alpha != 1 or m <= 64 else 1e-16 * float(m) ** 2 * 100
-        assert allan.edf_greenhall(alpha, int(m), n_phase) == pytest.approx(lib, rel=rtol)
-        lib_plain = allantools.ci.edf_greenhall(alpha, 2, int(m), n_phase, overlapping=False)
-        ours_plain = allan.edf_greenhall(alpha, int(m), n_phase, overlapping=False)
-        assert ours_plain == pytest.approx(lib_plain, rel=rtol)
-
-
-def test_white_pm_edf_is_exact():
-    # Derived: for white phase noise the M overlapping second differences have covariances
-    # 6, -4, 1 (x phase variance) at lags 0, m, 2m, so 1/edf = [36M + 32(M-m)+ + 2(M-2m)+]/(36M²).
-    # Greenhall & Riley's case 4 (1/M)(35/18 - 1/r) is the same for M >= 2m; check both, and a
-    # seeded simulation in the short case (M < 2m) the reference library leaves unimplemented.
-    n_phase, m = 1001, 100
-    M = n_phase - 2 * m
-    assert allan.edf_greenhall(2, m, n_phase) == pytest.approx(M / (35 / 18 - m / M), rel=1e-14)
-    n_phase, m = 101, 40  # M = 21 < 2m
-    M = n_phase - 2 * m
-    exact = 36 * M**2 / (36 * M + 32 * (M - m) * (M > m) + 2 * (M - 2 * m) * (M > 2 * m))
-    assert allan.edf_greenhall(2, m, n_phase) == pytest.approx(exact, rel=1e-14)
-    rng = np.random.default_rng(7)
-    x = rng.standard_normal((40_000, n_phase))
-    d = x[:, 2 * m :] - 2 * x[:, m:-m] + x[:, : -2 * m]
-    v = np.mean(d * d, axis=1)
-    # edf_hat = 2 mean²/var; with R = 40 000 records its relative standard error is about
-    # sqrt(2/R)·sqrt(1 + 12/edf) (fourth moment of a scaled chi-square) < 1.5 %; allow 5 %.
-    assert 2 * v.mean() ** 2 / v.var() == pytest.approx(exact, rel=0.05)
-
-
-@pytest.mark.parametrize("m", sorted(ref.EDF_SIMPLE_N1001))
-def test_edf_simple_formulas(m):
-    # SP 1065 section 5.4.1, Table 5, at N = 1001 (values to 3 decimals in the reference notes);
-    # the flicker-FM m = 1 value keeps the square (the reference library's version drops it)
-    for alpha, value in zip(ALPHAS, ref.EDF_SIMPLE_N1001[m], strict=True):
-        assert allan.edf_simple(alpha, m, 1001) == pytest.approx(value, abs=0.0005 + 1e-9)
-
-
-def test_edf_exact_for_white_and_random_walk_rate_noise():
-    # The EDF the engine uses for alpha = 0, -2 at m <= 33 is the exact one of the sampled model.
-    # Checks: (1) it is close to SP 1065 Table 5 (an approximation fitted to the same model)
-    # where the Greenhall-Riley F = m branch is not; (2) at the hand-over to Greenhall-Riley
-    # (F = infinity) from m = 34 on, edf·m (nearly constant for m << N) has no step, while the
-    # F = m branch itself steps by ~3 %; (3) a seeded simulation at m = 1, 2.
-    assert allan.edf(0, 1, 1001) == pytest.approx(ref.EDF_SIMPLE_N1001[1][2], rel=2e-3)
-    assert allan.edf(0, 10, 1001) == pytest.approx(ref.EDF_SIMPLE_N1001[10][2], rel=2e-3)
-    assert allan.edf(-2, 1, 1001) == pytest.approx(ref.EDF_SIMPLE_N1001[1][4], rel=2e-3)
-    assert allan.edf_greenhall(0, 1, 1001) > 1.15 * allan.edf(0, 1, 1001)
-    for alpha in (0, -2):
-        assert allan.edf(alpha, 34, 1001) == allan.edf_greenhall(alpha, 34, 1001)
-        step = 33 * allan.edf(alpha, 33, 1001) / (34 * allan.edf(alpha, 34, 1001))
-        assert step == pytest.approx(1.0, abs=0.005)
-    gr_step = 33 * allan.edf_greenhall(0, 33, 1001) / (34 * allan.edf_greenhall(0, 34, 1001))
-    assert abs(gr_step - 1.0) > 0.02
-    rng = np.random.default_rng(8)
-    y = rng.standard_normal((20_000, 1000))
-    x = np.concatenate([np.zeros((20_000, 1)), np.cumsum(y, axis=1)], axis=1)
-    for m in (1, 2):
-        d = x[:, 2 * m :] - 2 * x[:, m:-m] + x[:, : -2 * m]
-        v = np.mean(d * d, axis=1)
-        # relative standard error of 2 mean²/var with R = 20 000: ~ sqrt(2/R) = 1 %; allow 4 %
-        assert 2 * v.mean() ** 2 / v.var() == pytest.approx(allan.edf(0, m, 1001), rel=0.04)
-
-
-def test_chi2_interval_check_value():
-    # SP 1065 eq. (45), check value from the reference notes: c = 0.682689, edf = 146.1788
-    low, high = allan.chi2_interval(1.0, ref.CHI2_CHECK["edf"], ref.CHI2_CHECK["confidence"])
-    assert float(low) == pytest.approx(ref.CHI2_CHECK["low"], abs=5e-8)
-    assert float(high) == pytest.approx(ref.CHI2_CHECK["high"], abs=5e-8)
 
 
 def test_coverage_of_the_interval_for_white_noise():
@@ -577,7 +489,7 @@ def test_fixed_noise_types():
     y = SIGNALS["white"][:10_000]
     c = allan.overlapping(y, 1.0, taus=[1.0, 10.0], noise_type=[-1, -2])
     np.testing.assert_array_equal(c.noise_alpha, [-1, -2])
-    assert c.edf[0] == allan.edf(-1, 1, 10_001) and c.edf[1] == allan.edf(-2, 10, 10_001)
+    assert c.edf[0] == confidence.edf(-1, 1, 10_001) and c.edf[1] == confidence.edf(-2, 10, 10_001)
 
 
 # ---------------------------------------------------------------------------------------------

@@ -9,6 +9,7 @@ from __future__ import annotations
 
 import base64
 import copy
+import dataclasses
 import html
 import json
 import pathlib
@@ -21,6 +22,7 @@ import pytest
 from conftest import SCHEMAS
 
 from sensormodel import acceptance as acc
+from sensormodel import spectrum
 from sensormodel.allan import overlapping
 from sensormodel.datasheet import load_datasheet
 from sensormodel.report import (
@@ -34,6 +36,7 @@ from sensormodel.report import (
     write_verdict_html,
     write_verdict_json,
 )
+from sensormodel.terms import FLICKER_FLOOR_FACTOR
 
 HOSTILE = '<script>alert("x")</script> & "BW" <b>'
 
@@ -87,7 +90,7 @@ def report(tmp_path_factory):
     n_lim = 0.02 * np.pi / 180 / 60
     y = rng.normal(0.0, 0.5 * n_lim * np.sqrt(rate), 20 * 600)  # 10 min of white noise
     curve = overlapping(y, rate, confidence=0.9, unit="rad/s", channel="gyro.x")
-    b_lim = 0.1 * np.pi / 180 / 3600 / acc.FLOOR_FACTOR
+    b_lim = 0.1 * np.pi / 180 / 3600 / FLICKER_FLOOR_FACTOR
     fits = {
         "gyro.x": _fit((0.5 * n_lim, 0.48 * n_lim, 0.52 * n_lim), (0.1 * b_lim, 0.0, 0.5 * b_lim)),
         "gyro.z": _fit(
@@ -97,7 +100,8 @@ def report(tmp_path_factory):
     channels = []
     for ax in ds.channels():
         cv = acc.verify_curve(curve, ax, duration=600.0, identification=fits[ax.channel_id])
-        channels.append(acc.replace(cv, psd=acc._welch(y, rate)))
+        psd = spectrum.log_bins(spectrum.welch(y, rate), per_decade=20)
+        channels.append(dataclasses.replace(cv, psd=psd))
     return acc.VerdictReport(
         channels=tuple(channels),
         confidence=0.9,
@@ -109,8 +113,7 @@ def report(tmp_path_factory):
             "sensor": {k: v for k, v in ds.sensor.items() if isinstance(v, str)},
         },
         recording={"file": "rec<1>.csv", "duration": 600.0, "sample_rate": rate, "samples": y.size},
-        notes=("a note with <tags> & ampersands",),
-    )
+    ).with_notes("a note with <tags> & ampersands")
 
 
 def _validator():
@@ -289,3 +292,37 @@ def test_write_html_with_pngs(report, tmp_path: pathlib.Path) -> None:
 
     with pytest.raises(OutputExistsError):
         write_verdict_html(report, out)
+
+
+def test_reason_codes_become_the_sentences_of_the_reports():
+    # Every reason code the acceptance results carry has one sentence template; two pinned.
+    from sensormodel.report import REASONS, reason_text
+
+    values = {
+        "against": "max",
+        "column": "typ",
+        "text": "0.5 deg/h",
+        "side": "above",
+        "p_value": 0.1234,
+        "alpha": 0.05,
+        "n_records": 59,
+        "skip_margin": 2.0,
+        "channels": ("gyro.x", "gyro.y"),
+        "channel": "gyro.z",
+        "segments": 3,
+        "duration": 1234.5678,
+        "recording_duration": 4000.0,
+    }
+    for code in REASONS:
+        text = reason_text(code, values)
+        assert text and "{" not in text and "}" not in text, code
+    assert reason_text("no_limit_column", values) == (
+        "the datasheet gives no max value (only typ 0.5 deg/h); nothing to verify against"
+    )
+    assert reason_text("limit_test_not_confirmed", values) == (
+        "the interval lies above the limit, but the bootstrap test at the limit does not "
+        "confirm it (p = 0.123 > 0.05, 59 records): interval widened to the limit"
+    )
+    assert reason_text("channels_missing", values).endswith("not verified: gyro.x, gyro.y")
+    with pytest.raises(KeyError):
+        reason_text("an_unknown_code")

@@ -83,7 +83,8 @@ def _worker(kind: str, n: int, threads: int | None) -> None:
 def _six_worker(n: int, repeats: int) -> None:
     import numpy as np
 
-    from sensormodel.allan import _default_workers, _job, overlapping, overlapping_many
+    from sensormodel.allan import overlapping, overlapping_many
+    from sensormodel.allan._engine import _default_workers, _job
 
     rng = np.random.default_rng(SEED)
     columns = []
