@@ -30,6 +30,7 @@ from typing import Any
 import numpy as np
 import numpy.typing as npt
 
+from .datasheet import _check_keys  # the one unknown-key check of TOML tables
 from .errors import AnalysisError, DatasheetError, RecordingError
 from .model import Channel, NoiseModel
 from .pipeline import analysed_segment
@@ -64,16 +65,9 @@ SHAPED_PSD_CONVENTION = (
     "two-sided PSD |H(j2πf)|²"
 )
 
-_TABLE_KEYS = frozenset(
-    {
-        "numerator",
-        "denominator",
-        "numerator_omega",
-        "denominator_omega",
-        "channel",
-        "sample_rate",
-        "name",
-    }
+_TABLE_KEYS = sorted(
+    ["numerator", "denominator", "numerator_omega", "denominator_omega", "channel", "sample_rate",
+     "name"]
 )
 
 
@@ -160,14 +154,7 @@ def read_spectrum_table(path: str) -> SpectrumTable:
             source=path,
             field="spectrum",
         )
-    for key in table:
-        if key not in _TABLE_KEYS:
-            raise DatasheetError(
-                f"unknown key '{key}'",
-                f"one of {', '.join(sorted(_TABLE_KEYS))}",
-                source=path,
-                field=f"spectrum.{key}",
-            )
+    _check_keys(table, _TABLE_KEYS, "spectrum", path)
     num, den = (_table_polynomial(table, part, path) for part in ("numerator", "denominator"))
     rate = None
     if "sample_rate" in table:
