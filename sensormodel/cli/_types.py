@@ -49,7 +49,7 @@ class OptionError(click.BadParameter):
         click.echo(f"error: {self.format_message()}", err=True)
 
 
-def option_label(param: click.Parameter | None, fallback: str) -> str:
+def _option_label(param: click.Parameter | None, fallback: str) -> str:
     """The option's first spelling (``--rate``, ``-o``), as messages name it."""
     if param is not None and getattr(param, "opts", None):
         return str(param.opts[0])
@@ -65,7 +65,7 @@ class _Checked(click.ParamType):
         raise OptionError(message, ctx=ctx, param=param)
 
     def label(self, param: click.Parameter | None) -> str:
-        return option_label(param, self.name)
+        return _option_label(param, self.name)
 
     def refuse(
         self, value: Any, expected: str, param: click.Parameter | None, ctx: click.Context | None
@@ -268,7 +268,7 @@ class OutputFile(click.Path):
             wanted = " or ".join(self.suffixes)
             message = f"a file name ending in {wanted}"
             raise OptionError(
-                str(AnalysisError(f"{option_label(param, 'output')} {value}", message)),
+                str(AnalysisError(f"{_option_label(param, 'output')} {value}", message)),
                 ctx=ctx,
                 param=param,
             )
