@@ -96,7 +96,7 @@ def test_table(runner, white) -> None:  # type: ignore[no-untyped-def]
     res = _run(runner, "allan", white, "--taus", "0.01,1", "--columns", "gyro*")
     assert res.exit_code == 0, res.stderr
     lines = res.stdout.splitlines()
-    assert lines[0] == "gyro.x [rad/s]: 20000 samples at 100 Hz (3.333 min), 68.3 % intervals"
+    assert lines[0] == "gyro.x [rad/s]: 20000 samples at 100 Hz (3.33 min), 68.3 % intervals"
     assert lines[1].split() == [
         "τ",
         "[s]",
@@ -184,7 +184,7 @@ def test_bad_recording_writes_nothing(runner, tmp_path) -> None:  # type: ignore
         ),
         (
             ["--confidence", "1.5"],
-            "--confidence 1.5; expected a probability between 0 and 1, e.g. 0.683",
+            "--confidence: got 1.5; expected a probability strictly between 0 and 1, e.g. 0.683",
         ),
         (
             ["--unit", "deg/s", "--unit", "rate_z=deg/s"],
@@ -203,6 +203,17 @@ def test_bad_recording_writes_nothing(runner, tmp_path) -> None:  # type: ignore
             "samples allow at most 499 (two overlapping differences); expected τ ≤ 4.99 s for this "
             "record, or a longer record",
         ),
+        (
+            ["--taus", "ten/decade"],
+            "--taus ten/decade; expected N/decade with N a whole number ≥ 1, e.g. 10/decade",
+        ),
+        (
+            ["--taus", "0.01,2 m"],
+            "--taus: got 'm' ([length]); expected a time convertible to 's', such as '100 s'",
+        ),
+        (["--unit", "rate_z="], "--unit rate_z=; expected COLUMN=UNIT, e.g. gyro_x=deg/s"),
+        (["--rate", "fast"], "--rate: cannot read 'fast' as a number followed by a unit; "
+         "expected a frequency such as '400 Hz'"),
     ],
     ids=[
         "unknown-column",
@@ -212,6 +223,10 @@ def test_bad_recording_writes_nothing(runner, tmp_path) -> None:  # type: ignore
         "unit-mix",
         "rate-disagrees",
         "tau-too-long",
+        "taus-per-decade",
+        "taus-unit",
+        "unit-syntax",
+        "rate-text",
     ],
 )
 def test_option_errors(runner, tmp_path, args, message) -> None:  # type: ignore[no-untyped-def]
@@ -280,61 +295,70 @@ def test_increments(runner, tmp_path) -> None:  # type: ignore[no-untyped-def]
     )
 
 
-def test_gaps_split(runner, tmp_path) -> None:  # type: ignore[no-untyped-def]
+def _logger_csv(path: pathlib.Path, x: np.ndarray, dropped: slice) -> pathlib.Path:
+    """A CSV as a logger writes it: time stamps [s] at 100 Hz, gyro_x in deg/s, with the samples
+    of ``dropped`` (indices of the logger's clock) lost, so the time column jumps there."""
+    t = np.delete(np.arange(x.size + dropped.stop - dropped.start) / RATE, dropped)
+    rows = "".join(f"{a:.2f},{float(b)!r}\n" for a, b in zip(t, x, strict=True))
+    path.write_text("time [s],gyro_x [deg/s]\n" + rows, encoding="utf-8")
+    return path
+
+
+def test_gaps_split_analyses_the_longest_segment(runner, tmp_path) -> None:  # type: ignore[no-untyped-def]
+    # 3000 samples; the logger lost 100 after its 1200th: clean segments of 1200 and 1800
     rng = np.random.default_rng(5)
-    x = rng.normal(0, 1e-3, 3000)
-    t = np.arange(3000) / 100.0
-    t[1800:] += 1.0  # 100 samples missing before sample 1800
-    path = tmp_path / "g.npz"
-    np.savez(path, time=t, gyro_x=x)
+    x = rng.normal(0, 0.05, 3000)
+    path = _logger_csv(tmp_path / "log.csv", x, slice(1200, 1300))
     out = tmp_path / "c.json"
-    args = ["allan", path, "--unit", "time=s", "--unit", "gyro_x=rad/s", "-o", out]
-    res = _run(runner, *args)
+    gap = "time step of 1.01 s where the median step is 0.01 s (about 100 samples missing)"
+    res = _run(runner, "allan", path, "-o", out)
     assert res.exit_code == 2
     assert res.stderr == (
-        f"error: {path}:index 1800: time step of 1.01 s where the median step is 0.01 s (about "
-        "100 samples missing); expected uniformly sampled time, or --gaps split to analyse the "
-        "clean segments\n"
+        f"error: {path}:line 1202: {gap}; expected uniformly sampled time, or --gaps split to "
+        "analyse the clean segments\n"
     )
-    res = _run(runner, *args, "--gaps", "split")
+    assert not out.exists()
+    res = _run(runner, "allan", path, "-o", out, "--gaps", "split")
     assert res.exit_code == 0, res.stderr
     assert res.stderr == (
-        f"note: {path}:index 1800: time step of 1.01 s where the median step is 0.01 s (about "
-        "100 samples missing)\n"
-        "note: gyro.x: 2 clean segments analysed separately (--gaps split)\n"
+        f"note: {path}:line 1202: {gap}\n"
+        "note: gyro.x: 1 shorter clean segment (1200 samples) left out; the longest is analysed "
+        "(--gaps split)\n"
+    )
+    assert res.stdout.startswith(
+        "gyro.x [rad/s], longest of 2 clean segments: samples 1200-2999 from t = 13 s: 1800 "
+        "samples at 100 Hz (18 s), 68.3 % intervals\n"
     )
     doc = json.loads(out.read_text())
     jsonschema.validate(doc, json.loads(SCHEMA.read_text()))
-    assert [c["id"] for c in doc["channels"]] == ["gyro.x#1", "gyro.x#2"]
+    (curve,) = doc["channels"]
+    assert curve["id"] == "gyro.x"
+    assert doc["provenance"]["segment_policy"] == "longest"
     assert doc["provenance"]["segments"] == [
         {
-            "id": "gyro.x#1",
+            "id": "gyro.x",
             "channel": "gyro.x",
             "column": "gyro_x",
-            "start": 0,
-            "stop": 1800,
-            "start_time": 0.0,
-        },
-        {
-            "id": "gyro.x#2",
-            "channel": "gyro.x",
-            "column": "gyro_x",
-            "start": 1800,
+            "start": 1200,
             "stop": 3000,
-            "start_time": 19.0,
-        },
+            "start_time": 13.0,
+            "clean_segments": 2,
+            "reasons": [{"code": "segments_left_out", "count": 1, "samples": 1200}],
+        }
     ]
     assert [f["kind"] for f in doc["provenance"]["findings"]] == ["gap"]
-    for c, piece in zip(doc["channels"], (x[:1800], x[1800:]), strict=True):
-        np.testing.assert_allclose(c["adev"], allan.overlapping(piece, 100.0).adev, rtol=1e-13)
-    assert "gyro.x#2 [rad/s], segment 2 of 2: samples 1800-2999 from t = 19 s" in res.stdout
+    # the second (longer) stretch, in rad/s, is the one analysed
+    longest = x[1200:] * math.pi / 180.0
+    np.testing.assert_allclose(curve["adev"], allan.overlapping(longest, RATE).adev, rtol=1e-12)
+    shorter = allan.overlapping(x[:1200] * math.pi / 180.0, RATE).adev
+    assert not np.allclose(curve["adev"][: shorter.size], shorter, rtol=1e-3)
 
 
 def test_progress_bar_only_on_a_terminal(monkeypatch: pytest.MonkeyPatch) -> None:
     import io
     import sys
 
-    from sensormodel import cli as cli_module
+    from sensormodel.cli._app import StderrBar
 
     class Terminal(io.StringIO):
         def isatty(self) -> bool:
@@ -342,13 +366,13 @@ def test_progress_bar_only_on_a_terminal(monkeypatch: pytest.MonkeyPatch) -> Non
 
     pipe = io.StringIO()
     monkeypatch.setattr(sys, "stderr", pipe)
-    bar = cli_module._StderrBar("reading")
+    bar = StderrBar("reading")
     bar(50, 100)
     bar.close()
     assert pipe.getvalue() == ""
     term = Terminal()
     monkeypatch.setattr(sys, "stderr", term)
-    bar = cli_module._StderrBar("reading")
+    bar = StderrBar("reading")
     bar(50, 100)
     bar(100, 100)
     bar.close()

@@ -270,8 +270,8 @@ def test_inspect_names_the_bandwidth_field(runner, examples_dir, tmp_path):
 
 def test_inspect_refuses_bad_rate(runner, t900_model):
     result = runner.invoke(cli, ["inspect", str(t900_model), "--rate", "0"])
-    line = assert_refused(result, "error: --rate 0.0")
-    assert line == "error: --rate 0.0; expected a positive rate in Hz"
+    line = assert_refused(result, "error: --rate 0")
+    assert line == "error: --rate 0; expected a positive rate in Hz, e.g. 100 or '100 Hz'"
 
 
 def test_inspect_refuses_infinite_rate(runner, examples_dir, tmp_path):
@@ -281,7 +281,8 @@ def test_inspect_refuses_infinite_rate(runner, examples_dir, tmp_path):
         == 0
     )
     result = runner.invoke(cli, ["inspect", str(model), "--rate", "inf"])
-    assert_refused(result, "error: rate: got inf; expected a positive, finite rate in Hz")
+    line = assert_refused(result, "error: --rate inf")
+    assert line == "error: --rate inf; expected a positive rate in Hz, e.g. 100 or '100 Hz'"
 
 
 def test_inspect_unknown_channel(runner, t900_model):

@@ -192,3 +192,45 @@ def test_identify_with_an_output_filter(recording, runner, tmp_path) -> None:
     assert_refused(r, "error: --bandwidth -3; expected a positive frequency", leftovers=[bad])
     r = runner.invoke(cli, [*args[:3], str(bad), *args[4:], "--bandwidth", "3 s"])
     assert_refused(r, "error: --bandwidth", leftovers=[bad])
+
+
+def test_identify_gaps_split_fits_the_longest_segment(runner, tmp_path) -> None:
+    # a logger's CSV at 50 Hz that lost 50 samples after its 3000th: clean segments of 3000 and
+    # 5192 samples; the longer (second) one is fitted, the other reported as left out
+    from sensormodel.allan import overlapping
+    from sensormodel.identify import fit
+
+    rng = np.random.default_rng(8)
+    n, start, lost = 8192, 3000, 50
+    x = rng.standard_normal(n) * WHITE_DEG * math.sqrt(RATE)
+    t = np.delete(np.arange(n + lost) / RATE, np.s_[start : start + lost])
+    path = tmp_path / "log.csv"
+    rows = "".join(f"{a:.2f},{float(b)!r}\n" for a, b in zip(t, x, strict=True))
+    path.write_text("time [s],gyro_x [deg/s]\n" + rows, encoding="utf-8")
+    out = tmp_path / "m.json"
+    args = ["identify", str(path), "-o", str(out), "--terms", "white,random_walk"]
+    args += ["--bootstrap", "40", "--seed", "4"]
+    r = runner.invoke(cli, args)
+    assert_refused(r, f"error: {path}:line {start + 2}: time step of 1.02 s", leftovers=[out])
+    r = runner.invoke(cli, [*args, "--gaps", "split"])
+    assert r.exit_code == 0, r.output
+    assert r.stderr.splitlines()[-1] == (
+        f"note: gyro.x: 1 shorter clean segment ({start} samples) left out; the longest is "
+        "analysed (--gaps split)"
+    )
+    assert f"gyro.x [rad/s]: {n - start} samples at 50 Hz" in r.stdout
+    # the CLI's model is the library's fit of the longest segment's curve
+    longest = x[start:] * math.pi / 180.0
+    ident = fit(
+        overlapping(longest, RATE, unit="rad/s", channel="gyro.x"),
+        terms="white,random_walk",
+        confidence=0.9,
+        seed=4,
+        n_boot=40,
+    )
+    written = NoiseModel.load(out).channel("gyro.x")
+    expected = ident.to_channel()
+    assert [t.type for t in written.terms] == [t.type for t in expected.terms]
+    for a, b in zip(written.terms, expected.terms, strict=True):
+        for key, value in b.parameters().items():
+            assert a.parameters()[key] == pytest.approx(value, rel=1e-9)
