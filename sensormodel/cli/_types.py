@@ -18,6 +18,7 @@ import click
 from .. import validate
 from ..errors import AnalysisError, RecordingError, SensorModelError
 from ..quantities import parse_quantity
+from ..recording import parse_channel_map
 
 __all__ = [
     "OptionError",
@@ -34,7 +35,6 @@ __all__ = [
     "OutputFile",
     "FormatList",
     "Orders",
-    "channel_pairs",
     "unit_plan",
 ]
 
@@ -177,26 +177,6 @@ class TauGrid(_Checked):
         return [TIME_STEP.convert(part, param, ctx) for part in value.split(",") if part.strip()]
 
 
-def channel_pairs(pairs: Sequence[str]) -> dict[str, str]:
-    """``COLUMN=CHANNEL_ID`` texts as a mapping column → channel id.
-
-    Raises
-    ------
-    RecordingError
-        A text that is not ``COLUMN=CHANNEL_ID``.
-    """
-    # TODO(merge): the recording package adds recording.parse_channel_map(pairs) (one owner of
-    # this syntax); call it here and delete this function.
-    out = {}
-    for v in pairs:
-        column, sep, channel = v.partition("=")
-        if not sep or not column.strip() or not channel.strip():
-            expected = "COLUMN=CHANNEL_ID, e.g. --channel rate_z=gyro.z"
-            raise RecordingError(f"--channel {v}", expected)
-        out[column.strip()] = channel.strip()
-    return out
-
-
 class ChannelPair(_Checked):
     """``COLUMN=CHANNEL_ID``, e.g. ``rate_z=gyro.z`` → ``("rate_z", "gyro.z")``."""
 
@@ -206,7 +186,7 @@ class ChannelPair(_Checked):
         if isinstance(value, tuple):
             return value
         try:
-            ((column, channel),) = channel_pairs([value]).items()
+            ((column, channel),) = parse_channel_map([value]).items()
         except RecordingError as exc:
             self.fail(str(exc), param, ctx)
         return column, channel
