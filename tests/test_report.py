@@ -180,7 +180,12 @@ def test_display_values_in_datasheet_units(report) -> None:
 
 
 def test_format_duration() -> None:
-    assert format_duration(0.2) == "< 1 s"
+    # under a second the value is kept (a drift table's first row at a horizon under 10 s)
+    assert format_duration(0.2) == "0.2 s"
+    assert format_duration(0.025) == "25 ms"
+    assert format_duration(4e-5) == "40 µs"
+    assert format_duration(0.0) == "0 s"
+    assert format_duration(float("inf")) == "unbounded"
     assert format_duration(45.0) == "45 s"
     assert format_duration(900.0) == "15 min"
     assert format_duration(3 * 3600.0) == "3 h"
@@ -324,5 +329,46 @@ def test_reason_codes_become_the_sentences_of_the_reports():
         "confirm it (p = 0.123 > 0.05, 59 records): interval widened to the limit"
     )
     assert reason_text("channels_missing", values).endswith("not verified: gyro.x, gyro.y")
+    assert reason_text("segments_left_out", values) == (
+        "gyro.z: the recording has 3 clean segments; the longest (1234.57 s of 4000 s) was "
+        "analysed"
+    )
+    # the same code as a channel analysis carries it (pipeline numbers are floats)
+    assert reason_text("segments_left_out", {"count": 2.0, "samples": 1500.0}) == (
+        "2 shorter clean segments (1500 samples) left out; the longest is analysed"
+    )
+    assert reason_text("segments_left_out", {"count": 1.0, "samples": 10.0}).startswith(
+        "1 shorter clean segment (10 samples)"
+    )
     with pytest.raises(KeyError):
         reason_text("an_unknown_code")
+
+
+def test_channel_display_readable_units_and_stored_units_otherwise():
+    from sensormodel.quantities import convert_from_si
+    from sensormodel.report import channel_display
+
+    label, factor = channel_display("angular_rate", "rad/s")
+    assert label == "°/h" and factor == pytest.approx(convert_from_si(1.0, "angular_rate", "deg/h"))
+    label, factor = channel_display("acceleration", "m/s^2")
+    assert label == "µg" and factor == pytest.approx(1.0 / 9.80665e-6, rel=1e-12)
+    # a channel of another quantity keeps its stored unit
+    assert channel_display("angle", "rad") == ("rad", 1.0)
+    assert channel_display(None, "V") == ("V", 1.0)
+    assert channel_display(None) == ("", 1.0)
+
+
+def test_drift_table_first_row_under_a_second():
+    from sensormodel.drift import channel_drift, table_times
+    from sensormodel.model import Channel
+    from sensormodel.report import DRIFT_DISPLAY, drift_table
+    from sensormodel.terms import White
+
+    gyro = Channel(
+        id="gyro.x", quantity="angular_rate", unit="rad/s", sample_rate=100.0,
+        terms=(White(3e-6),),
+    )
+    times = table_times(0.5)  # a horizon under a second: the table starts at horizon/10
+    text = drift_table(channel_drift(gyro, 0.5, times=times), times, DRIFT_DISPLAY)
+    rows = text.splitlines()[2:]
+    assert [r.split("  ")[1].strip() for r in rows] == ["50 ms", "0.5 s"]

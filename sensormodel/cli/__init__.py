@@ -5,9 +5,10 @@ No maths here. The modules of this package:
 - ``_app``: the command group, the one error boundary (``guarded``), the progress bar;
 - ``_types``: click parameter types that check option values where they are parsed;
 - ``_options``: the one set of recording options of every command that reads a recording;
-- ``_render``: the text the commands print (results → strings);
 - one module per family of commands: ``_model`` (build, inspect, export, drift, shape),
   ``_recording`` (allan, identify, simulate), ``_acceptance`` (verify, plan), ``_demo``.
+
+The text the commands print comes from :mod:`sensormodel.report`.
 """
 
 from __future__ import annotations

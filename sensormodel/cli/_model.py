@@ -18,9 +18,16 @@ from ..errors import AnalysisError
 from ..export import FORMATS, discrete_document, write_discrete
 from ..model import NoiseModel
 from ..recording import read_recording
-from ..report import inspect_text
+from ..report import (
+    DRIFT_DISPLAY,
+    drift_table,
+    export_summary,
+    inspect_text,
+    model_display,
+    realization_lines,
+    shape_summary,
+)
 from ..shaping import DEFAULT_CHANNEL, shape
-from . import _render
 from ._app import CONTEXT, force_option, guarded
 from ._types import DURATION, RATE, TIME_STEP, FormatList, Orders
 
@@ -82,9 +89,9 @@ def inspect(model_file: str, rate: float | None, channels: tuple[str, ...],
     if plot_file:
         check_writable(plot_file, force=force)
     model = NoiseModel.load(model_file).select(list(channels))
-    click.echo(inspect_text(model, rate=rate, extra=_render.realization_lines(model)))
+    click.echo(inspect_text(model, rate=rate, extra=realization_lines(model)))
     if plot_file:
-        figure = plots.model_figure(model, display=_render.model_display(model))
+        figure = plots.model_figure(model, display=model_display(model))
         plots.save_figure(figure, plot_file, force=force)
         click.echo(f"wrote {plot_file}")
 
@@ -143,7 +150,7 @@ def export_command(model_file: str, dt: float, formats: list[str] | None, output
     for fmt, path in targets:
         write_discrete(path, doc, fmt=fmt, force=force)
         click.echo(f"wrote {path}")
-    click.echo("\n".join(_render.export_summary(doc, dt)))
+    click.echo("\n".join(export_summary(doc, dt)))
 
 
 @click.command("drift", context_settings=CONTEXT, epilog=_CAUTION_HELP)
@@ -180,14 +187,14 @@ def drift_command(model_file: str, horizon: float, channels: tuple[str, ...], po
     result = drift(model, horizon, points=points)
     times = table_times(horizon)
     for ch in result.channels:
-        click.echo(_render.drift_table(ch, times, _render.DRIFT_DISPLAY))
+        click.echo(drift_table(ch, times, DRIFT_DISPLAY))
     for cid in result.skipped:
         click.echo(f"note: {cid} is not a gyro or accelerometer channel; not integrated", err=True)
     if json_file:
         write_json(json_file, result.to_dict(), force=force, schema="drift.schema.json")
         click.echo(f"wrote {json_file}")
     if plot_file:
-        figure = plots.drift_figure(result, display=_render.DRIFT_DISPLAY)
+        figure = plots.drift_figure(result, display=DRIFT_DISPLAY)
         plots.save_figure(figure, plot_file, force=force)
         click.echo(f"wrote {plot_file}")
 
@@ -251,7 +258,7 @@ def shape_command(spectrum_file: str, output: str, channel_id: str | None, rate:
         add_to=NoiseModel.load(add_to) if add_to else None,
     )
     result.model.save(output, force=force)
-    click.echo("\n".join(_render.shape_summary(result)))
+    click.echo("\n".join(shape_summary(result)))
     click.echo(f"wrote {output}: channel {result.channel} with a shaped term")
 
 

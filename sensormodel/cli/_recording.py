@@ -19,8 +19,16 @@ from ..errors import AnalysisError
 from ..identify import fit, to_model
 from ..model import NoiseModel
 from ..pipeline import SEGMENT_POLICY, RecordingAnalysis, analyse
+from ..report import (
+    allan_heading,
+    allan_table,
+    channel_display,
+    identify_heading,
+    identify_table,
+    reason_text,
+    simulate_summary,
+)
 from ..simulate import new_seed, record_rate, run_path, samples_for, write_record
-from . import _render
 from ._app import CONTEXT, StderrBar, echo_findings, force_option, guarded
 from ._options import RecordingOptions, recording_options
 from ._types import DURATION, FREQUENCY, RATE, OutputFile, Probability, TauGrid
@@ -38,7 +46,7 @@ def _analyse(reading: RecordingOptions, path: str, **kwargs: Any) -> RecordingAn
         analysis = analyse(rec, progress=bar, **kwargs)
     for ch in analysis:
         for code, numbers in ch.reasons:
-            click.echo(f"note: {ch.channel}: {_render.reason_text(code, numbers)} "
+            click.echo(f"note: {ch.channel}: {reason_text(code, numbers)} "
                        f"(--gaps {reading.gaps})", err=True)
     return analysis
 
@@ -101,10 +109,9 @@ def allan_command(recording_file: str, reading: RecordingOptions, taus: Any, con
             check_writable(path, force=force)
     analysis = _analyse(reading, recording_file, taus=taus, confidence=confidence)
     rate = analysis.recording.rate
-    display = {ch.channel: _render.channel_display(ch.quantity, ch.unit) for ch in analysis}
+    display = {ch.channel: channel_display(ch.quantity, ch.unit) for ch in analysis}
     click.echo("\n\n".join(
-        _render.allan_table(ch.curve, _render.allan_heading(ch, rate, confidence),
-                            display[ch.channel])
+        allan_table(ch.curve, allan_heading(ch, rate, confidence), display[ch.channel])
         for ch in analysis
     ))
     curves = [ch.curve for ch in analysis]
@@ -209,8 +216,8 @@ def identify_command(recording_file: str, output: str, terms: str, confidence: f
     for n, ident in enumerate(results):
         if n:
             click.echo("")
-        click.echo(_render.identify_heading(ident))
-        click.echo(_render.identify_table(ident))
+        click.echo(identify_heading(ident))
+        click.echo(identify_table(ident))
         for note in ident.notes:
             click.echo(f"  note: {note}")
     model.save(output, force=force)
@@ -279,8 +286,8 @@ def simulate_command(model_file: str, duration: float, rate: float | None, seed:
                          flicker=flicker, force=force, progress=bar.advance,
                          time_column=not no_time)
     where = str(paths[0]) if runs == 1 else f"{paths[0]} … {paths[-1]} ({runs} runs)"
-    click.echo(_render.simulate_summary(where, n, increments, len(model.channels), sim_rate,
-                                        seed, flicker))
+    click.echo(simulate_summary(where, n, increments, len(model.channels), sim_rate,
+                                seed, flicker))
 
 
 COMMANDS = (allan_command, identify_command, simulate_command)

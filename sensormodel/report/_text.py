@@ -1,56 +1,181 @@
-"""Text the commands print: plain functions from results to strings (no click, no I/O).
+"""Terminal tables and summaries: models, Allan curves, identifications, drift, commands.
 
-They belong with :mod:`sensormodel.report` (results → sentences and tables); they live here
-until that module takes them.
+Plain functions from results to strings (no click, no I/O); units are chosen with
+:mod:`._units`.
 """
 
 from __future__ import annotations
 
+from dataclasses import dataclass
 from typing import Any
 
-from ..errors import AnalysisError, SensorModelError
-from ..quantities import DISPLAY_UNITS, KINDS, convert_from_si, display_scale, format_value, kind_of
-from ..report import format_duration
-from ..terms import TERM_TYPES
+from ..errors import AnalysisError
+from ..quantities import (
+    DISPLAY_UNITS,
+    KINDS,
+    convert_from_si,
+    display_scale,
+    format_value,
+    split_value,
+)
+from ..terms import FLICKER_FLOOR_FACTOR, TERM_TYPES
+from ._units import format_duration, parameter_kind, sample_std_display, si_label
 
 __all__ = [
-    "DRIFT_DISPLAY",
+    "TermRow",
     "allan_heading",
     "allan_table",
-    "channel_display",
     "drift_table",
     "export_summary",
     "identify_heading",
     "identify_rows",
     "identify_table",
-    "model_display",
+    "inspect_text",
     "realization_lines",
-    "reason_text",
     "shape_summary",
     "simulate_summary",
+    "term_rows",
 ]
 
-#: Drift display units: angle in degrees; velocity and position stay SI (m/s, m).
-DRIFT_DISPLAY: dict[str, tuple[str, float]] = {
-    "angle": ("°", convert_from_si(1.0, "angle", "deg")),
-    "velocity": ("m/s", 1.0),
-    "position": ("m", 1.0),
-}
 
-_READABLE = ("angular_rate", "acceleration")
+@dataclass(frozen=True)
+class TermRow:
+    """One parameter of one term, formatted: SI value and the same value in display units."""
 
-
-def channel_display(quantity: str | None, unit: str) -> tuple[str, float]:
-    """(label, factor from the stored unit) of a channel's deviations: °/h for rates, µg for
-    accelerations, the stored unit otherwise."""
-    if quantity in _READABLE:
-        return display_scale(quantity)
-    return unit, 1.0
+    term: str
+    parameter: str
+    si: str
+    display: str
+    origin: str
 
 
-def model_display(model: Any) -> dict[str, tuple[str, float]]:
-    """Display units of the inspect figure: °/h for gyros, µg for accelerometers."""
-    return {ch.id: display_scale(ch.quantity) for ch in model.channels if ch.quantity in _READABLE}
+def term_rows(channel) -> list[TermRow]:
+    """Rows for every parameter of every term of a channel, in SI and in datasheet units.
+
+    The datasheet's own unit is used where the term came from a datasheet field of the same
+    kind; otherwise the readable unit of :data:`quantities.DISPLAY_UNITS`.
+    """
+    rows = []
+    for term in channel.terms:
+        ds = term.meta.get("datasheet", {}) if isinstance(term.meta, dict) else {}
+        origin = ds.get("field", term.meta.get("origin", "")) if isinstance(term.meta, dict) else ""
+        ds_unit = None
+        if ds.get("text"):
+            try:
+                ds_unit = split_value(ds["text"])[1]
+            except Exception:
+                ds_unit = None
+        for name, value in term.parameters().items():
+            rel = type(term).units.get(name, "")
+            kind = parameter_kind(rel, channel.unit)
+            where = origin
+            if name == "bandwidth" and ds.get("bandwidth_field"):
+                where = ds["bandwidth_field"]
+            elif name == "filter_order" and ds.get("filter_order_field"):
+                where = ds["filter_order_field"]
+            if rel == "1":  # a plain count (filter order)
+                rows.append(TermRow(term.type, name, f"{value:g}", f"{value:g}", where))
+                continue
+            if isinstance(value, (list, tuple)):  # shaped filter polynomials in s
+                si = "[" + ", ".join(f"{v:.4g}" for v in value) + "] (in s)"
+                rows.append(TermRow(term.type, name, si, "", origin))
+                continue
+            si = f"{format_value(value)} {si_label(rel, channel.unit)}".strip()
+            display = ""
+            if kind is not None:
+                unit_text = None
+                if ds_unit:
+                    try:
+                        convert_from_si(1.0, kind, ds_unit)
+                        unit_text = ds_unit
+                    except Exception:
+                        unit_text = None
+                if unit_text is None:
+                    unit_text, pretty = DISPLAY_UNITS[kind]
+                else:
+                    pretty = unit_text
+                display = format_value(convert_from_si(value, kind, unit_text), pretty)
+                if ds.get("convention") == "one-sided" and name == "density":
+                    # the model's N is the IEEE (two-sided) density: say so beside the print
+                    display += f" two-sided (printed one-sided: {ds.get('text', '')})"
+                if term.type == "flicker" and name == "coefficient":
+                    floor = convert_from_si(value * FLICKER_FLOOR_FACTOR, kind, unit_text)
+                    display += f" (Allan floor {format_value(floor, pretty)})"
+            rows.append(TermRow(term.type, name, si, display, where))
+    return rows
+
+
+def inspect_text(model, *, rate: float | None = None, extra: dict | None = None) -> str:
+    """A readable summary of a noise model: per channel, each term in SI and datasheet units,
+    and the per-sample standard deviation of the white term at the channel's rate (or ``rate``).
+
+    Parameters
+    ----------
+    model : NoiseModel
+    rate : float, optional
+        Output rate [Hz] for the per-sample standard deviation (default: each channel's).
+    extra : dict, optional
+        channel id -> list of extra lines (e.g. realization errors) to print under the channel.
+    """
+    lines = []
+    name = " ".join(str(model.sensor.get(k, "")) for k in ("name", "model")).strip()
+    if name:
+        lines.append(f"sensor: {name}")
+    src = model.provenance.get("datasheet", {}).get("file") if model.provenance else None
+    if src:
+        lines.append(f"from datasheet: {src} ({model.conventions.get('basis', 'typ')} values)")
+    for ch in model.channels:
+        lines.append("")
+        lines.extend(_channel_lines(ch, rate or ch.sample_rate))
+        for line in (extra or {}).get(ch.id, []):
+            lines.append(f"  {line}")
+    notes = model.provenance.get("notes", []) if model.provenance else []
+    if notes:
+        lines.append("")
+        lines.append("notes:")
+        lines.extend(f"  - {n}" for n in notes)
+    return "\n".join(lines)
+
+
+def _channel_lines(ch, r: float) -> list[str]:
+    """The heading, the term table and the per-sample white noise of one channel."""
+    head = (
+        f"{ch.id}  ({ch.quantity}, SI unit {ch.unit}, "
+        f"output rate {format_value(ch.sample_rate, 'Hz')}"
+    )
+    if ch.bandwidth:
+        head += f", bandwidth {format_value(ch.bandwidth, 'Hz')}"
+        if ch.filter_order:
+            head += f" order {ch.filter_order}"
+    lines = [head + ")"]
+    rows = term_rows(ch)
+    if not rows:
+        lines.append("  (no noise terms)")
+    heads = ("term", "parameter", "SI", "datasheet units")
+    cells = [(t.term, t.parameter, t.si, t.display) for t in rows]
+    w = [max([len(c[i]) for c in cells] + [len(h)]) for i, h in enumerate(heads)]
+    lines.append("  " + "  ".join(h.ljust(n) for h, n in zip(heads, w, strict=True)) + "  from")
+    for t, c in zip(rows, cells, strict=True):
+        text = "  ".join(v.ljust(n) for v, n in zip(c, w, strict=True))
+        lines.append("  " + text + f"  {t.origin}".rstrip())
+    std = ch.white_sample_std(r)
+    if std > 0:
+        sample = sample_std_display(ch.unit)
+        shown = ""
+        if sample is not None:
+            kind, unit_text, label = sample
+            shown = f" = {format_value(convert_from_si(std, kind, unit_text), label)}"
+        rule = (
+            f"ENBW of the {ch.filter_order or 1}-pole Butterworth at "
+            f"{format_value(ch.bandwidth, 'Hz')}"
+            if ch.bandwidth
+            else "average over each sample"
+        )
+        lines.append(
+            f"  white noise per sample at {format_value(r, 'Hz')}: "
+            f"std {format_value(std, ch.unit)}{shown}  ({rule})"
+        )
+    return lines
 
 
 def realization_lines(model: Any) -> dict[str, list[str]]:
@@ -74,17 +199,6 @@ def realization_lines(model: Any) -> dict[str, list[str]]:
                 f"{format_value(hi, 's')}"
             )
     return out
-
-
-def reason_text(code: str, numbers: dict[str, float]) -> str:
-    """A sentence for a reason code of an analysis (:attr:`ChannelAnalysis.reasons`)."""
-    if code == "segments_left_out":
-        count, samples = int(numbers["count"]), int(numbers["samples"])
-        return (
-            f"{count} shorter clean segment{'s' if count != 1 else ''} ({samples} samples) left "
-            "out; the longest is analysed"
-        )
-    return code.replace("_", " ")
 
 
 def allan_heading(analysis: Any, rate: float, confidence: float) -> str:
@@ -125,22 +239,12 @@ def allan_table(curve: Any, heading: str, display: tuple[str, float]) -> str:
     return "\n".join(lines)
 
 
-def _parameter_kind(relative_unit: str, unit: str) -> str | None:
-    """The kind of a term parameter whose unit is ``relative_unit`` with u = the channel unit."""
-    if unit in ("", "1"):
-        return None
-    try:
-        return kind_of(relative_unit.replace("u", f"({unit})"))
-    except SensorModelError:  # a recorded unit of no known kind: its own unit only
-        return None
-
-
 def identify_rows(ident: Any) -> list[list[str]]:
     """Table rows of one identified channel: SI value, readable value, interval, reading."""
     rows = []
     for ft in ident.terms:
         rel = TERM_TYPES[ft.term].units[ft.parameter]
-        kind = _parameter_kind(rel, ident.unit)
+        kind = parameter_kind(rel, ident.unit)
         if kind is not None:
             si_unit = KINDS[kind].si
         else:

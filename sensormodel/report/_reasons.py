@@ -1,0 +1,86 @@
+"""Reason codes → sentences: the one table of what every code the results carry says.
+
+Results (:mod:`sensormodel.pipeline`, :mod:`sensormodel.acceptance`) carry a code and its
+numbers; the reports and the commands write them with :func:`reason_text`.
+"""
+
+from __future__ import annotations
+
+from collections.abc import Callable, Mapping
+from typing import Any
+
+__all__ = ["REASONS", "reason_text", "term_note"]
+
+
+def _segments_left_out(values: Mapping[str, Any]) -> str:
+    """The segments a recording's analysis left out: a verdict report's note (with the channel
+    and the durations) or a command's note on one channel (with the count and samples only)."""
+    if "recording_duration" in values:
+        return (
+            "{channel}: the recording has {segments} clean segments; the longest "
+            "({duration:.6g} s of {recording_duration:.6g} s) was analysed"
+        ).format(**values)
+    count, samples = int(values["count"]), int(values["samples"])
+    return (
+        f"{count} shorter clean segment{'s' if count != 1 else ''} ({samples} samples) left "
+        "out; the longest is analysed"
+    )
+
+
+#: The sentence of each reason code: a ``str.format`` template over the reason's values (a
+#: tuple of names is written as a comma-separated list) or a function of the values.
+REASONS: dict[str, str | Callable[[Mapping[str, Any]], str]] = {
+    # a datasheet term that is not verified (Unverified.reason)
+    "single_run": (
+        "not verifiable from a single run: bias repeatability is the spread of the turn-on bias "
+        "from run to run, and needs several turn-ons"
+    ),
+    "no_limit_column": (
+        "the datasheet gives no {against} value (only {column} {text}); nothing to verify against"
+    ),
+    # a term's verdict (TermVerdict.reasons)
+    "limit_test_not_confirmed": (
+        "the interval lies {side} the limit, but the bootstrap test at the limit does not "
+        "confirm it (p = {p_value:.3f} > {alpha:g}, {n_records} records): interval widened to "
+        "the limit"
+    ),
+    "within_limit": "already within the limit",
+    "bound_only": "bound only: upper bound ∝ duration^-1/4",
+    "estimate_at_limit": "the estimate equals the limit: no record length decides it",
+    "dof_scaling": "chi-square dof ∝ record length",
+    "length_unknown": "a longer record is needed; how much longer, the interval does not say",
+    # a test at the limit that was not run (TermVerdict.limit_test["skipped"])
+    "no_fit_state": "no fit state to test with",
+    "beyond_bootstrap": "the limit is over {skip_margin:g} times as far as any bootstrap record",
+    # the report (VerdictReport.notes)
+    "channels_missing": "not in the recording, not verified: {channels}",
+    "channels_extra": "in the recording but not on the datasheet, ignored: {channels}",
+    # a channel's analysis (pipeline.ChannelAnalysis.reasons; a verdict report's notes)
+    "segments_left_out": _segments_left_out,
+    "note": "{text}",
+}
+
+
+def reason_text(code: str, values: Mapping[str, Any] | None = None) -> str:
+    """The sentence of a reason code with its values (:data:`REASONS`).
+
+    Parameters
+    ----------
+    code : str
+        A key of :data:`REASONS`; another code raises KeyError.
+    values : mapping, optional
+        The reason's numbers and names.
+    """
+    shown = {
+        k: ", ".join(map(str, v)) if isinstance(v, (tuple, list)) else v
+        for k, v in (values or {}).items()
+    }
+    sentence = REASONS[code]
+    if callable(sentence):
+        return sentence(shown)
+    return sentence.format(**shown)
+
+
+def term_note(term) -> str:
+    """The note of a :class:`~sensormodel.acceptance.TermVerdict`: its reasons, in order."""
+    return "; ".join(reason_text(code, values) for code, values in term.reasons)
