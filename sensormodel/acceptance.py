@@ -81,9 +81,10 @@ from typing import Any
 import numpy as np
 import numpy.typing as npt
 
-from .convert import FLOOR_FACTOR, QUANTITY, axis_terms
+from .convert import QUANTITY, axis_terms
 from .datasheet import FIELDS, AxisSpec, Datasheet
 from .errors import AnalysisError, DatasheetError
+from .terms import FLICKER_FLOOR_FACTOR as FLOOR_FACTOR
 
 __all__ = [
     "VERDICTS",

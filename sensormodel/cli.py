@@ -107,10 +107,10 @@ def build(datasheet: str, output: str, worst_case: bool, force: bool) -> None:
       sensormodel build examples/bw-m200.toml -o m200-worst.json --worst-case
     """
     from ._io import check_writable
-    from .model import NoiseModel
+    from .convert import build_model
 
     check_writable(output, force=force)
-    model = NoiseModel.from_datasheet(datasheet, worst_case=worst_case)
+    model = build_model(datasheet, worst_case=worst_case)
     model.save(output, force=force)
     n_terms = sum(len(c.terms) for c in model.channels)
     click.echo(f"wrote {output}: {len(model.channels)} channels, {n_terms} terms "

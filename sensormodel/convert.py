@@ -17,18 +17,29 @@ rate ramp R                                ``ramp(slope=R)``
 bias repeatability σ                       ``random_constant(sigma=σ)``
 =========================================  ===================================================
 
-References: IEEE Std 952-1997 Annex C (Allan-variance forms of the terms; the floor factor
-√(2 ln2/π) ≈ 0.6643); ARW = density for a two-sided density is common practice ("ARW [°/√h] =
+The floor factor √(2 ln2/π) ≈ 0.6643 is :data:`sensormodel.terms.FLICKER_FLOOR_FACTOR`; the
+output-filter rule of a channel (per-sample σ of white noise through the sensor's filter) is
+:func:`sensormodel.model.white_sample_std`.
+
+References: IEEE Std 952-1997 Annex C (Allan-variance forms of the terms; the floor factor);
+ARW = density for a two-sided density is common practice ("ARW [°/√h] =
 60 × density [°/s/√Hz]").
 """
 
 from __future__ import annotations
 
+import datetime
 import math
+import os
+import pathlib
 
-from .datasheet import FIELDS, AxisSpec, Datasheet
+from ._version import __version__
+from .datasheet import FIELDS, AxisSpec, Datasheet, load_datasheet
 from .errors import DatasheetError
+from .model import Channel, NoiseModel
+from .quantities import INSTRUMENT_KIND, SI_LABEL
 from .terms import (
+    FLICKER_FLOOR_FACTOR,
     Flicker,
     Quantization,
     Ramp,
@@ -36,92 +47,20 @@ from .terms import (
     RandomWalk,
     Term,
     White,
+    gauss_markov_from_floor,
 )
 
 __all__ = [
-    "FLOOR_FACTOR",
     "QUANTITY",
-    "noise_bandwidth",
-    "white_sample_std",
     "axis_terms",
-    "datasheet_to_model",
+    "build_model",
 ]
 
-#: Allan-deviation floor of flicker noise per unit coefficient, √(2 ln2/π) (IEEE Std 952 Annex C).
-FLOOR_FACTOR = math.sqrt(2.0 * math.log(2.0) / math.pi)
-
-#: instrument -> (channel quantity, SI unit of the channel)
-QUANTITY = {"gyro": ("angular_rate", "rad/s"), "accelerometer": ("acceleration", "m/s^2")}
-
-
-def noise_bandwidth(bandwidth: float, order: int = 1) -> float:
-    """Equivalent noise bandwidth of an n-th order Butterworth low-pass [Hz].
-
-    Parameters
-    ----------
-    bandwidth : float
-        The -3 dB frequency f_3dB [Hz].
-    order : int
-        Filter order n ≥ 1 (a single pole / RC is n = 1).
-
-    Returns
-    -------
-    float
-        ENBW = f_3dB · (π/(2n)) / sin(π/(2n)) [Hz], one-sided (positive frequencies):
-        π/2 · f_3dB for n = 1, π/(2√2) · f_3dB ≈ 1.1107 · f_3dB for n = 2.
-
-    References
-    ----------
-    S. Winder, "Analog and Digital Filter Design", 2nd ed., Newnes, Appendix A, Table A.3
-    ("Butterworth noise bandwidth", formula credited to A. B. Carlson).
-    """
-    if bandwidth <= 0 or not math.isfinite(bandwidth):
-        raise ValueError(f"{bandwidth=} must be a positive frequency in Hz")
-    if order < 1:
-        raise ValueError(f"{order=} must be >= 1")
-    x = math.pi / (2 * order)
-    return bandwidth * x / math.sin(x)
-
-
-def white_sample_std(
-    density: float,
-    sample_rate: float,
-    *,
-    bandwidth: float | None = None,
-    filter_order: int | None = None,
-) -> float:
-    """Standard deviation of one output sample of white noise of IEEE density ``density``.
-
-    Parameters
-    ----------
-    density : float
-        N [u·√s], two-sided PSD N² (IEEE Std 952 convention).
-    sample_rate : float
-        Output data rate [Hz].
-    bandwidth : float, optional
-        -3 dB bandwidth of the sensor's output filter [Hz]. Without it each sample is taken as
-        the average over its sample period (ENBW = rate/2).
-    filter_order : int, optional
-        Butterworth order of that filter (default 1).
-
-    Returns
-    -------
-    float
-        σ = N·√(2·ENBW) [u]; with no bandwidth, σ = N·√rate.
-
-    Notes
-    -----
-    The one-sided PSD is 2N², and noise through a filter of equivalent noise bandwidth B_e has
-    variance (one-sided PSD)·B_e = 2N²B_e (REFERENCES §0/§8; Winder, Table A.3). Sampling does
-    not change a variance, so B_e may exceed rate/2 (the excess aliases but still counts).
-    """
-    if not (sample_rate > 0 and math.isfinite(sample_rate)):
-        raise ValueError(f"{sample_rate=} must be a positive, finite rate in Hz")
-    if bandwidth is None:
-        enbw = sample_rate / 2.0
-    else:
-        enbw = noise_bandwidth(bandwidth, filter_order or 1)
-    return density * math.sqrt(2.0 * enbw)
+#: instrument -> (channel quantity, SI unit of the channel), from the tables of
+#: :mod:`sensormodel.quantities` (``INSTRUMENT_KIND``, ``SI_LABEL``).
+QUANTITY: dict[str, tuple[str, str]] = {
+    instrument: (kind, SI_LABEL[kind]) for instrument, kind in INSTRUMENT_KIND.items()
+}
 
 
 def _meta(ax: AxisSpec, key: str, basis: str, text: str, used: str) -> dict:
@@ -178,11 +117,9 @@ def axis_terms(ax: AxisSpec, *, basis: str = "typ") -> tuple[list[Term], list[st
         terms.append(White(density=n, bandwidth=band, filter_order=order, meta=white_meta))
     if "bias_instability" in values:
         b, text, used = pick("bias_instability")
-        floor = b if conv["bias_instability_is"] == "floor" else b * FLOOR_FACTOR
+        floor = b if conv["bias_instability_is"] == "floor" else b * FLICKER_FLOOR_FACTOR
         meta = _meta(ax, "bias_instability", basis, text, used)
         if "correlation_time" in values:
-            from .terms import gauss_markov_from_floor  # the peak constant is theory
-
             # a correlation time has no "worse" side: always the typical value
             t, t_text, _ = values["correlation_time"].pick("typ")
             if t <= 0:
@@ -194,7 +131,7 @@ def axis_terms(ax: AxisSpec, *, basis: str = "typ") -> tuple[list[Term], list[st
             meta["datasheet"]["correlation_time"] = t_text
             terms.append(gauss_markov_from_floor(floor, t, meta=meta))
         else:
-            terms.append(Flicker(coefficient=floor / FLOOR_FACTOR, meta=meta))
+            terms.append(Flicker(coefficient=floor / FLICKER_FLOOR_FACTOR, meta=meta))
     elif "correlation_time" in values:
         raise DatasheetError(
             "correlation_time without bias_instability",
@@ -227,13 +164,15 @@ def axis_terms(ax: AxisSpec, *, basis: str = "typ") -> tuple[list[Term], list[st
     return kept, notes
 
 
-def datasheet_to_model(ds: Datasheet, *, worst_case: bool = False):
-    """Convert a :class:`~sensormodel.datasheet.Datasheet` to a noise model.
+def build_model(
+    datasheet: Datasheet | str | os.PathLike[str], *, worst_case: bool = False
+) -> NoiseModel:
+    """The noise model of a datasheet (DESIGN §7: ``sensormodel.build_model``).
 
     Parameters
     ----------
-    ds : Datasheet
-        From :func:`sensormodel.load_datasheet`.
+    datasheet : Datasheet or path-like
+        A datasheet from :func:`sensormodel.load_datasheet`, or the path of its TOML file.
     worst_case : bool
         Use the datasheet's ``max`` column instead of ``typ`` (missing values fall back).
 
@@ -242,12 +181,7 @@ def datasheet_to_model(ds: Datasheet, *, worst_case: bool = False):
     NoiseModel
         One channel per instrument axis (``gyro.x`` … ``accelerometer.z``), all values SI.
     """
-    import datetime
-    import pathlib
-
-    from . import __version__
-    from .model import Channel, NoiseModel
-
+    ds = datasheet if isinstance(datasheet, Datasheet) else load_datasheet(datasheet)
     basis = "max" if worst_case else "typ"
     channels = []
     notes: list[str] = []

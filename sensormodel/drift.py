@@ -51,7 +51,7 @@ import numpy.typing as npt
 
 from .errors import AnalysisError
 from .export import CAUTION
-from .linear import _block_diag, propagate, stack
+from .linear import block_diag, propagate, stack
 
 __all__ = [
     "SCHEMA_ID",
@@ -401,10 +401,10 @@ def channel_drift(
     F[n, :n] = ss.H[0]
     if k == 2:
         F[n + 1, n] = 1.0  # position' = velocity
-    G = _block_diag([ss.G, np.zeros((k, 1))])
+    G = block_diag([ss.G, np.zeros((k, 1))])
     G[n, -1] = 1.0  # white noise enters the first integrator
-    Q = _block_diag([ss.Qc, np.full((1, 1), ss.white)])
-    P0 = _block_diag([ss.P0, np.zeros((k, k))])
+    Q = block_diag([ss.Qc, np.full((1, 1), ss.white)])
+    P0 = block_diag([ss.P0, np.zeros((k, k))])
     P = propagate(F, G, Q, P0, t)
     variances = {name: P[:, n + i, n + i].copy() for i, name in enumerate(outputs)}
     if ss.quantization:

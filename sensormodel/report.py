@@ -130,7 +130,7 @@ def term_rows(channel) -> list[TermRow]:
                     # the model's N is the IEEE (two-sided) density: say so beside the print
                     display += f" two-sided (printed one-sided: {ds.get('text', '')})"
                 if term.type == "flicker" and name == "coefficient":
-                    from .convert import FLOOR_FACTOR
+                    from .terms import FLICKER_FLOOR_FACTOR as FLOOR_FACTOR
 
                     floor = convert_from_si(value * FLOOR_FACTOR, kind, unit_text)
                     display += f" (Allan floor {format_value(floor, pretty)})"
