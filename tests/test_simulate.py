@@ -907,10 +907,10 @@ def test_run_path():
 @pytest.mark.parametrize(
     ("kwargs", "match"),
     [
-        ({"n": 0}, "n = 0"),
-        ({"n": 10, "rate": -1.0}, "rate = -1.0"),
-        ({"n": 10, "seed": -3}, "seed = -3"),
-        ({"n": 10, "flicker": "pink"}, "flicker method 'pink'"),
+        ({"n": 0}, r"^n: got 0; expected a whole number ≥ 1"),
+        ({"n": 10, "rate": -1.0}, r"^rate: got -1\.0 Hz; expected a finite sample rate"),
+        ({"n": 10, "seed": -3}, r"^seed: got -3; expected a whole number ≥ 0"),
+        ({"n": 10, "flicker": "pink"}, r"^flicker: got 'pink'; expected one of realization"),
     ],
 )
 def test_bad_arguments(kwargs, match):

@@ -11,6 +11,7 @@ import numpy as np
 import pytest
 from numpy.testing import assert_allclose
 from reference import ieee952 as ref
+from reference import units as units_ref
 
 from sensormodel.errors import AnalysisError
 from sensormodel.terms import (
@@ -399,5 +400,5 @@ def test_datasheet_floor_with_correlation_time_gives_matching_gauss_markov(write
 def test_floor_factor_is_ieee_952():
     # IEEE Std 952-1997 Annex C: flicker Allan-variance floor (2 ln2/pi) B², so the ADEV floor
     # is sqrt(2 ln2/pi) B = 0.6642824703 B (10 digits, REFERENCES §3).
-    assert FLICKER_FLOOR_FACTOR == pytest.approx(ref.FLOOR_FACTOR, rel=1e-10)
-    assert FLICKER_FLOOR_FACTOR**2 == pytest.approx(ref.FLOOR_FACTOR_SQUARED, rel=1e-9)
+    assert FLICKER_FLOOR_FACTOR == pytest.approx(units_ref.FLOOR_FACTOR, rel=1e-10)
+    assert FLICKER_FLOOR_FACTOR**2 == pytest.approx(units_ref.FLOOR_FACTOR_SQUARED, rel=1e-9)
