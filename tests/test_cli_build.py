@@ -282,7 +282,7 @@ def test_inspect_refuses_infinite_rate(runner, examples_dir, tmp_path):
         == 0
     )
     result = runner.invoke(cli, ["inspect", str(model), "--rate", "inf"])
-    assert_refused(result, "error: rate: got inf; expected a positive, finite rate in Hz")
+    assert_refused(result, "error: rate: got inf Hz; expected a finite sample rate > 0 Hz")
 
 
 def test_inspect_unknown_channel(runner, t900_model):
