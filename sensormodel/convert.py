@@ -63,9 +63,88 @@ QUANTITY: dict[str, tuple[str, str]] = {
 }
 
 
-def _meta(ax: AxisSpec, key: str, basis: str, text: str, used: str) -> dict:
-    meta = {"datasheet": {"field": ax.origin.get(key, key), "text": text, "column": used}}
-    return meta
+class _Column:
+    """Reads one datasheet column (``typ`` or ``max``) of an axis: each value with the
+    provenance ``meta`` of its term, noting where the other column had to stand in."""
+
+    def __init__(self, ax: AxisSpec, basis: str) -> None:
+        self.ax, self.basis = ax, basis
+        self.notes: list[str] = []
+
+    def pick(self, key: str) -> tuple[float, dict]:
+        ax = self.ax
+        value, text, used = ax.values[key].pick(self.basis)
+        if used != self.basis:
+            self.notes.append(
+                f"{ax.channel_id}: {ax.origin.get(key, key)} has no '{self.basis}' value; "
+                f"'{used}' ({text}) used"
+            )
+        meta = {"datasheet": {"field": ax.origin.get(key, key), "text": text, "column": used}}
+        return value, meta
+
+
+def _white_term(ax: AxisSpec, column: _Column) -> White | None:
+    """The white term (angle / velocity random walk or noise density), band-limited by a
+    stated output bandwidth (DESIGN §3)."""
+    values = ax.values
+    walk = "angle_random_walk" if ax.instrument == "gyro" else "velocity_random_walk"
+    if walk in values:
+        n, meta = column.pick(walk)
+    elif "noise_density" in values:
+        n, meta = column.pick("noise_density")
+        if ax.conventions["density_is"] == "one-sided":
+            n /= math.sqrt(2.0)
+            meta["datasheet"]["convention"] = "one-sided"
+    else:
+        return None
+    band = values["bandwidth"].pick("typ")[0] if "bandwidth" in values else None
+    order = (ax.filter_order or 1) if band is not None else None
+    if band is not None:
+        # where the band limit came from (the density's own field gives only N)
+        meta["datasheet"]["bandwidth_field"] = ax.origin.get("bandwidth", "bandwidth")
+        meta["datasheet"]["filter_order_field"] = (
+            "datasheet filter_order" if ax.filter_order else "not printed: 1-pole assumed"
+        )
+    return White(density=n, bandwidth=band, filter_order=order, meta=meta)
+
+
+def _bias_term(ax: AxisSpec, column: _Column) -> Term | None:
+    """Bias instability: flicker, or with a correlation time a Gauss-Markov bias whose Allan
+    peak equals the floor (:func:`~sensormodel.terms.gauss_markov_from_floor`)."""
+    values = ax.values
+    if "bias_instability" not in values:
+        if "correlation_time" in values:
+            raise DatasheetError(
+                "correlation_time without bias_instability",
+                "a bias_instability to go with the correlation time (together they make a "
+                "Gauss-Markov bias)",
+                field=ax.origin["correlation_time"],
+            )
+        return None
+    b, meta = column.pick("bias_instability")
+    is_floor = ax.conventions["bias_instability_is"] == "floor"
+    floor = b if is_floor else b * FLICKER_FLOOR_FACTOR
+    if "correlation_time" not in values:
+        return Flicker(coefficient=floor / FLICKER_FLOOR_FACTOR, meta=meta)
+    # a correlation time has no "worse" side: always the typical value
+    t, t_text, _ = values["correlation_time"].pick("typ")
+    if t <= 0:
+        raise DatasheetError(
+            "correlation_time is zero",
+            "a positive time such as '300 s'",
+            field=ax.origin["correlation_time"],
+        )
+    meta["datasheet"]["correlation_time"] = t_text
+    return gauss_markov_from_floor(floor, t, meta=meta)
+
+
+#: Datasheet keys that give a one-parameter term directly.
+_DIRECT = {
+    "rate_random_walk": RandomWalk,
+    "acceleration_random_walk": RandomWalk,
+    "rate_ramp": Ramp,
+    "bias_repeatability": RandomConstant,
+}
 
 
 def axis_terms(ax: AxisSpec, *, basis: str = "typ") -> tuple[list[Term], list[str]]:
@@ -78,83 +157,18 @@ def axis_terms(ax: AxisSpec, *, basis: str = "typ") -> tuple[list[Term], list[st
     basis : {"typ", "max"}
         Which datasheet column to use; a missing one falls back to the other (noted).
     """
-    fields = FIELDS[ax.instrument]
-    values = ax.values
-    conv = ax.conventions
-    terms: list[Term] = []
-    notes: list[str] = []
-
-    def pick(key: str) -> tuple[float, str, str]:
-        value, text, used = values[key].pick(basis)
-        if used != basis:
-            notes.append(
-                f"{ax.channel_id}: {ax.origin.get(key, key)} has no '{basis}' value; "
-                f"'{used}' ({text}) used"
-            )
-        return value, text, used
-
-    # a stated output bandwidth band-limits the white term (DESIGN §3; issue "coloured noise")
-    band = values["bandwidth"].pick("typ")[0] if "bandwidth" in values else None
-    order = (ax.filter_order or 1) if band is not None else None
-    walk = "angle_random_walk" if ax.instrument == "gyro" else "velocity_random_walk"
-    white_meta = None
-    if walk in values:
-        n, text, used = pick(walk)
-        white_meta = _meta(ax, walk, basis, text, used)
-    elif "noise_density" in values:
-        n, text, used = pick("noise_density")
-        white_meta = _meta(ax, "noise_density", basis, text, used)
-        if conv["density_is"] == "one-sided":
-            n /= math.sqrt(2.0)
-            white_meta["datasheet"]["convention"] = "one-sided"
-    if white_meta is not None:
-        if band is not None:
-            # where the band limit came from (the density's own field gives only N)
-            white_meta["datasheet"]["bandwidth_field"] = ax.origin.get("bandwidth", "bandwidth")
-            white_meta["datasheet"]["filter_order_field"] = (
-                "datasheet filter_order" if ax.filter_order else "not printed: 1-pole assumed"
-            )
-        terms.append(White(density=n, bandwidth=band, filter_order=order, meta=white_meta))
-    if "bias_instability" in values:
-        b, text, used = pick("bias_instability")
-        floor = b if conv["bias_instability_is"] == "floor" else b * FLICKER_FLOOR_FACTOR
-        meta = _meta(ax, "bias_instability", basis, text, used)
-        if "correlation_time" in values:
-            # a correlation time has no "worse" side: always the typical value
-            t, t_text, _ = values["correlation_time"].pick("typ")
-            if t <= 0:
-                raise DatasheetError(
-                    "correlation_time is zero",
-                    "a positive time such as '300 s'",
-                    field=ax.origin["correlation_time"],
-                )
-            meta["datasheet"]["correlation_time"] = t_text
-            terms.append(gauss_markov_from_floor(floor, t, meta=meta))
-        else:
-            terms.append(Flicker(coefficient=floor / FLICKER_FLOOR_FACTOR, meta=meta))
-    elif "correlation_time" in values:
-        raise DatasheetError(
-            "correlation_time without bias_instability",
-            "a bias_instability to go with the correlation time (together they make a "
-            "Gauss-Markov bias)",
-            field=ax.origin["correlation_time"],
-        )
-    simple = {
-        "rate_random_walk": RandomWalk,
-        "acceleration_random_walk": RandomWalk,
-        "rate_ramp": Ramp,
-        "bias_repeatability": RandomConstant,
-    }
-    for key, cls in simple.items():
-        if key in values and key in fields:
-            v, text, used = pick(key)
-            name = cls.parameter_names()[0]
-            terms.append(cls(**{name: v}, meta=_meta(ax, key, basis, text, used)))
-    if "quantization" in values:
-        q, text, used = pick("quantization")
-        if conv["quantization_is"] == "step":
+    column = _Column(ax, basis)
+    notes = column.notes
+    terms = [t for t in (_white_term(ax, column), _bias_term(ax, column)) if t is not None]
+    for key, cls in _DIRECT.items():
+        if key in ax.values and key in FIELDS[ax.instrument]:
+            v, meta = column.pick(key)
+            terms.append(cls(**{cls.parameter_names()[0]: v}, meta=meta))
+    if "quantization" in ax.values:
+        q, meta = column.pick("quantization")
+        if ax.conventions["quantization_is"] == "step":
             q /= math.sqrt(12.0)
-        terms.append(Quantization(coefficient=q, meta=_meta(ax, "quantization", basis, text, used)))
+        terms.append(Quantization(coefficient=q, meta=meta))
     kept = []
     for term in terms:
         if all(v == 0 for v in term.parameters().values() if v is not None):

@@ -35,8 +35,7 @@ The Gauss-Markov forms are derived (double integral of σ² e^(−|s|/T)). For d
 realization's band is widened to reach the horizon (longest time = max(longest_time or the
 default, horizon)), since integrated 1/f noise depends on its lowest frequency.
 
-Caution: navigation-integrity use of these numbers follows the applicable standards and the
-customer's contract.
+Every drift document carries the export caution (:data:`sensormodel.export.CAUTION`).
 """
 
 from __future__ import annotations

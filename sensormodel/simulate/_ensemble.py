@@ -72,21 +72,14 @@ def ensemble_statistics(
         The noise model.
     duration : float
         Length of each run [s].
-    rate : float, optional
-        Sample rate [Hz]; default the channels' common sample rate.
     runs : int
         Number of independent runs (≥ 2).
-    seed : int, optional
-        Seed of the ensemble (run r is the record of :func:`simulate` with ``run=r``).
     times : array_like, optional
         Instants [s] in (0, duration], rounded to whole samples; default 40 instants spaced
         logarithmically from one sample period to ``duration``.
-    flicker : {"realization", "power-law"}
-        Flicker method (module notes).
-    channels : sequence of str, optional
-        Channel ids (default all).
-    max_taps : int
-        Largest Kasdin-Walter filter length.
+    rate, seed, flicker, channels, max_taps
+        As for :class:`Simulator` (``seed`` is the ensemble's: run r is the record of
+        :func:`simulate` with ``run=r``).
     progress : callable, optional
         Called with the number of samples generated after each chunk.
 

@@ -79,29 +79,14 @@ def write_record(
         The noise model.
     n : int
         Samples per channel.
-    rate : float, optional
-        Sample rate [Hz] (default: the channels' common sample rate).
-    seed : int, optional
-        Seed (``None``: fresh entropy; read it back from the returned simulator).
-    run : int
-        Run index of a Monte Carlo ensemble: runs of one seed are independent records.
-    increments : bool
-        Increments per sample period [u·s] instead of rate samples (period means) [u].
-    flicker : {"realization", "power-law"}
-        Flicker method (module notes).
-    channels : sequence of str, optional
-        Channel ids to simulate (default all, in model order).
-    max_taps : int
-        Largest Kasdin-Walter filter length (``flicker="power-law"``).
+    rate, seed, run, increments, flicker, channels, max_taps, threads
+        As for :class:`Simulator` (read the seed back from the returned simulator).
     force : bool
         Overwrite an existing file.
     chunk : int
         Rows per write.
     progress : callable, optional
         Called with the number of rows written after each chunk.
-    threads : int, optional
-        Channels generated at once (default: one per available core); the record does not
-        depend on it.
     **writer_options
         Passed on to :func:`sensormodel.recording.open_writer` (``time_column``,
         ``start_time``).

@@ -244,7 +244,8 @@ def simulate(
     max_taps: int = DEFAULT_MAX_TAPS,
     threads: int | None = None,
 ) -> _FloatArray:
-    """A noise record of ``n`` samples per channel, in memory.
+    """A noise record of ``n`` samples per channel, in memory (DESIGN §7:
+    ``sensormodel.simulate(model, n, rate, seed)``).
 
     Parameters
     ----------
@@ -252,23 +253,12 @@ def simulate(
         The noise model.
     n : int
         Samples per channel.
-    rate : float, optional
-        Sample rate [Hz] (default: the channels' common sample rate).
-    seed : int, optional
-        Seed; the same seed gives the same record (``None``: fresh entropy).
-    run : int
-        Run index of a Monte Carlo ensemble: runs of one seed are independent records.
-    increments : bool
-        Increments per sample period [u·s] instead of rate samples (period means) [u].
-    flicker : {"realization", "power-law"}
-        Flicker method (module notes).
-    channels : sequence of str, optional
-        Channel ids to simulate (default all, in model order).
-    max_taps : int
-        Largest Kasdin-Walter filter length (``flicker="power-law"``).
-    threads : int, optional
-        Channels generated at once (default: one per available core); the record does not
-        depend on it.
+    rate, seed, run, increments, flicker, channels, max_taps, threads
+        As for :class:`Simulator`: rate [Hz] (default the channels' common sample rate), seed
+        (the same seed gives the same record; ``None``: fresh entropy), Monte Carlo run index,
+        increments [u·s] instead of period means [u], flicker method, channel ids (default
+        all, in model order), Kasdin-Walter filter length, threads (the record does not
+        depend on them).
 
     Returns
     -------
@@ -324,20 +314,10 @@ def simulate_ensemble(
         The noise model.
     n : int
         Samples per channel and run.
-    rate : float, optional
-        Sample rate [Hz] (default: the channels' common sample rate).
     runs : int
         Number of runs.
-    seed : int, optional
-        Seed of the ensemble.
-    increments : bool
-        Increments per sample period [u·s] instead of rate samples [u].
-    flicker : {"realization", "power-law"}
-        Flicker method (module notes).
-    channels : sequence of str, optional
-        Channel ids to simulate (default all).
-    max_taps : int
-        Largest Kasdin-Walter filter length.
+    rate, seed, increments, flicker, channels, max_taps
+        As for :class:`Simulator` (``seed`` is the ensemble's).
 
     Returns
     -------
