@@ -34,6 +34,7 @@ Each convention key may stand in ``[sensor]`` (all instruments) or in an instrum
 from __future__ import annotations
 
 import difflib
+import hashlib
 import math
 import os
 import pathlib
@@ -41,6 +42,7 @@ import tomllib
 from dataclasses import dataclass, field
 from typing import Any
 
+from ._io import validate
 from .errors import DatasheetError, ModelFileError, UnitError
 from .quantities import KINDS, parse_quantity
 
@@ -517,8 +519,6 @@ def load_datasheet(path: str | os.PathLike[str]) -> Datasheet:
         Naming the file and the offending key, e.g.
         ``survey.toml:gyro.angle_random_walk: got '0.1 1/h**0.5' ...``.
     """
-    import hashlib
-
     p = pathlib.Path(path)
     try:
         raw = p.read_bytes()
@@ -541,8 +541,6 @@ def load_datasheet(path: str | os.PathLike[str]) -> Datasheet:
         raise DatasheetError(
             f"not valid TOML ({msg})", "a TOML datasheet", source=str(p), field=line or None
         ) from None
-    from ._io import validate
-
     ds = parse_datasheet(data, source=str(p), sha256=hashlib.sha256(raw).hexdigest())
     try:
         validate(data, "datasheet.schema.json", source=str(p))

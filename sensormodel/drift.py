@@ -51,6 +51,7 @@ import numpy.typing as npt
 from .errors import AnalysisError
 from .export import CAUTION
 from .linear import block_diag, propagate, stack
+from .terms import DEFAULT_LONGEST_TIME, Flicker
 
 __all__ = [
     "SCHEMA_ID",
@@ -191,8 +192,6 @@ def default_times(
 
 
 def _drift_terms(terms: Sequence[Any], horizon: float) -> list[Any]:
-    from .terms import DEFAULT_LONGEST_TIME, Flicker
-
     out = []
     for t in terms:
         if isinstance(t, Flicker):

@@ -37,6 +37,7 @@ Choices made here, each documented at its class:
 from __future__ import annotations
 
 import math
+import warnings
 from collections.abc import Callable, Sequence
 from dataclasses import dataclass, field, fields
 from fractions import Fraction
@@ -1133,8 +1134,6 @@ def allan_variance_from_psd(
         S must be smooth beyond ``breakpoints`` (not oscillating in f, as the quantization PSD
         does; that term has its closed form).
     """
-    import warnings
-
     from scipy.integrate import IntegrationWarning, quad
 
     tau = positive_array(tau, "tau")
