@@ -131,7 +131,7 @@ class _ChannelGenerator(_Source):
                 _Quantization(math.sqrt(quant), dt, stream_rng(seed, run, cid, QUANT_SLOT))
             )
         # White noise, the terms' independent residuals and the stationary Gauss-Markov and
-        # flicker states: one innovation stream (module notes), or state by state if the
+        # flicker states: one innovation stream (package notes), or state by state if the
         # innovations form does not apply.
         design = None
         if white_var or stationary:

@@ -133,7 +133,7 @@ class Simulator:
         Deliver increments (integral over each sample period, [u·s]) instead of rate samples
         (period means, [u]).
     flicker : {"realization", "power-law"}
-        Flicker method (module notes).
+        Flicker method (package notes).
     channels : sequence of str, optional
         Channel ids to simulate (default all).
     max_taps : int
