@@ -17,18 +17,29 @@ rate ramp R                                ``ramp(slope=R)``
 bias repeatability σ                       ``random_constant(sigma=σ)``
 =========================================  ===================================================
 
-References: IEEE Std 952-1997 Annex C (Allan-variance forms of the terms; the floor factor
-√(2 ln2/π) ≈ 0.6643); ARW = density for a two-sided density is common practice ("ARW [°/√h] =
+The floor factor √(2 ln2/π) ≈ 0.6643 is :data:`sensormodel.terms.FLICKER_FLOOR_FACTOR`; the
+output-filter rule of a channel (per-sample σ of white noise through the sensor's filter) is
+:func:`sensormodel.model.white_sample_std`.
+
+References: IEEE Std 952-1997 Annex C (Allan-variance forms of the terms; the floor factor);
+ARW = density for a two-sided density is common practice ("ARW [°/√h] =
 60 × density [°/s/√Hz]").
 """
 
 from __future__ import annotations
 
+import datetime
 import math
+import os
+import pathlib
 
-from .datasheet import FIELDS, AxisSpec, Datasheet
+from ._version import __version__
+from .datasheet import FIELDS, AxisSpec, Datasheet, load_datasheet
 from .errors import DatasheetError
+from .model import Channel, NoiseModel
+from .quantities import INSTRUMENT_KIND, SI_LABEL
 from .terms import (
+    FLICKER_FLOOR_FACTOR,
     Flicker,
     Quantization,
     Ramp,
@@ -36,97 +47,104 @@ from .terms import (
     RandomWalk,
     Term,
     White,
+    gauss_markov_from_floor,
 )
 
 __all__ = [
-    "FLOOR_FACTOR",
     "QUANTITY",
-    "noise_bandwidth",
-    "white_sample_std",
     "axis_terms",
-    "datasheet_to_model",
+    "build_model",
 ]
 
-#: Allan-deviation floor of flicker noise per unit coefficient, √(2 ln2/π) (IEEE Std 952 Annex C).
-FLOOR_FACTOR = math.sqrt(2.0 * math.log(2.0) / math.pi)
-
-#: instrument -> (channel quantity, SI unit of the channel)
-QUANTITY = {"gyro": ("angular_rate", "rad/s"), "accelerometer": ("acceleration", "m/s^2")}
-
-
-def noise_bandwidth(bandwidth: float, order: int = 1) -> float:
-    """Equivalent noise bandwidth of an n-th order Butterworth low-pass [Hz].
-
-    Parameters
-    ----------
-    bandwidth : float
-        The -3 dB frequency f_3dB [Hz].
-    order : int
-        Filter order n ≥ 1 (a single pole / RC is n = 1).
-
-    Returns
-    -------
-    float
-        ENBW = f_3dB · (π/(2n)) / sin(π/(2n)) [Hz], one-sided (positive frequencies):
-        π/2 · f_3dB for n = 1, π/(2√2) · f_3dB ≈ 1.1107 · f_3dB for n = 2.
-
-    References
-    ----------
-    S. Winder, "Analog and Digital Filter Design", 2nd ed., Newnes, Appendix A, Table A.3
-    ("Butterworth noise bandwidth", formula credited to A. B. Carlson).
-    """
-    if bandwidth <= 0 or not math.isfinite(bandwidth):
-        raise ValueError(f"{bandwidth=} must be a positive frequency in Hz")
-    if order < 1:
-        raise ValueError(f"{order=} must be >= 1")
-    x = math.pi / (2 * order)
-    return bandwidth * x / math.sin(x)
+#: instrument -> (channel quantity, SI unit of the channel), from the tables of
+#: :mod:`sensormodel.quantities` (``INSTRUMENT_KIND``, ``SI_LABEL``).
+QUANTITY: dict[str, tuple[str, str]] = {
+    instrument: (kind, SI_LABEL[kind]) for instrument, kind in INSTRUMENT_KIND.items()
+}
 
 
-def white_sample_std(
-    density: float,
-    sample_rate: float,
-    *,
-    bandwidth: float | None = None,
-    filter_order: int | None = None,
-) -> float:
-    """Standard deviation of one output sample of white noise of IEEE density ``density``.
+class _Column:
+    """Reads one datasheet column (``typ`` or ``max``) of an axis: each value with the
+    provenance ``meta`` of its term, noting where the other column had to stand in."""
 
-    Parameters
-    ----------
-    density : float
-        N [u·√s], two-sided PSD N² (IEEE Std 952 convention).
-    sample_rate : float
-        Output data rate [Hz].
-    bandwidth : float, optional
-        -3 dB bandwidth of the sensor's output filter [Hz]. Without it each sample is taken as
-        the average over its sample period (ENBW = rate/2).
-    filter_order : int, optional
-        Butterworth order of that filter (default 1).
+    def __init__(self, ax: AxisSpec, basis: str) -> None:
+        self.ax, self.basis = ax, basis
+        self.notes: list[str] = []
 
-    Returns
-    -------
-    float
-        σ = N·√(2·ENBW) [u]; with no bandwidth, σ = N·√rate.
+    def pick(self, key: str) -> tuple[float, dict]:
+        ax = self.ax
+        value, text, used = ax.values[key].pick(self.basis)
+        if used != self.basis:
+            self.notes.append(
+                f"{ax.channel_id}: {ax.origin.get(key, key)} has no '{self.basis}' value; "
+                f"'{used}' ({text}) used"
+            )
+        meta = {"datasheet": {"field": ax.origin.get(key, key), "text": text, "column": used}}
+        return value, meta
 
-    Notes
-    -----
-    The one-sided PSD is 2N², and noise through a filter of equivalent noise bandwidth B_e has
-    variance (one-sided PSD)·B_e = 2N²B_e (REFERENCES §0/§8; Winder, Table A.3). Sampling does
-    not change a variance, so B_e may exceed rate/2 (the excess aliases but still counts).
-    """
-    if not (sample_rate > 0 and math.isfinite(sample_rate)):
-        raise ValueError(f"{sample_rate=} must be a positive, finite rate in Hz")
-    if bandwidth is None:
-        enbw = sample_rate / 2.0
+
+def _white_term(ax: AxisSpec, column: _Column) -> White | None:
+    """The white term (angle / velocity random walk or noise density), band-limited by a
+    stated output bandwidth (DESIGN §3)."""
+    values = ax.values
+    walk = "angle_random_walk" if ax.instrument == "gyro" else "velocity_random_walk"
+    if walk in values:
+        n, meta = column.pick(walk)
+    elif "noise_density" in values:
+        n, meta = column.pick("noise_density")
+        if ax.conventions["density_is"] == "one-sided":
+            n /= math.sqrt(2.0)
+            meta["datasheet"]["convention"] = "one-sided"
     else:
-        enbw = noise_bandwidth(bandwidth, filter_order or 1)
-    return density * math.sqrt(2.0 * enbw)
+        return None
+    band = values["bandwidth"].pick("typ")[0] if "bandwidth" in values else None
+    order = (ax.filter_order or 1) if band is not None else None
+    if band is not None:
+        # where the band limit came from (the density's own field gives only N)
+        meta["datasheet"]["bandwidth_field"] = ax.origin.get("bandwidth", "bandwidth")
+        meta["datasheet"]["filter_order_field"] = (
+            "datasheet filter_order" if ax.filter_order else "not printed: 1-pole assumed"
+        )
+    return White(density=n, bandwidth=band, filter_order=order, meta=meta)
 
 
-def _meta(ax: AxisSpec, key: str, basis: str, text: str, used: str) -> dict:
-    meta = {"datasheet": {"field": ax.origin.get(key, key), "text": text, "column": used}}
-    return meta
+def _bias_term(ax: AxisSpec, column: _Column) -> Term | None:
+    """Bias instability: flicker, or with a correlation time a Gauss-Markov bias whose Allan
+    peak equals the floor (:func:`~sensormodel.terms.gauss_markov_from_floor`)."""
+    values = ax.values
+    if "bias_instability" not in values:
+        if "correlation_time" in values:
+            raise DatasheetError(
+                "correlation_time without bias_instability",
+                "a bias_instability to go with the correlation time (together they make a "
+                "Gauss-Markov bias)",
+                field=ax.origin["correlation_time"],
+            )
+        return None
+    b, meta = column.pick("bias_instability")
+    is_floor = ax.conventions["bias_instability_is"] == "floor"
+    floor = b if is_floor else b * FLICKER_FLOOR_FACTOR
+    if "correlation_time" not in values:
+        return Flicker(coefficient=floor / FLICKER_FLOOR_FACTOR, meta=meta)
+    # a correlation time has no "worse" side: always the typical value
+    t, t_text, _ = values["correlation_time"].pick("typ")
+    if t <= 0:
+        raise DatasheetError(
+            "correlation_time is zero",
+            "a positive time such as '300 s'",
+            field=ax.origin["correlation_time"],
+        )
+    meta["datasheet"]["correlation_time"] = t_text
+    return gauss_markov_from_floor(floor, t, meta=meta)
+
+
+#: Datasheet keys that give a one-parameter term directly.
+_DIRECT = {
+    "rate_random_walk": RandomWalk,
+    "acceleration_random_walk": RandomWalk,
+    "rate_ramp": Ramp,
+    "bias_repeatability": RandomConstant,
+}
 
 
 def axis_terms(ax: AxisSpec, *, basis: str = "typ") -> tuple[list[Term], list[str]]:
@@ -139,85 +157,18 @@ def axis_terms(ax: AxisSpec, *, basis: str = "typ") -> tuple[list[Term], list[st
     basis : {"typ", "max"}
         Which datasheet column to use; a missing one falls back to the other (noted).
     """
-    fields = FIELDS[ax.instrument]
-    values = ax.values
-    conv = ax.conventions
-    terms: list[Term] = []
-    notes: list[str] = []
-
-    def pick(key: str) -> tuple[float, str, str]:
-        value, text, used = values[key].pick(basis)
-        if used != basis:
-            notes.append(
-                f"{ax.channel_id}: {ax.origin.get(key, key)} has no '{basis}' value; "
-                f"'{used}' ({text}) used"
-            )
-        return value, text, used
-
-    # a stated output bandwidth band-limits the white term (DESIGN §3; issue "coloured noise")
-    band = values["bandwidth"].pick("typ")[0] if "bandwidth" in values else None
-    order = (ax.filter_order or 1) if band is not None else None
-    walk = "angle_random_walk" if ax.instrument == "gyro" else "velocity_random_walk"
-    white_meta = None
-    if walk in values:
-        n, text, used = pick(walk)
-        white_meta = _meta(ax, walk, basis, text, used)
-    elif "noise_density" in values:
-        n, text, used = pick("noise_density")
-        white_meta = _meta(ax, "noise_density", basis, text, used)
-        if conv["density_is"] == "one-sided":
-            n /= math.sqrt(2.0)
-            white_meta["datasheet"]["convention"] = "one-sided"
-    if white_meta is not None:
-        if band is not None:
-            # where the band limit came from (the density's own field gives only N)
-            white_meta["datasheet"]["bandwidth_field"] = ax.origin.get("bandwidth", "bandwidth")
-            white_meta["datasheet"]["filter_order_field"] = (
-                "datasheet filter_order" if ax.filter_order else "not printed: 1-pole assumed"
-            )
-        terms.append(White(density=n, bandwidth=band, filter_order=order, meta=white_meta))
-    if "bias_instability" in values:
-        b, text, used = pick("bias_instability")
-        floor = b if conv["bias_instability_is"] == "floor" else b * FLOOR_FACTOR
-        meta = _meta(ax, "bias_instability", basis, text, used)
-        if "correlation_time" in values:
-            from .terms import gauss_markov_from_floor  # the peak constant is theory
-
-            # a correlation time has no "worse" side: always the typical value
-            t, t_text, _ = values["correlation_time"].pick("typ")
-            if t <= 0:
-                raise DatasheetError(
-                    "correlation_time is zero",
-                    "a positive time such as '300 s'",
-                    field=ax.origin["correlation_time"],
-                )
-            meta["datasheet"]["correlation_time"] = t_text
-            terms.append(gauss_markov_from_floor(floor, t, meta=meta))
-        else:
-            terms.append(Flicker(coefficient=floor / FLOOR_FACTOR, meta=meta))
-    elif "correlation_time" in values:
-        raise DatasheetError(
-            "correlation_time without bias_instability",
-            "a bias_instability to go with the correlation time (together they make a "
-            "Gauss-Markov bias)",
-            field=ax.origin["correlation_time"],
-        )
-    simple = {
-        "rate_random_walk": RandomWalk,
-        "acceleration_random_walk": RandomWalk,
-        "rate_ramp": Ramp,
-        "bias_repeatability": RandomConstant,
-    }
-    for key, cls in simple.items():
-        if key in values and key in fields:
-            v, text, used = pick(key)
-            name = cls.parameter_names()[0]
-            terms.append(cls(**{name: v}, meta=_meta(ax, key, basis, text, used)))
-    if "quantization" in values:
-        q, text, used = pick("quantization")
-        if conv["quantization_is"] == "step":
+    column = _Column(ax, basis)
+    notes = column.notes
+    terms = [t for t in (_white_term(ax, column), _bias_term(ax, column)) if t is not None]
+    for key, cls in _DIRECT.items():
+        if key in ax.values and key in FIELDS[ax.instrument]:
+            v, meta = column.pick(key)
+            terms.append(cls(**{cls.parameter_names()[0]: v}, meta=meta))
+    if "quantization" in ax.values:
+        q, meta = column.pick("quantization")
+        if ax.conventions["quantization_is"] == "step":
             q /= math.sqrt(12.0)
-        terms.append(Quantization(coefficient=q, meta=_meta(ax, "quantization", basis, text, used)))
+        terms.append(Quantization(coefficient=q, meta=meta))
     kept = []
     for term in terms:
         if all(v == 0 for v in term.parameters().values() if v is not None):
@@ -227,13 +178,15 @@ def axis_terms(ax: AxisSpec, *, basis: str = "typ") -> tuple[list[Term], list[st
     return kept, notes
 
 
-def datasheet_to_model(ds: Datasheet, *, worst_case: bool = False):
-    """Convert a :class:`~sensormodel.datasheet.Datasheet` to a noise model.
+def build_model(
+    datasheet: Datasheet | str | os.PathLike[str], *, worst_case: bool = False
+) -> NoiseModel:
+    """The noise model of a datasheet (DESIGN §7: ``sensormodel.build_model``).
 
     Parameters
     ----------
-    ds : Datasheet
-        From :func:`sensormodel.load_datasheet`.
+    datasheet : Datasheet or path-like
+        A datasheet from :func:`sensormodel.load_datasheet`, or the path of its TOML file.
     worst_case : bool
         Use the datasheet's ``max`` column instead of ``typ`` (missing values fall back).
 
@@ -242,12 +195,7 @@ def datasheet_to_model(ds: Datasheet, *, worst_case: bool = False):
     NoiseModel
         One channel per instrument axis (``gyro.x`` … ``accelerometer.z``), all values SI.
     """
-    import datetime
-    import pathlib
-
-    from . import __version__
-    from .model import Channel, NoiseModel
-
+    ds = datasheet if isinstance(datasheet, Datasheet) else load_datasheet(datasheet)
     basis = "max" if worst_case else "typ"
     channels = []
     notes: list[str] = []

@@ -34,6 +34,7 @@ Each convention key may stand in ``[sensor]`` (all instruments) or in an instrum
 from __future__ import annotations
 
 import difflib
+import hashlib
 import math
 import os
 import pathlib
@@ -41,6 +42,7 @@ import tomllib
 from dataclasses import dataclass, field
 from typing import Any
 
+from ._io import validate
 from .errors import DatasheetError, ModelFileError, UnitError
 from .quantities import KINDS, parse_quantity
 
@@ -303,6 +305,32 @@ def _check_equivalent(
             )
 
 
+@dataclass(frozen=True)
+class _Level:
+    """What one level of the datasheet (``[sensor]``, an instrument table, an axis override)
+    passes down to the next: parsed values with their origin, conventions, filter order."""
+
+    values: dict[str, SpecValue]
+    origin: dict[str, str]
+    conventions: dict[str, str]
+    filter_order: int | None
+
+    def below(
+        self, table: dict[str, Any], keys: list[str], instrument: str, where: str, source: str
+    ) -> _Level:
+        """This level overridden by ``table`` (the keys of ``FIELDS[instrument]`` it sets, its
+        conventions and filter order)."""
+        conventions = _conventions(table, self.conventions, where, source)
+        filter_order = _filter_order(table, self.filter_order, where, source)
+        values, origin = dict(self.values), dict(self.origin)
+        for key in keys:
+            if key in table:
+                at = f"{where}.{key}"
+                values[key] = _parse_spec(table[key], FIELDS[instrument][key].kind, at, source)
+                origin[key] = at
+        return _Level(values, origin, conventions, filter_order)
+
+
 def parse_datasheet(
     data: dict[str, Any], *, source: str = "<datasheet>", sha256: str = ""
 ) -> Datasheet:
@@ -324,6 +352,31 @@ def parse_datasheet(
     DatasheetError, UnitError
         With the file and the dotted key path of the offending field.
     """
+    sensor = _sensor_table(data, source)
+    axes = _axes(sensor["axes"], "sensor.axes", source) if "axes" in sensor else _AXES
+    base = _Level(
+        {},
+        {},
+        _conventions(sensor, {k: d for k, (_, d) in CONVENTIONS.items()}, "sensor", source),
+        _filter_order(sensor, None, "sensor", source),
+    )
+    for key in ("sample_rate", "bandwidth"):
+        if key in sensor:
+            base.values[key] = _parse_spec(sensor[key], "frequency", f"sensor.{key}", source)
+            base.origin[key] = f"sensor.{key}"
+    present = [name for name in INSTRUMENTS if name in data]
+    if not present:
+        raise DatasheetError(
+            "no instrument table", "a [gyro] and/or [accelerometer] table", source=source
+        )
+    instruments = {name: _instrument(name, data[name], base, axes, source) for name in present}
+    sensor_info = {k: sensor[k] for k in _SENSOR_TEXT_KEYS if k in sensor}
+    sensor_info["axes"] = list(axes)
+    return Datasheet(source=source, sensor=sensor_info, instruments=instruments, sha256=sha256)
+
+
+def _sensor_table(data: dict[str, Any], source: str) -> dict[str, Any]:
+    """The ``[sensor]`` table, checked (and no unknown top-level table)."""
     for key in data:
         if key not in ("sensor", *INSTRUMENTS):
             raise DatasheetError(
@@ -354,122 +407,96 @@ def parse_datasheet(
             raise DatasheetError(
                 f"got {sensor[key]!r}", "a text", source=source, field=f"sensor.{key}"
             )
-    axes = _axes(sensor["axes"], "sensor.axes", source) if "axes" in sensor else _AXES
-    base_conv = _conventions(sensor, {k: d for k, (_, d) in CONVENTIONS.items()}, "sensor", source)
-    base_order = _filter_order(sensor, None, "sensor", source)
-    base_values: dict[str, SpecValue] = {}
-    base_origin: dict[str, str] = {}
-    for key in ("sample_rate", "bandwidth"):
-        if key in sensor:
-            base_values[key] = _parse_spec(sensor[key], "frequency", f"sensor.{key}", source)
-            base_origin[key] = f"sensor.{key}"
-    instruments = {}
-    present = [name for name in INSTRUMENTS if name in data]
-    if not present:
-        raise DatasheetError(
-            "no instrument table", "a [gyro] and/or [accelerometer] table", source=source
-        )
-    for name in present:
-        table = data[name]
-        if not isinstance(table, dict):
-            raise DatasheetError(f"got {table!r}", "a table", source=source, field=name)
+    return sensor
+
+
+def _instrument(
+    name: str, table: Any, base: _Level, axes: tuple[str, ...], source: str
+) -> Instrument:
+    """One instrument table resolved per axis (the sensor's values below it)."""
+    if not isinstance(table, dict):
+        raise DatasheetError(f"got {table!r}", "a table", source=source, field=name)
+    keys = list(FIELDS[name])
+    _check_keys(table, [*keys, *CONVENTIONS, "filter_order", "axes", *_AXES], name, source)
+    inst_axes = _axes(table["axes"], f"{name}.axes", source) if "axes" in table else axes
+    level = base.below(table, keys, name, name, source)
+    per_axis = {}
+    for axis in inst_axes:
+        per_axis[axis] = _axis_spec(name, axis, table, level, source)
+        for axis_extra in _AXES:
+            if axis_extra in table and axis_extra not in inst_axes:
+                raise DatasheetError(
+                    f"an override for axis '{axis_extra}', which the sensor does not have",
+                    f"overrides only for axes {', '.join(inst_axes)}",
+                    source=source,
+                    field=f"{name}.{axis_extra}",
+                )
+        _check_axis(name, axis, table, per_axis[axis], source)
+    return Instrument(name, per_axis)
+
+
+def _axis_spec(
+    name: str, axis: str, table: dict[str, Any], level: _Level, source: str
+) -> AxisSpec:
+    """An axis of an instrument: the instrument's level with the axis override (if any)."""
+    if axis in table:
+        override = table[axis]
+        if not isinstance(override, dict):
+            raise DatasheetError(
+                f"got {override!r}",
+                "a table of per-axis values",
+                source=source,
+                field=f"{name}.{axis}",
+            )
         keys = list(FIELDS[name])
-        known = [*keys, *CONVENTIONS, "filter_order", "axes", *_AXES]
-        _check_keys(table, known, name, source)
-        inst_axes = _axes(table["axes"], f"{name}.axes", source) if "axes" in table else axes
-        conv = _conventions(table, base_conv, name, source)
-        order = _filter_order(table, base_order, name, source)
-        values = dict(base_values)
-        origin = dict(base_origin)
-        for key in keys:
-            if key in table:
-                values[key] = _parse_spec(
-                    table[key], FIELDS[name][key].kind, f"{name}.{key}", source
+        _check_keys(override, [*keys, *CONVENTIONS, "filter_order"], f"{name}.{axis}", source)
+        level = level.below(override, keys, name, f"{name}.{axis}", source)
+        for key in ("angle_random_walk", "velocity_random_walk", "noise_density"):
+            if key in override:
+                # an axis override of one replaces the instrument's other form
+                other = (
+                    {"noise_density"}
+                    if key != "noise_density"
+                    else {"angle_random_walk", "velocity_random_walk"}
                 )
-                origin[key] = f"{name}.{key}"
-        per_axis = {}
-        for axis in inst_axes:
-            ax_values = dict(values)
-            ax_origin = dict(origin)
-            ax_conv = conv
-            ax_order = order
-            override = table.get(axis, {})
-            if axis in table:
-                if not isinstance(override, dict):
-                    raise DatasheetError(
-                        f"got {override!r}",
-                        "a table of per-axis values",
-                        source=source,
-                        field=f"{name}.{axis}",
-                    )
-                _check_keys(
-                    override, [*keys, *CONVENTIONS, "filter_order"], f"{name}.{axis}", source
-                )
-                ax_conv = _conventions(override, conv, f"{name}.{axis}", source)
-                ax_order = _filter_order(override, order, f"{name}.{axis}", source)
-                for key in keys:
-                    if key in override:
-                        where = f"{name}.{axis}.{key}"
-                        ax_values[key] = _parse_spec(
-                            override[key], FIELDS[name][key].kind, where, source
-                        )
-                        ax_origin[key] = where
-                        if key in ("angle_random_walk", "velocity_random_walk", "noise_density"):
-                            # an axis override of one replaces the instrument's other form
-                            other = (
-                                {"noise_density"}
-                                if key != "noise_density"
-                                else {"angle_random_walk", "velocity_random_walk"}
-                            )
-                            for o in other:
-                                if o in ax_values and ax_origin.get(o, "").count(".") < 2:
-                                    ax_values.pop(o)
-                                    ax_origin.pop(o)
-            for axis_extra in _AXES:
-                if axis_extra in table and axis_extra not in inst_axes:
-                    raise DatasheetError(
-                        f"an override for axis '{axis_extra}', which the sensor does not have",
-                        f"overrides only for axes {', '.join(inst_axes)}",
-                        source=source,
-                        field=f"{name}.{axis_extra}",
-                    )
-            _check_equivalent(ax_values, ax_conv, name, ax_origin, source)
-            if "sample_rate" not in ax_values:
-                raise DatasheetError(
-                    "no sample_rate",
-                    "sample_rate in [sensor] or in the instrument table, e.g. '400 Hz'",
-                    source=source,
-                    field=f"{name}.sample_rate",
-                )
-            rate = ax_values["sample_rate"].typ or ax_values["sample_rate"].max
-            if not rate or rate <= 0:
+                for o in other:
+                    if o in level.values and level.origin.get(o, "").count(".") < 2:
+                        level.values.pop(o)
+                        level.origin.pop(o)
+    return AxisSpec(
+        name, axis, dict(level.values), level.conventions, level.filter_order, dict(level.origin)
+    )
+
+
+def _check_axis(
+    name: str, axis: str, table: dict[str, Any], spec: AxisSpec, source: str
+) -> None:
+    """Refuse an axis whose forms disagree, that lacks a positive sample rate (or has a zero
+    bandwidth) or that has no noise term."""
+    values, origin = spec.values, spec.origin
+    _check_equivalent(values, spec.conventions, name, origin, source)
+    if "sample_rate" not in values:
+        raise DatasheetError(
+            "no sample_rate",
+            "sample_rate in [sensor] or in the instrument table, e.g. '400 Hz'",
+            source=source,
+            field=f"{name}.sample_rate",
+        )
+    for key, what in (("sample_rate", "rate such as '400 Hz'"),
+                      ("bandwidth", "-3 dB bandwidth such as '100 Hz'")):  # fmt: skip
+        if key in values:
+            v = values[key].typ or values[key].max
+            if not v or v <= 0:
                 raise UnitError(
-                    "sample_rate is zero",
-                    "a positive rate such as '400 Hz'",
-                    source=source,
-                    field=ax_origin["sample_rate"],
+                    f"{key} is zero", f"a positive {what}", source=source, field=origin[key]
                 )
-            if "bandwidth" in ax_values:
-                bw = ax_values["bandwidth"].typ or ax_values["bandwidth"].max
-                if not bw or bw <= 0:
-                    raise UnitError(
-                        "bandwidth is zero",
-                        "a positive -3 dB bandwidth such as '100 Hz'",
-                        source=source,
-                        field=ax_origin["bandwidth"],
-                    )
-            if not any(FIELDS[name][k].term for k in ax_values if k in FIELDS[name]):
-                raise DatasheetError(
-                    "no noise term",
-                    "at least one of " + ", ".join(k for k, f in FIELDS[name].items() if f.term),
-                    source=source,
-                    field=f"{name}.{axis}" if axis in table else name,
-                )
-            per_axis[axis] = AxisSpec(name, axis, ax_values, ax_conv, ax_order, ax_origin)
-        instruments[name] = Instrument(name, per_axis)
-    sensor_info = {k: sensor[k] for k in _SENSOR_TEXT_KEYS if k in sensor}
-    sensor_info["axes"] = list(axes)
-    return Datasheet(source=source, sensor=sensor_info, instruments=instruments, sha256=sha256)
+    if not any(FIELDS[name][k].term for k in values if k in FIELDS[name]):
+        raise DatasheetError(
+            "no noise term",
+            "at least one of " + ", ".join(k for k, f in FIELDS[name].items() if f.term),
+            source=source,
+            field=f"{name}.{axis}" if axis in table else name,
+        )
 
 
 def load_datasheet(path: str | os.PathLike[str]) -> Datasheet:
@@ -492,8 +519,6 @@ def load_datasheet(path: str | os.PathLike[str]) -> Datasheet:
         Naming the file and the offending key, e.g.
         ``survey.toml:gyro.angle_random_walk: got '0.1 1/h**0.5' ...``.
     """
-    import hashlib
-
     p = pathlib.Path(path)
     try:
         raw = p.read_bytes()
@@ -516,8 +541,6 @@ def load_datasheet(path: str | os.PathLike[str]) -> Datasheet:
         raise DatasheetError(
             f"not valid TOML ({msg})", "a TOML datasheet", source=str(p), field=line or None
         ) from None
-    from ._io import validate
-
     ds = parse_datasheet(data, source=str(p), sha256=hashlib.sha256(raw).hexdigest())
     try:
         validate(data, "datasheet.schema.json", source=str(p))

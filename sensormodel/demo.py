@@ -26,7 +26,19 @@ from collections.abc import Callable
 from dataclasses import dataclass, field, replace
 from typing import Any
 
+from ._io import atomic_writer, check_writable, write_json
+from .acceptance import plan as make_plan
+from .acceptance import spec_limits, verify
+from .allan import SCHEMA_FILE, curves_to_json
+from .convert import build_model
+from .datasheet import Datasheet, load_datasheet
 from .errors import AnalysisError, SensorModelError
+from .model import NoiseModel
+from .quantities import convert_from_si, split_value
+from .recording import read_recording
+from .report import plan_text, verdict_text, write_verdict_html, write_verdict_json
+from .simulate import write_record
+from .terms import FLICKER_FLOOR_FACTOR
 
 __all__ = [
     "DEMO_DATASHEET",
@@ -96,7 +108,7 @@ def example_path(name: str) -> pathlib.Path:
     )
 
 
-def delivered_model(model: Any, datasheet: Any) -> tuple[Any, str]:
+def delivered_model(model: NoiseModel, datasheet: Datasheet) -> tuple[NoiseModel, str]:
     """The staged delivered unit: ``model`` with the :data:`DEVIATION` applied.
 
     The gyro.z flicker term gets the coefficient whose Allan floor is ``factor_of_max`` times
@@ -107,19 +119,15 @@ def delivered_model(model: Any, datasheet: Any) -> tuple[Any, str]:
     (NoiseModel, str)
         The model and a sentence describing the deviation.
     """
-    from .acceptance import spec_limits
-    from .quantities import convert_from_si, split_value
-
     cid, kind, factor = DEVIATION["channel"], DEVIATION["term"], DEVIATION["factor_of_max"]
     ax = next(a for a in datasheet.channels() if a.channel_id == cid)
     limits, _ = spec_limits(ax)
     spec = next(s for s in limits if s.type == kind)
     ch = model.channel(cid)
-    from .convert import FLOOR_FACTOR
-
     floor = factor * spec.limit
     terms = tuple(
-        replace(t, coefficient=floor / FLOOR_FACTOR) if t.type == kind else t for t in ch.terms
+        replace(t, coefficient=floor / FLICKER_FLOOR_FACTOR) if t.type == kind else t
+        for t in ch.terms
     )
     unit = split_value(spec.text)[1]
     shown = convert_from_si(floor, spec.kind, unit)
@@ -167,14 +175,6 @@ def run_demo(
     -------
     DemoResult
     """
-    from ._io import atomic_writer, check_writable
-    from .acceptance import plan as make_plan
-    from .acceptance import verify
-    from .datasheet import load_datasheet
-    from .model import NoiseModel
-    from .recording import read_recording
-    from .report import plan_text, verdict_text, write_verdict_html, write_verdict_json
-    from .simulate import write_record
 
     def say(text: str) -> None:
         if progress is not None:
@@ -183,43 +183,12 @@ def run_demo(
     if not (duration > 0 and rate > 0):
         raise AnalysisError(f"duration {duration!r} s, rate {rate!r} Hz", "positive numbers")
     folder = pathlib.Path(out)
-    if folder.exists() and not folder.is_dir():
-        raise AnalysisError("is a file", "a folder for the demo's output", source=str(folder))
-    folder.mkdir(parents=True, exist_ok=True)
-    files = {
-        "datasheet (copy of the bundled example)": folder / DEMO_DATASHEET,
-        "datasheet model": folder / "bw-t900-model.json",
-        "delivered unit (truth)": folder / "delivered-unit-model.json",
-        "recording": folder / "delivered-unit.npy",
-        "Allan deviation": folder / "allan.json",
-        "identified model": folder / "identified-model.json",
-        "verdict report (JSON)": folder / "verdict.json",
-        "plan": folder / "plan.txt",
-        "summary": folder / "verdict.txt",
-        "report (HTML)": folder / "report.html",
-    }
-    for p in files.values():
-        check_writable(p, force=force)
-    check_writable(files["recording"].with_name(files["recording"].name + ".json"), force=force)
+    files = _output_files(folder, force=force)
 
     timings: dict[str, float] = {}
     t0 = time.perf_counter()
     say(f"building the model of {DEMO_DATASHEET}")
-    sheet = files["datasheet (copy of the bundled example)"]
-    with atomic_writer(sheet, force=force, binary=True) as fh:
-        fh.write(example_path(DEMO_DATASHEET).read_bytes())
-    ds = load_datasheet(sheet)
-    model = NoiseModel.from_datasheet(ds)
-    model.save(files["datasheet model"], force=force)
-    delivered, staged = delivered_model(model, ds)
-    delivered = replace(
-        delivered,
-        provenance={
-            **delivered.provenance,
-            "notes": [*delivered.provenance.get("notes", []), f"demo: staged deviation: {staged}"],
-        },
-    )
-    delivered.save(files["delivered unit (truth)"], force=force)
+    ds, delivered, staged = _build(files, force=force)
     t0 = _timed(timings, "build", t0)
 
     n = int(round(duration * rate))
@@ -234,22 +203,7 @@ def run_demo(
 
     say("writing the reports")
     _write_analysis(report, files, force=force)
-    undecided = [t for ch in report.channels for t in ch.terms if t.verdict == "inconclusive"]
-    hours = rec.duration / 3600.0
-    intro = [
-        "Receiving inspection, survey boat Tern-4 (fictional): is the delivered Brackwater "
-        "Instruments BW-T900 (fictional) inside its datasheet? The unit was recorded at rest "
-        f"for {hours:.3g} h at {rate:g} Hz and the record is compared with the datasheet's "
-        "max values.",
-        f"This is the bundled demonstration: the record is simulated, and the unit was staged "
-        f"with one deviation: {staged}.",
-    ]
-    if undecided:
-        intro.append(
-            f"The demo record is short ({hours:.3g} h, so that the demo finishes in under a "
-            f"minute); that is why {len(undecided)} term(s) are inconclusive. The table gives "
-            "the record length that would decide each."
-        )
+    intro = _intro(report, rec.duration / 3600.0, rate, staged)
     report = report.with_notes(f"staged deviation (demo): {staged}")
     write_verdict_json(report, files["verdict report (JSON)"], force=force)
     pl = make_plan(ds)
@@ -268,19 +222,81 @@ def run_demo(
     return DemoResult(folder, out_files, report, pl, staged, timings)
 
 
-def _write_text(path: pathlib.Path, text: str, *, force: bool) -> None:
-    from ._io import atomic_writer
+def _output_files(folder: pathlib.Path, *, force: bool) -> dict[str, pathlib.Path]:
+    """The demo's output files in ``folder`` (created), each checked writable."""
+    if folder.exists() and not folder.is_dir():
+        raise AnalysisError("is a file", "a folder for the demo's output", source=str(folder))
+    folder.mkdir(parents=True, exist_ok=True)
+    files = {
+        "datasheet (copy of the bundled example)": folder / DEMO_DATASHEET,
+        "datasheet model": folder / "bw-t900-model.json",
+        "delivered unit (truth)": folder / "delivered-unit-model.json",
+        "recording": folder / "delivered-unit.npy",
+        "Allan deviation": folder / "allan.json",
+        "identified model": folder / "identified-model.json",
+        "verdict report (JSON)": folder / "verdict.json",
+        "plan": folder / "plan.txt",
+        "summary": folder / "verdict.txt",
+        "report (HTML)": folder / "report.html",
+    }
+    for p in files.values():
+        check_writable(p, force=force)
+    check_writable(files["recording"].with_name(files["recording"].name + ".json"), force=force)
+    return files
 
+
+def _build(
+    files: dict[str, pathlib.Path], *, force: bool
+) -> tuple[Datasheet, NoiseModel, str]:
+    """Copy the example datasheet, build and write its model and the staged delivered unit's.
+
+    Returns the datasheet, the delivered unit's model and the staged deviation in words."""
+    sheet = files["datasheet (copy of the bundled example)"]
+    with atomic_writer(sheet, force=force, binary=True) as fh:
+        fh.write(example_path(DEMO_DATASHEET).read_bytes())
+    ds = load_datasheet(sheet)
+    model = build_model(ds)
+    model.save(files["datasheet model"], force=force)
+    delivered, staged = delivered_model(model, ds)
+    delivered = replace(
+        delivered,
+        provenance={
+            **delivered.provenance,
+            "notes": [*delivered.provenance.get("notes", []), f"demo: staged deviation: {staged}"],
+        },
+    )
+    delivered.save(files["delivered unit (truth)"], force=force)
+    return ds, delivered, staged
+
+
+def _intro(report: Any, hours: float, rate: float, staged: str) -> list[str]:
+    """The HTML report's opening paragraphs: the scenario, the staging, and why terms are
+    undecided (the demo record is short)."""
+    undecided = [t for ch in report.channels for t in ch.terms if t.verdict == "inconclusive"]
+    intro = [
+        "Receiving inspection, survey boat Tern-4 (fictional): is the delivered Brackwater "
+        "Instruments BW-T900 (fictional) inside its datasheet? The unit was recorded at rest "
+        f"for {hours:.3g} h at {rate:g} Hz and the record is compared with the datasheet's "
+        "max values.",
+        f"This is the bundled demonstration: the record is simulated, and the unit was staged "
+        f"with one deviation: {staged}.",
+    ]
+    if undecided:
+        intro.append(
+            f"The demo record is short ({hours:.3g} h, so that the demo finishes in under a "
+            f"minute); that is why {len(undecided)} term(s) are inconclusive. The table gives "
+            "the record length that would decide each."
+        )
+    return intro
+
+
+def _write_text(path: pathlib.Path, text: str, *, force: bool) -> None:
     with atomic_writer(path, force=force) as fh:
         fh.write(text)
 
 
 def _write_analysis(report: Any, files: dict[str, pathlib.Path], *, force: bool) -> None:
     """Write the measured Allan curves and the identified model of every channel."""
-    from ._io import write_json
-    from .allan import SCHEMA_FILE, curves_to_json
-    from .model import NoiseModel
-
     curves = [ch.allan for ch in report.channels]
     write_json(files["Allan deviation"], curves_to_json(curves), force=force, schema=SCHEMA_FILE)
     try:

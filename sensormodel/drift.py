@@ -35,8 +35,7 @@ The Gauss-Markov forms are derived (double integral of σ² e^(−|s|/T)). For d
 realization's band is widened to reach the horizon (longest time = max(longest_time or the
 default, horizon)), since integrated 1/f noise depends on its lowest frequency.
 
-Caution: navigation-integrity use of these numbers follows the applicable standards and the
-customer's contract.
+Every drift document carries the export caution (:data:`sensormodel.export.CAUTION`).
 """
 
 from __future__ import annotations
@@ -51,7 +50,8 @@ import numpy.typing as npt
 
 from .errors import AnalysisError
 from .export import CAUTION
-from .linear import _block_diag, propagate, stack
+from .linear import block_diag, propagate, stack
+from .terms import DEFAULT_LONGEST_TIME, Flicker
 
 __all__ = [
     "SCHEMA_ID",
@@ -192,8 +192,6 @@ def default_times(
 
 
 def _drift_terms(terms: Sequence[Any], horizon: float) -> list[Any]:
-    from .terms import DEFAULT_LONGEST_TIME, Flicker
-
     out = []
     for t in terms:
         if isinstance(t, Flicker):
@@ -401,10 +399,10 @@ def channel_drift(
     F[n, :n] = ss.H[0]
     if k == 2:
         F[n + 1, n] = 1.0  # position' = velocity
-    G = _block_diag([ss.G, np.zeros((k, 1))])
+    G = block_diag([ss.G, np.zeros((k, 1))])
     G[n, -1] = 1.0  # white noise enters the first integrator
-    Q = _block_diag([ss.Qc, np.full((1, 1), ss.white)])
-    P0 = _block_diag([ss.P0, np.zeros((k, k))])
+    Q = block_diag([ss.Qc, np.full((1, 1), ss.white)])
+    P0 = block_diag([ss.P0, np.zeros((k, k))])
     P = propagate(F, G, Q, P0, t)
     variances = {name: P[:, n + i, n + i].copy() for i, name in enumerate(outputs)}
     if ss.quantization:

@@ -35,6 +35,7 @@ from typing import Any
 
 import numpy as np
 
+from ._io import atomic_path, atomic_writer, write_json
 from .errors import AnalysisError
 from .linear import DiscreteModel
 
@@ -185,8 +186,6 @@ def write_discrete(
     pathlib.Path
         The file written.
     """
-    from ._io import atomic_path, atomic_writer, write_json
-
     p = pathlib.Path(path)
     fmt = (fmt or p.suffix.lstrip(".")).lower()
     if fmt not in FORMATS:

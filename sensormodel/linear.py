@@ -23,7 +23,14 @@ This module provides
   exactly through the discrete form P ← Φ P Φᵀ + Qd;
 * :func:`discretize` — Φ, Qd, H, R, P0 of a channel at a filter step dt (:class:`DiscreteModel`);
 * the PSD and exact Allan variance of a realization (:meth:`StateSpace.psd`,
-  :meth:`StateSpace.allan_variance`), used to check each realization against its term.
+  :meth:`StateSpace.allan_variance`), used to check each realization against its term;
+* :func:`step_model` — the exact one-step law of a realization together with the mean of its
+  output over the step (what a sampled record delivers);
+* :func:`innovations_filter` — the steady-state Kalman predictor (innovations form) of a sum of
+  stationary first-order states and white noise: one white innovation through a filter with
+  the same autocovariance, as second-order sections and in parallel form.
+
+The simulator (:mod:`sensormodel.simulate`) runs these forms; the drift module propagates them.
 
 All arrays are SI: states in the channel unit u (rad/s, m/s²) or its integrals, times in s.
 """
@@ -31,28 +38,35 @@ All arrays are SI: states in the channel unit u (rad/s, m/s²) or its integrals,
 from __future__ import annotations
 
 import math
-from collections.abc import Sequence
-from dataclasses import dataclass
-from typing import TYPE_CHECKING, Any
+from collections.abc import Callable, Sequence
+from dataclasses import dataclass, replace
+from typing import Any, Protocol
 
 import numpy as np
 import numpy.typing as npt
 
 from .errors import AnalysisError
-
-if TYPE_CHECKING:  # pragma: no cover
-    from .terms import Term
+from .validate import positive_array
 
 __all__ = [
     "StateSpace",
     "DiscreteModel",
+    "Realizable",
     "R_CONVENTION",
     "R_CONVENTION_QUANTIZATION_IN_R",
+    "sided_factor",
+    "block_diag",
+    "covariance_factor",
     "stack",
     "van_loan",
     "steady_state_covariance",
     "propagate",
     "discretize",
+    "StepModel",
+    "step_model",
+    "InnovationsFilter",
+    "innovations_filter",
+    "INNOVATIONS_TOLERANCE",
 ]
 
 #: The meaning of R written into every exported discrete model (DESIGN §10).
@@ -105,7 +119,8 @@ def _system(F: Any, G: Any, Qc: Any) -> tuple[_FloatArray, _FloatArray, _FloatAr
     return F, G, Qc
 
 
-def _block_diag(blocks: Sequence[_FloatArray]) -> _FloatArray:
+def block_diag(blocks: Sequence[_FloatArray]) -> _FloatArray:
+    """The block-diagonal matrix of ``blocks`` (2-D arrays, any shapes), zeros elsewhere."""
     rows = sum(b.shape[0] for b in blocks)
     cols = sum(b.shape[1] for b in blocks)
     out = np.zeros((rows, cols))
@@ -196,8 +211,8 @@ class StateSpace:
             act through P0 only). Quantization adds (4Q²/τ0)·sin²(πfτ0) with τ0 = 1/sample_rate
             (IEEE Std 952 Annex C), for f below the Nyquist frequency.
         """
-        f = _positive_array(f, "f")
-        factor = _sided_factor(sided)
+        f = positive_array(f, "f")
+        factor = sided_factor(sided)
         s = np.full(f.shape, self.white)
         if self.n:
             w = 2.0 * np.pi * f.ravel()
@@ -235,16 +250,16 @@ class StateSpace:
         ndarray
             Allan variance [u²].
         """
-        tau = _positive_array(tau, "tau")
+        tau = positive_array(tau, "tau")
         n = self.n
         Fa_minus = np.zeros((n + 1, n + 1))
         Fa_minus[:n, :n] = self.F
         Fa_minus[n, :n] = -self.H[0]
         Fa_plus = Fa_minus.copy()
         Fa_plus[n, :n] = self.H[0]
-        Ga = _block_diag([self.G, np.ones((1, 1))])
-        Qa = _block_diag([self.Qc, np.full((1, 1), self.white)])
-        Pa = _block_diag([self.P0, np.zeros((1, 1))])
+        Ga = block_diag([self.G, np.ones((1, 1))])
+        Qa = block_diag([self.Qc, np.full((1, 1), self.white)])
+        Pa = block_diag([self.P0, np.zeros((1, 1))])
         out = np.empty(tau.size)
         for i, t in enumerate(tau.ravel()):
             phi, qd = van_loan(Fa_minus, Ga, Qa, float(t))
@@ -258,17 +273,14 @@ class StateSpace:
         return out
 
 
-def _positive_array(x: npt.ArrayLike, name: str) -> _FloatArray:
-    a = np.asarray(x, dtype=float)
-    if a.size == 0:
-        raise AnalysisError(f"{name} is empty", f"at least one {name} value")
-    if not np.all(np.isfinite(a)) or np.any(a <= 0):
-        bad = a[~(np.isfinite(a) & (a > 0))].ravel()[0]
-        raise AnalysisError(f"{name} contains {bad!r}", f"positive, finite values of {name}")
-    return a
+def sided_factor(sided: str) -> float:
+    """The factor of a ``sided`` PSD over the two-sided one (IEEE Std 952 convention).
 
-
-def _sided_factor(sided: str) -> float:
+    Parameters
+    ----------
+    sided : {"two-sided", "one-sided"}
+        Two-sided (1.0) or one-sided (2.0: the power of −f folded onto f, as Welch returns it).
+    """
     if sided == "two-sided":
         return 1.0
     if sided == "one-sided":
@@ -276,12 +288,20 @@ def _sided_factor(sided: str) -> float:
     raise AnalysisError(f"sided = {sided!r}", "'two-sided' or 'one-sided'")
 
 
-def stack(terms: Sequence[Term], *, sample_rate: float | None = None) -> StateSpace:
+class Realizable(Protocol):
+    """Anything with a finite realization: the noise terms of :mod:`sensormodel.terms`."""
+
+    def state_space(self, *, sample_rate: float | None = None) -> StateSpace:
+        """The term's realization (F, G, Qc, H, P0) at the channel's rate [Hz]."""
+        ...  # pragma: no cover
+
+
+def stack(terms: Sequence[Realizable], *, sample_rate: float | None = None) -> StateSpace:
     """Stack a channel's terms into one block-diagonal system (their outputs add).
 
     Parameters
     ----------
-    terms : sequence of Term
+    terms : sequence of Realizable
         The channel's noise terms (:mod:`sensormodel.terms`).
     sample_rate : float, optional
         The channel's output rate [Hz]; needed by flicker (realization band) and quantization.
@@ -302,11 +322,11 @@ def stack(terms: Sequence[Term], *, sample_rate: float | None = None) -> StateSp
             names.append(name)
     n = sum(p.n for p in parts)
     return StateSpace(
-        F=_block_diag([p.F for p in parts]) if parts else np.zeros((0, 0)),
-        G=_block_diag([p.G for p in parts]) if parts else np.zeros((0, 0)),
-        Qc=_block_diag([p.Qc for p in parts]) if parts else np.zeros((0, 0)),
+        F=block_diag([p.F for p in parts]) if parts else np.zeros((0, 0)),
+        G=block_diag([p.G for p in parts]) if parts else np.zeros((0, 0)),
+        Qc=block_diag([p.Qc for p in parts]) if parts else np.zeros((0, 0)),
         H=np.concatenate([p.H for p in parts], axis=1) if n else np.zeros((1, 0)),
-        P0=_block_diag([p.P0 for p in parts]) if parts else np.zeros((0, 0)),
+        P0=block_diag([p.P0 for p in parts]) if parts else np.zeros((0, 0)),
         states=tuple(names),
         white=sum(p.white for p in parts),
         quantization=sum(p.quantization for p in parts),
@@ -579,8 +599,6 @@ class DiscreteModel:
 def _unfiltered(term: Any) -> Any:
     """A band-limited white term without its output filter (others unchanged)."""
     if getattr(term, "type", "") == "white" and getattr(term, "bandwidth", None) is not None:
-        from dataclasses import replace
-
         return replace(term, bandwidth=None, filter_order=None)
     return term
 
@@ -625,9 +643,9 @@ def discretize(source: Any, dt: float, *, quantization: str = "states") -> Discr
     convention = R_CONVENTION
     if ss.quantization and quantization == "states":
         q2 = ss.quantization
-        phi = _block_diag([phi, np.array([[0.0, 0.0], [1.0, 0.0]])])
-        qd = _block_diag([qd, np.diag([q2, 0.0])])
-        p0 = _block_diag([p0, np.diag([q2, q2])])
+        phi = block_diag([phi, np.array([[0.0, 0.0], [1.0, 0.0]])])
+        qd = block_diag([qd, np.diag([q2, 0.0])])
+        p0 = block_diag([p0, np.diag([q2, q2])])
         h = np.concatenate([h, [[1.0 / dt, -1.0 / dt]]], axis=1)
         states += ["quantization.e[k]", "quantization.e[k-1]"]
     elif ss.quantization:
@@ -643,3 +661,491 @@ def discretize(source: Any, dt: float, *, quantization: str = "states") -> Discr
         p0=p0,
         r_convention=convention,
     )
+
+
+# -- the exact one-step law of a sampled realization ------------------------------------------
+
+
+@dataclass(frozen=True)
+class StepModel:
+    """The exact one-step law of a realization and the mean of its output over the step.
+
+    ``x_{k+1} = Φ x_k + w_k``, cov(w_k) = ``qxx``; the output's mean over the step is
+    ``ȳ_k = gamma · x_k + c · w_k + e_k`` with e_k independent of w_k, var(e_k) = ``residual``.
+
+    Attributes
+    ----------
+    phi : ndarray, shape (n, n)
+        Transition matrix e^{F dt}.
+    gamma : ndarray, shape (n,)
+        (1/dt) H ∫₀^dt e^{Fs} ds: the mean output over the step due to x_k.
+    qxx : ndarray, shape (n, n)
+        Covariance of the state noise w_k [state units²].
+    c : ndarray, shape (n,)
+        Regression of the step's output-mean noise on w_k (Qxx⁻¹ q_xa).
+    residual : float
+        Variance of the part of the output-mean noise independent of w_k [u²].
+    dt : float
+        Step [s].
+    """
+
+    phi: _FloatArray
+    gamma: _FloatArray
+    qxx: _FloatArray
+    c: _FloatArray
+    residual: float
+    dt: float
+
+
+def step_model(
+    F: npt.ArrayLike, G: npt.ArrayLike, Qc: npt.ArrayLike, H: npt.ArrayLike, dt: float
+) -> StepModel:
+    """Exact discretization of a realization together with the mean of its output over a step.
+
+    The system dx/dt = F x + G w (E[w wᵀ] = Qc δ, two-sided), y = H x is augmented with
+    a' = H x / dt, a(0) = 0, and discretized over dt with Van Loan's method
+    (:func:`van_loan`): a(dt) is the mean of y over the step. The joint
+    Gaussian law of (x_{k+1}, a) given x_k is split into the regression of a on the state noise
+    and an independent residual (the conditional Gaussian).
+
+    Parameters
+    ----------
+    F, G, Qc : array_like
+        As in :func:`van_loan`.
+    H : array_like, shape (1, n)
+        Output matrix.
+    dt : float
+        Step [s], positive.
+
+    Returns
+    -------
+    StepModel
+    """
+    F = np.atleast_2d(np.asarray(F, dtype=float))
+    G = np.atleast_2d(np.asarray(G, dtype=float))
+    Qc = np.atleast_2d(np.asarray(Qc, dtype=float))
+    H = np.asarray(H, dtype=float).reshape(1, -1)
+    n = F.shape[0]
+    Fa = np.zeros((n + 1, n + 1))
+    Fa[:n, :n] = F
+    Fa[n, :n] = H[0] / dt
+    Ga = np.zeros((n + 1, G.shape[1]))
+    Ga[:n] = G
+    phi_a, qd_a = van_loan(Fa, Ga, Qc, dt)
+    qxx = qd_a[:n, :n]
+    qxa = qd_a[:n, n]
+    qaa = float(qd_a[n, n])
+    if n and np.any(qxx):
+        c = np.linalg.lstsq(qxx, qxa, rcond=1e-13)[0]
+        residual = qaa - float(qxa @ c)
+    else:
+        c = np.zeros(n)
+        residual = qaa
+    # The residual is a variance; rounding can leave a tiny negative value when it is ~0.
+    residual = max(residual, 0.0)
+    return StepModel(
+        phi=phi_a[:n, :n].copy(),
+        gamma=phi_a[n, :n].copy(),
+        qxx=qxx,
+        c=c,
+        residual=residual,
+        dt=float(dt),
+    )
+
+
+def covariance_factor(m: _FloatArray) -> _FloatArray:
+    """A square root L (L Lᵀ = m) of a symmetric positive semi-definite matrix (a covariance).
+
+    Diagonal matrices get the elementwise root; others the symmetric eigen-decomposition
+    U √Λ, negative rounding-level eigenvalues clipped to 0 (a Cholesky factor would refuse a
+    singular covariance, as random walks starting at zero have)."""
+    if m.size == 0:
+        return m.copy()
+    if np.count_nonzero(m - np.diag(np.diag(m))) == 0:
+        return np.diag(np.sqrt(np.clip(np.diag(m), 0.0, None)))
+    lam, u = np.linalg.eigh(0.5 * (m + m.T))
+    return u * np.sqrt(np.clip(lam, 0.0, None))
+
+
+# -- the stationary part of a channel as one innovation stream --------------------------------
+
+
+@dataclass(frozen=True)
+class InnovationsFilter:
+    """One channel's stationary Gaussian part as a single innovation stream through a filter.
+
+    The output is ``std · H(z) ε`` with ε unit white and H(z) = Π_k N_k(z⁻¹)/D_k(z⁻¹) the
+    second-order sections ``sos`` (each b₀ = a₀ = 1); the filter's state starts from its
+    stationary law (covariance factor ``init``), so the record is stationary from its first
+    sample.
+
+    Attributes
+    ----------
+    std : float
+        √Λ, the standard deviation of the innovation [u].
+    sos : ndarray, shape (n_sections, 6) or (0, 6)
+        Second-order sections as :func:`scipy.signal.sosfilt` takes them (none: white only).
+    init : ndarray, shape (m, m)
+        A square root of the stationary covariance of the filter's state, in units of the
+        innovation (the state is ``std · init @ z``, z unit normals).
+    state_index : ndarray of int, shape (m,)
+        Positions (in the flattened (n_sections, 2) state) of the m states that can be non-zero.
+    poles, zeros : ndarray
+        The poles (eigenvalues of Φ) and zeros of H (ascending).
+    spectrum_error : float
+        Largest relative difference between the filter's spectrum and the model's, over the
+        check frequencies (from 1/100 of the slowest pole's bandwidth to Nyquist).
+    variance_error : float
+        Relative difference of the filter's stationary output variance and the model's.
+    gains : ndarray, shape (m,)
+        The same H in parallel form, H(z) = 1 + Σᵢ gᵢ/(z − pᵢ) (``poles`` pᵢ): one first-order
+        state per pole, s_i' = pᵢ s_i + gᵢ ε, output ε + Σᵢ s_i (units of the innovation).
+    parallel_init : ndarray, shape (m, m)
+        A square root of the stationary covariance of those states, in units of the innovation
+        (the states are ``std · parallel_init @ z``; ``init`` maps the same z to the sections).
+    parallel_error : float
+        As ``spectrum_error``, for the parallel form.
+    """
+
+    std: float
+    sos: _FloatArray
+    init: _FloatArray
+    state_index: npt.NDArray[np.intp]
+    poles: _FloatArray
+    zeros: _FloatArray
+    spectrum_error: float
+    variance_error: float
+    gains: _FloatArray
+    parallel_init: _FloatArray
+    parallel_error: float
+
+
+#: Accepted relative error of the innovations filter's spectrum against the model's (or the
+#: float64 resolution of the slowest pole, 16 ε/(1 − p), when that is coarser).
+INNOVATIONS_TOLERANCE = 1e-7
+
+
+def innovations_filter(
+    phi: npt.ArrayLike,
+    gamma: npt.ArrayLike,
+    qxx: npt.ArrayLike,
+    c: npt.ArrayLike,
+    white: float,
+) -> InnovationsFilter | None:
+    """The innovations form of a sum of stationary first-order states and white noise.
+
+    The period means of the channel's stationary terms (states with Φ = diag(p), 0 < p < 1,
+    x_{k+1} = Φ x_k + w_k, ȳ_k = γ·x_k + c·w_k + e_k, cov w = Qxx, e white of variance
+    ``white``: the white term and the terms' independent residuals) form a stationary Gaussian
+    sequence with autocovariance C(0) = γΣγᵀ + R, C(j) = γΦ^{j−1}M (Σ = ΦΣΦ + Qxx, R = cᵀQxx c
+    + white, M = ΦΣγᵀ + Qxx c). The steady-state Kalman predictor gives an innovations model
+    x̂_{k+1} = Φx̂_k + Kε_k, ȳ_k = γx̂_k + ε_k, var ε = Λ, whose output has *the same*
+    autocovariance when x̂ starts from its stationary covariance Σ − P, P the stabilizing
+    solution of the discrete algebraic Riccati equation (B. D. O. Anderson and J. B. Moore,
+    "Optimal Filtering", Prentice-Hall 1979, ch. 9; the stationary-covariance identities are
+    checked here). One Gaussian stream then drives the whole stationary part instead of one
+    per state. Its transfer function H(z) = 1 + Σᵢ gᵢ/(z − pᵢ), gᵢ = γᵢKᵢ, has its zeros
+    between consecutive poles (gᵢ > 0); they are found one by one from the secular equation
+    in the offset t = pᵢ − z (relative accuracy), and H runs as second-order sections pairing
+    the slowest remaining pole with the fastest (well separated poles keep the section
+    coefficients well conditioned).
+
+    The filter is checked against the model: its spectrum Λ|H|² against the model's
+    Σ_j C(j) e^{−iωj} at 200 frequencies, and its stationary output variance against C(0).
+
+    Parameters
+    ----------
+    phi : array_like, shape (n,)
+        Pole of each state, e^{−dt/T} (0 < p < 1).
+    gamma : array_like, shape (n,)
+        Mean-output gain of each state.
+    qxx : array_like, shape (n, n)
+        Covariance of the state noise over a step.
+    c : array_like, shape (n,)
+        Regression of the step's output-mean noise on the state noise.
+    white : float
+        Variance of the independent white part of the period mean [u²].
+
+    Returns
+    -------
+    InnovationsFilter or None
+        ``None`` when the construction does not apply (repeated or non-positive weights, a
+        failed check): the caller then simulates state by state.
+    """
+    p = np.asarray(phi, dtype=float).ravel()
+    g_ = np.asarray(gamma, dtype=float).ravel()
+    Q = np.asarray(qxx, dtype=float)
+    cc = np.asarray(c, dtype=float).ravel()
+    if p.size == 0:
+        return _white_innovations(white)
+    if not (np.all(p > 0) and np.all(p < 1) and np.all(np.isfinite(Q))):
+        return None
+    auto = _Autocovariance.of(p, g_, Q, cc, white)
+    if auto is None:
+        return None
+    predictor = _steady_state_predictor(p, g_, Q, auto)
+    if predictor is None:
+        return None
+    K, lam = predictor  # lam in units of C(0)
+    # Equal poles (e.g. two Gauss-Markov terms of one time constant) act as one.
+    poles, inv = np.unique(p, return_inverse=True)
+    g = np.bincount(inv, weights=g_ * K)
+    if not np.all(g > 0):
+        return None
+    zeros = _secular_zeros(poles, g)
+    if zeros is None:
+        return None
+    sos = _pair_sections(poles, zeros)
+    start = _stationary_start(sos, poles, g)
+    if start is None:
+        return None
+    init, index, root, var_u = start
+    # the output variance Λ(1 + Σ cov(u)/Λ) against C(0) (= 1 in these units)
+    var_err = abs(lam * (1.0 + var_u) - 1.0)
+    spec_err, par_err = _spectrum_errors(p, g_, auto, lam, sos, poles, g)
+    tol = max(INNOVATIONS_TOLERANCE, 16 * np.finfo(float).eps / float(1.0 - poles[-1]))
+    if not (spec_err <= tol and var_err <= tol and par_err <= tol):
+        return None
+    return InnovationsFilter(
+        std=math.sqrt(lam * auto.c0),
+        sos=sos,
+        init=init,
+        state_index=index,
+        poles=poles,
+        zeros=zeros,
+        spectrum_error=spec_err,
+        variance_error=var_err,
+        gains=g,
+        parallel_init=root,
+        parallel_error=par_err,
+    )
+
+
+def _white_innovations(white: float) -> InnovationsFilter | None:
+    """White noise alone: the innovation is the output (no sections, no states)."""
+    if not white > 0:
+        return None
+    empty = np.zeros((0, 6))
+    return InnovationsFilter(
+        math.sqrt(white), empty, np.zeros((0, 0)), np.zeros(0, np.intp),
+        np.zeros(0), np.zeros(0), 0.0, 0.0, np.zeros(0), np.zeros((0, 0)), 0.0,
+    )  # fmt: skip
+
+
+@dataclass(frozen=True)
+class _Autocovariance:
+    """C(0) = γΣγᵀ + R and C(j) = γΦ^{j−1}M of the period means (see
+    :func:`innovations_filter`), with Σ the states' stationary covariance and S = Qxx c."""
+
+    sigma: _FloatArray
+    s: _FloatArray
+    r: float
+    c0: float
+    m: _FloatArray
+
+    @classmethod
+    def of(
+        cls, p: _FloatArray, g: _FloatArray, Q: _FloatArray, c: _FloatArray, white: float
+    ) -> _Autocovariance | None:
+        sigma = Q / (1.0 - np.outer(p, p))
+        S = Q @ c
+        R = float(c @ S) + float(white)
+        C0 = float(g @ sigma @ g) + R
+        M = p * (sigma @ g) + S
+        if not (C0 > 0 and R > 0):
+            return None
+        return cls(sigma=sigma, s=S, r=R, c0=C0, m=M)
+
+
+def _steady_state_predictor(
+    p: _FloatArray, g: _FloatArray, Q: _FloatArray, auto: _Autocovariance
+) -> tuple[_FloatArray, float] | None:
+    """Kalman gain K and innovation variance Λ (in units of C(0)) of the steady-state
+    predictor: the stabilizing solution of the discrete algebraic Riccati equation
+    (:func:`scipy.linalg.solve_discrete_are`), polished by Newton steps on the equation in
+    Σ − P (its derivative is the closed-loop Lyapunov operator)."""
+    import scipy.linalg as sl
+
+    s0 = auto.c0  # scale: the Riccati equation in units of the output variance
+    Ph = np.diag(p)
+    try:
+        P = sl.solve_discrete_are(
+            Ph, g[:, None], Q / s0, np.array([[auto.r / s0]]), s=auto.s[:, None] / s0
+        )
+    except (np.linalg.LinAlgError, ValueError):
+        return None
+    Sh = auto.sigma / s0 - P  # stationary covariance of the predictor state, scaled
+    Mn, C0n = auto.m / s0, auto.c0 / s0
+
+    def faurre(sh: _FloatArray) -> tuple[_FloatArray, _FloatArray, float]:
+        lam = C0n - float(g @ sh @ g)
+        k = (Mn - p * (sh @ g)) / lam
+        return Ph @ sh @ Ph + lam * np.outer(k, k) - sh, k, lam
+
+    for _ in range(3):
+        res, K, lam = faurre(Sh)
+        A = Ph - np.outer(K, g)
+        try:
+            Sh = Sh + sl.solve_discrete_lyapunov(A, res)
+        except (np.linalg.LinAlgError, ValueError):
+            return None
+        Sh = 0.5 * (Sh + Sh.T)
+    _, K, lam = faurre(Sh)
+    if not (lam > 0 and np.all(np.isfinite(K))):
+        return None
+    return K, lam
+
+
+def _secular_zeros(poles: _FloatArray, g: _FloatArray) -> _FloatArray | None:
+    """The zeros of H(z) = 1 + Σᵢ gᵢ/(z − pᵢ) (gᵢ > 0: one between consecutive poles), each
+    from the secular equation in the offset t = pᵢ − z (bracketed, then Brent's method), to
+    relative accuracy."""
+    from scipy.optimize import brentq
+
+    m = poles.size
+
+    def secular(i: int) -> Callable[[float], float]:
+        dp = poles[i] - poles  # exact for neighbouring poles (Sterbenz)
+        others = np.arange(m) != i
+        go, do = g[others], dp[others]
+
+        def h(t: float) -> float:
+            return 1.0 - g[i] / t + float(np.sum(go / (do - t)))
+
+        return h
+
+    zeros = np.empty(m)
+    for i in range(m):
+        h = secular(i)
+        hi = (poles[i] - poles[i - 1]) if i else max(1.0, 4.0 * g[i])
+        lo_t, hi_t = hi * 0.5, hi * 0.5
+        for _ in range(1100):  # h(0+) = −∞, h(hi−) = +∞ (or 1 at −∞ for the first zero)
+            if h(lo_t) < 0:
+                break
+            lo_t *= 0.5
+        else:
+            return None
+        for _ in range(1100):
+            if h(hi_t) > 0:
+                break
+            hi_t = hi - (hi - hi_t) * 0.5 if i else hi_t * 2.0
+        else:
+            return None
+        t = brentq(h, lo_t, hi_t, xtol=1e-300, rtol=4 * np.finfo(float).eps, maxiter=500)
+        zeros[i] = poles[i] - t
+    return zeros
+
+
+def _pair_sections(poles: _FloatArray, zeros: _FloatArray) -> _FloatArray:
+    """Second-order sections pairing the slowest remaining pole (and its zero) with the
+    fastest one (well separated poles keep the coefficients well conditioned)."""
+    sections = []
+    i, j = 0, poles.size - 1
+    while i <= j:
+        if i == j:
+            sections.append([1.0, -zeros[i], 0.0, 1.0, -poles[i], 0.0])
+        else:
+            sections.append(
+                [
+                    1.0, -(zeros[i] + zeros[j]), zeros[i] * zeros[j],
+                    1.0, -(poles[i] + poles[j]), poles[i] * poles[j],
+                ]
+            )  # fmt: skip
+        i, j = i + 1, j - 1
+    return np.array(sections)
+
+
+def _stationary_start(
+    sos: _FloatArray, poles: _FloatArray, g: _FloatArray
+) -> tuple[_FloatArray, npt.NDArray[np.intp], _FloatArray, float] | None:
+    """The stationary start of the filter: (init, state_index, parallel_init, Σ cov(u)/Λ).
+
+    The innovations model's state x̂ has the stationary covariance Λ K Kᵀ/(1 − p pᵀ)
+    (elementwise: Φ is diagonal). Its free response γΦ^k x̂ = Σ_m u_m p_m^k (u_m the sum of
+    γ_i x̂_i over the states of pole m) is given to the filter as the state W u whose
+    zero-input response it is (:func:`_filter_state_map`); cov(u)/Λ = g gᵀ/(1 − p pᵀ)."""
+    one_m = 1.0 - poles
+    cauchy = 1.0 / (one_m[:, None] + poles[:, None] * one_m[None, :])  # 1/(1 − p_m p_l)
+    cov_u = np.outer(g, g) * cauchy
+    var_u = float(np.sum(cov_u))
+    mapped = _filter_state_map(sos, poles)
+    if mapped is None:
+        return None
+    W, index = mapped
+    root = covariance_factor(0.5 * (cov_u + cov_u.T))
+    return W @ root, index, root, var_u
+
+
+def _spectrum_errors(
+    p: _FloatArray,
+    g_: _FloatArray,
+    auto: _Autocovariance,
+    lam: float,
+    sos: _FloatArray,
+    poles: _FloatArray,
+    g: _FloatArray,
+) -> tuple[float, float]:
+    """Largest relative errors of the sections' and of the parallel form's spectrum Λ|H|²
+    against the model's Σ_j C(j) e^{−iωj}, at 200 frequencies from 1/100 of the slowest
+    pole's bandwidth to Nyquist."""
+    w = np.geomspace(max(1e-300, 0.01 * float(1.0 - poles[-1])), np.pi, 200)
+    zi = np.exp(-1j * w)
+    model = auto.c0 + 2.0 * np.real(
+        np.sum(g_ * auto.m * zi[:, None] / (1.0 - p * zi[:, None]), axis=1)
+    )
+    hz = np.ones(w.size, dtype=complex)
+    for sec in sos:
+        hz *= (1.0 + sec[1] * zi + sec[2] * zi**2) / (1.0 + sec[4] * zi + sec[5] * zi**2)
+    spec_err = float(np.max(np.abs(lam * auto.c0 * np.abs(hz) ** 2 / model - 1.0)))
+    hp = 1.0 + np.sum(g / (1.0 / zi[:, None] - poles), axis=1)  # the parallel form
+    par_err = float(np.max(np.abs(lam * auto.c0 * np.abs(hp) ** 2 / model - 1.0)))
+    return spec_err, par_err
+
+
+def _filter_state_map(
+    sos: _FloatArray, poles: _FloatArray
+) -> tuple[_FloatArray, npt.NDArray[np.intp]] | None:
+    """The states of ``sosfilt(sos, ·)`` whose zero-input responses are p_m^k, one per pole.
+
+    The filter's state map z' = A z + B ε, y = C z + D ε is read off single filter steps
+    (exact: no accumulation); states that stay zero (the second state of a first-order
+    section) are dropped. Column m of W solves A w = p_m w, C w = 1 (a bordered least-squares
+    problem, accurate to ε/gap with the exact pole, where a general eigen-solver would move
+    close poles by ~ε·cond). Checked: A W = W diag(p) and C W = 1.
+
+    Returns
+    -------
+    (W, index) or None
+        W, shape (live states, poles); index: their positions in the flattened state.
+    """
+    from scipy.signal import sosfilt
+
+    ns = sos.shape[0]
+    dim = 2 * ns
+    A = np.zeros((dim, dim))
+    C = np.zeros(dim)
+    for j in range(dim):
+        z = np.zeros(dim)
+        z[j] = 1.0
+        y, zf = sosfilt(sos, [0.0], zi=z.reshape(ns, 2))
+        A[:, j], C[j] = zf.ravel(), y[0]
+    _, zf = sosfilt(sos, [1.0], zi=np.zeros((ns, 2)))
+    B = zf.ravel()
+    live = np.flatnonzero(np.any(A != 0.0, axis=1) | (B != 0.0))
+    A, B, C = A[np.ix_(live, live)], B[live], C[live]
+    k = live.size
+    if k != poles.size:
+        return None
+    W = np.empty((k, k))
+    rhs = np.zeros(k + 1)
+    rhs[-1] = 1.0
+    for m, pm in enumerate(poles):
+        bordered = np.vstack([A - pm * np.eye(k), C[None, :]])
+        W[:, m] = np.linalg.lstsq(bordered, rhs, rcond=None)[0]
+    scale = float(np.max(np.abs(W)))
+    # (B = W g holds to the rounding of the section coefficients; what that rounding does to
+    # the output is what the caller's spectrum check measures.)
+    err = max(float(np.max(np.abs(A @ W - W * poles))) / scale, float(np.max(np.abs(C @ W - 1.0))))
+    if not (np.all(np.isfinite(W)) and err <= 1e-9):
+        return None
+    return W, live

@@ -1,9 +1,17 @@
 """NoiseModel: sensor → channels → terms, and the noise-model JSON file (DESIGN §5).
 
 A :class:`NoiseModel` is immutable. Its channels carry their SI unit (``rad/s`` for gyros,
-``m/s^2`` for accelerometers), output rate and terms (:mod:`sensormodel.terms`). Files are
-validated against ``schemas/noise-model.schema.json`` on load and on save; unknown schema
-versions are refused.
+``m/s^2`` for accelerometers), output rate, output filter and terms (:mod:`sensormodel.terms`).
+Files are validated against ``schemas/noise-model.schema.json`` on load and on save; unknown
+schema versions are refused.
+
+The model is data: it is built by :func:`sensormodel.build_model` (from a datasheet), by
+identification or by hand, and consumed by functions that take it
+(:func:`sensormodel.simulate`, :mod:`sensormodel.drift`, :mod:`sensormodel.export`). Its own
+theory (Allan deviation, PSD, discretization) comes from :mod:`sensormodel.terms` and
+:mod:`sensormodel.linear`, below it. The output-filter rule of a channel (the per-sample
+standard deviation of white noise through the sensor's filter, DESIGN §3) lives here with the
+channel that carries the filter.
 """
 
 from __future__ import annotations
@@ -13,13 +21,97 @@ import os
 from dataclasses import dataclass, field, replace
 from typing import Any
 
+import numpy as np
+import numpy.typing as npt
+
+from . import validate
+from ._io import read_json, write_json
+from ._io import validate as validate_schema
 from .errors import AnalysisError, ModelFileError
+from .linear import DiscreteModel, StateSpace, discretize, sided_factor, stack
 from .terms import TERM_TYPES, Term, term_from_dict
 
-__all__ = ["SCHEMA_ID", "Channel", "NoiseModel", "noise_model_schema"]
+__all__ = [
+    "SCHEMA_ID",
+    "Channel",
+    "NoiseModel",
+    "noise_model_schema",
+    "noise_bandwidth",
+    "white_sample_std",
+]
 
 #: The schema id written into, and required of, every noise-model file.
 SCHEMA_ID = "sensormodel/noise-model/1"
+
+
+def noise_bandwidth(bandwidth: float, order: int = 1) -> float:
+    """Equivalent noise bandwidth of an n-th order Butterworth low-pass [Hz].
+
+    Parameters
+    ----------
+    bandwidth : float
+        The -3 dB frequency f_3dB [Hz].
+    order : int
+        Filter order n ≥ 1 (a single pole / RC is n = 1).
+
+    Returns
+    -------
+    float
+        ENBW = f_3dB · (π/(2n)) / sin(π/(2n)) [Hz], one-sided (positive frequencies):
+        π/2 · f_3dB for n = 1, π/(2√2) · f_3dB ≈ 1.1107 · f_3dB for n = 2.
+
+    References
+    ----------
+    S. Winder, "Analog and Digital Filter Design", 2nd ed., Newnes, Appendix A, Table A.3
+    ("Butterworth noise bandwidth", formula credited to A. B. Carlson).
+    """
+    if isinstance(bandwidth, bool) or not (math.isfinite(bandwidth) and bandwidth > 0):
+        raise AnalysisError(
+            f"got {bandwidth!r} Hz", "a positive, finite -3 dB frequency in Hz", field="bandwidth"
+        )
+    order = validate.whole_number(order, "filter_order")
+    x = math.pi / (2 * order)
+    return bandwidth * x / math.sin(x)
+
+
+def white_sample_std(
+    density: float,
+    sample_rate: float,
+    *,
+    bandwidth: float | None = None,
+    filter_order: int | None = None,
+) -> float:
+    """Standard deviation of one output sample of white noise of IEEE density ``density``.
+
+    Parameters
+    ----------
+    density : float
+        N [u·√s], two-sided PSD N² (IEEE Std 952 convention).
+    sample_rate : float
+        Output data rate [Hz].
+    bandwidth : float, optional
+        -3 dB bandwidth of the sensor's output filter [Hz]. Without it each sample is taken as
+        the average over its sample period (ENBW = rate/2).
+    filter_order : int, optional
+        Butterworth order of that filter (default 1).
+
+    Returns
+    -------
+    float
+        σ = N·√(2·ENBW) [u]; with no bandwidth, σ = N·√rate.
+
+    Notes
+    -----
+    The one-sided PSD is 2N², and noise through a filter of equivalent noise bandwidth B_e has
+    variance (one-sided PSD)·B_e = 2N²B_e (REFERENCES §0/§8; Winder, Table A.3). Sampling does
+    not change a variance, so B_e may exceed rate/2 (the excess aliases but still counts).
+    """
+    sample_rate = validate.rate(sample_rate, "sample_rate")
+    if bandwidth is None:
+        enbw = sample_rate / 2.0
+    else:
+        enbw = noise_bandwidth(bandwidth, filter_order or 1)
+    return density * math.sqrt(2.0 * enbw)
 
 
 @dataclass(frozen=True)
@@ -66,11 +158,9 @@ class Channel:
 
     def white_sample_std(self, rate: float | None = None) -> float:
         """Per-sample standard deviation of the white term at ``rate`` [Hz] (default: the
-        channel's), following the output-filter rule of :func:`convert.white_sample_std` [unit]."""
-        from .convert import white_sample_std
-
-        if rate is not None and not (rate > 0 and math.isfinite(rate)):
-            raise AnalysisError(f"got {rate!r}", "a positive, finite rate in Hz", field="rate")
+        channel's), following the output-filter rule of :func:`white_sample_std` [unit]."""
+        if rate is not None:
+            rate = validate.rate(rate)
         white = self.term("white")
         if white is None:
             return 0.0
@@ -83,7 +173,7 @@ class Channel:
 
     # --- theory (linear.py) -----------------------------------------------------------------
 
-    def allan_variance(self, tau: Any) -> Any:
+    def allan_variance(self, tau: npt.ArrayLike) -> npt.NDArray[np.float64]:
         """Allan variance of the channel's noise, the sum of its terms' exact forms [unit²].
 
         Parameters
@@ -91,54 +181,36 @@ class Channel:
         tau : array_like
             Averaging times [s], positive.
         """
-        import numpy as np
-
-        from .linear import _positive_array
-
-        tau = _positive_array(tau, "tau")
+        tau = validate.positive_array(tau, "tau")
         total = np.zeros(tau.shape)
         for t in self.terms:
             total = total + t.allan_variance(tau, sample_rate=self.sample_rate)
         return total
 
-    def allan_deviation(self, tau: Any) -> Any:
+    def allan_deviation(self, tau: npt.ArrayLike) -> npt.NDArray[np.float64]:
         """Allan deviation of the channel's noise [unit] (see :meth:`allan_variance`)."""
-        import numpy as np
-
         return np.sqrt(self.allan_variance(tau))
 
-    def psd(self, f: Any, *, sided: str = "two-sided") -> Any:
+    def psd(self, f: npt.ArrayLike, *, sided: str = "two-sided") -> npt.NDArray[np.float64]:
         """PSD of the channel's noise, the sum of its terms' PSDs [unit²/Hz].
 
-        Parameters
-        ----------
-        f : array_like
-            Frequencies [Hz], positive.
-        sided : {"two-sided", "one-sided"}
-            Two-sided (IEEE Std 952 convention, default) or one-sided (= 2 × two-sided).
+        ``f`` [Hz] and ``sided`` as in :meth:`sensormodel.terms.Term.psd` (two-sided by
+        default, the IEEE Std 952 convention).
         """
-        import numpy as np
-
-        from .linear import _positive_array, _sided_factor
-
-        f = _positive_array(f, "f")
-        factor = _sided_factor(sided)
+        f = validate.positive_array(f, "f")
+        factor = sided_factor(sided)
         total = np.zeros(f.shape)
         for t in self.terms:
             total = total + t.psd(f, sample_rate=self.sample_rate)
         return factor * total
 
-    def state_space(self) -> Any:
+    def state_space(self) -> StateSpace:
         """The channel's terms stacked into one :class:`~sensormodel.linear.StateSpace`."""
-        from .linear import stack
-
         return stack(self.terms, sample_rate=self.sample_rate)
 
-    def discretize(self, dt: float, *, quantization: str = "states") -> Any:
+    def discretize(self, dt: float, *, quantization: str = "states") -> DiscreteModel:
         """Exact discrete Φ, Qd, H, R, P0 at step ``dt`` [s]
         (:func:`sensormodel.linear.discretize`)."""
-        from .linear import discretize
-
         return discretize(self, dt, quantization=quantization)
 
     def to_dict(self) -> dict[str, Any]:
@@ -177,7 +249,8 @@ class Channel:
 class NoiseModel:
     """A sensor's noise model: channels of summed noise terms, all in SI.
 
-    Build one with :meth:`from_datasheet` or :meth:`load`; write it with :meth:`save`.
+    Build one with :func:`sensormodel.build_model` (from a datasheet) or :meth:`load`; write it
+    with :meth:`save`.
     """
 
     sensor: dict[str, Any]
@@ -193,23 +266,6 @@ class NoiseModel:
 
     # -- construction and files ------------------------------------------------------------
 
-    @classmethod
-    def from_datasheet(cls, datasheet: Any, *, worst_case: bool = False) -> NoiseModel:
-        """Build the model of a datasheet (a path or a :class:`~sensormodel.datasheet.Datasheet`).
-
-        Parameters
-        ----------
-        datasheet : path-like or Datasheet
-            The datasheet TOML file or an already loaded datasheet.
-        worst_case : bool
-            Use the ``max`` values instead of ``typ``.
-        """
-        from .convert import datasheet_to_model
-        from .datasheet import Datasheet, load_datasheet
-
-        ds = datasheet if isinstance(datasheet, Datasheet) else load_datasheet(datasheet)
-        return datasheet_to_model(ds, worst_case=worst_case)
-
     def to_dict(self) -> dict[str, Any]:
         """The JSON document of DESIGN §5."""
         return {
@@ -223,8 +279,6 @@ class NoiseModel:
     @classmethod
     def from_dict(cls, data: Any, *, source: str | None = None) -> NoiseModel:
         """Validate a JSON document and build the model; refuse unknown schema versions."""
-        from ._io import validate
-
         if not isinstance(data, dict):
             raise ModelFileError("not a JSON object", "a noise-model document", source=source)
         schema = data.get("schema")
@@ -235,7 +289,7 @@ class NoiseModel:
                 source=source,
                 field="schema",
             )
-        validate(data, "noise-model.schema.json", source=source)
+        validate_schema(data, "noise-model.schema.json", source=source)
         try:
             channels = tuple(
                 Channel.from_dict(c, where=f"channels[{i}]") for i, c in enumerate(data["channels"])
@@ -252,14 +306,10 @@ class NoiseModel:
     @classmethod
     def load(cls, path: str | os.PathLike[str]) -> NoiseModel:
         """Read and validate a noise-model JSON file."""
-        from ._io import read_json
-
         return cls.from_dict(read_json(path), source=str(path))
 
     def save(self, path: str | os.PathLike[str], *, force: bool = False) -> None:
         """Validate and write the model atomically; refuse to overwrite unless ``force``."""
-        from ._io import write_json
-
         write_json(path, self.to_dict(), force=force, schema="noise-model.schema.json")
 
     # -- access ----------------------------------------------------------------------------
@@ -295,29 +345,21 @@ class NoiseModel:
     # --- theory (linear.py) ---------------------------------------------------------------
     # (Allan deviation, PSD and discretization of the model: see sensormodel.linear)
 
-    def allan_deviation(self, tau: Any) -> dict[str, Any]:
-        """Allan deviation each channel's model predicts, {channel id: array [unit]}.
-
-        Parameters
-        ----------
-        tau : array_like
-            Averaging times [s], positive.
-        """
+    def allan_deviation(self, tau: npt.ArrayLike) -> dict[str, npt.NDArray[np.float64]]:
+        """Allan deviation each channel's model predicts at ``tau`` [s],
+        {channel id: array [unit]} (:meth:`Channel.allan_deviation`)."""
         return {c.id: c.allan_deviation(tau) for c in self.channels}
 
-    def psd(self, f: Any, *, sided: str = "two-sided") -> dict[str, Any]:
-        """PSD of each channel's model, {channel id: array [unit²/Hz]}.
-
-        Parameters
-        ----------
-        f : array_like
-            Frequencies [Hz], positive.
-        sided : {"two-sided", "one-sided"}
-            Two-sided (IEEE Std 952 convention, default) or one-sided (= 2 × two-sided).
-        """
+    def psd(
+        self, f: npt.ArrayLike, *, sided: str = "two-sided"
+    ) -> dict[str, npt.NDArray[np.float64]]:
+        """PSD of each channel's model at ``f`` [Hz], {channel id: array [unit²/Hz]}
+        (:meth:`Channel.psd`)."""
         return {c.id: c.psd(f, sided=sided) for c in self.channels}
 
-    def discretize(self, dt: float, *, quantization: str = "states") -> dict[str, Any]:
+    def discretize(
+        self, dt: float, *, quantization: str = "states"
+    ) -> dict[str, DiscreteModel]:
         """Exact discrete model of every channel at step ``dt`` [s],
         {channel id: :class:`~sensormodel.linear.DiscreteModel`}.
 
@@ -329,48 +371,6 @@ class NoiseModel:
             How quantization is carried (:func:`sensormodel.linear.discretize`).
         """
         return {c.id: c.discretize(dt, quantization=quantization) for c in self.channels}
-
-    # --- simulation (simulate.py) ---------------------------------------------------------
-
-    def simulate(
-        self,
-        n: int,
-        rate: float | None = None,
-        seed: int | None = None,
-        *,
-        run: int = 0,
-        increments: bool = False,
-        flicker: str = "realization",
-        channels: list[str] | None = None,
-    ) -> Any:
-        """A simulated noise record, ``n`` samples per channel (see simulate.simulate).
-
-        Parameters
-        ----------
-        n : int
-            Samples per channel.
-        rate : float, optional
-            Sample rate [Hz] (default: the channels' common sample rate).
-        seed : int, optional
-            The same seed gives the same record.
-        run : int
-            Run index of a Monte Carlo ensemble (independent records for one seed).
-        increments : bool
-            Increments per sample period [unit·s] instead of rate samples [unit].
-        flicker : {"realization", "power-law"}
-            Flicker by its Gauss-Markov realization or by the Kasdin-Walter power law.
-        channels : list of str, optional
-            Channels to simulate (default all, in file order).
-
-        Returns
-        -------
-        ndarray, shape (n, n_channels)
-            SI values.
-        """
-        from .simulate import simulate
-
-        return simulate(self, n, rate, seed, run=run, increments=increments, flicker=flicker,
-                        channels=channels)
 
 
 def _term_schema(cls: type[Term]) -> dict[str, Any]:

@@ -37,6 +37,7 @@ Choices made here, each documented at its class:
 from __future__ import annotations
 
 import math
+import warnings
 from collections.abc import Callable, Sequence
 from dataclasses import dataclass, field, fields
 from fractions import Fraction
@@ -47,7 +48,8 @@ import numpy as np
 import numpy.typing as npt
 
 from .errors import AnalysisError, ModelFileError
-from .linear import StateSpace, _positive_array, _sided_factor
+from .linear import StateSpace, sided_factor, steady_state_covariance
+from .validate import positive_array
 
 __all__ = [
     "Term",
@@ -166,8 +168,8 @@ class Term:
         ndarray
             S(f) [u²/Hz].
         """
-        f = _positive_array(f, "f")
-        return _sided_factor(sided) * self._psd2(f, sample_rate)
+        f = positive_array(f, "f")
+        return sided_factor(sided) * self._psd2(f, sample_rate)
 
     def _psd2(self, f: _FloatArray, sample_rate: float | None) -> _FloatArray:
         raise NotImplementedError  # pragma: no cover
@@ -188,7 +190,7 @@ class Term:
         sample_rate : float, optional
             The channel's output rate [Hz].
         """
-        tau = _positive_array(tau, "tau")
+        tau = positive_array(tau, "tau")
         return allan_variance_from_psd(
             lambda f: self._psd2(f, sample_rate), tau, breakpoints=self._breakpoints(sample_rate)
         )
@@ -316,7 +318,7 @@ class White(Term):
         rad/s and rescaled, AVAR(τ) = N²·ωc·AVAR₁(ωc·τ) (white noise through B(s/ωc) has the
         autocovariance ωc·R₁(ωc·u)): the realization of B(s/ωc) itself has coefficients up to
         ωc^order, whose steady state is ill-conditioned for high orders and bandwidths."""
-        tau = _positive_array(tau, "tau")
+        tau = positive_array(tau, "tau")
         if self.bandwidth is not None:
             wc = 2.0 * np.pi * self.bandwidth
             unit = White(density=1.0, bandwidth=1.0 / (2.0 * np.pi), filter_order=self.filter_order)
@@ -402,7 +404,7 @@ class Flicker(Term):
         (:func:`flicker_allan_variance`); it rises to the floor (2 ln2/π)·B² for τ ≫ 1/f0.
         f0 is :meth:`effective_cutoff`.
         """
-        tau = _positive_array(tau, "tau")
+        tau = positive_array(tau, "tau")
         return flicker_allan_variance(tau, self.coefficient, self.effective_cutoff(sample_rate))
 
     def realization(
@@ -510,7 +512,7 @@ class RandomWalk(Term):
         self, tau: npt.ArrayLike, *, sample_rate: float | None = None
     ) -> _FloatArray:
         """Allan variance K²τ/3 [u²] (IEEE Std 952 Annex C)."""
-        return self.density**2 * _positive_array(tau, "tau") / 3.0
+        return self.density**2 * positive_array(tau, "tau") / 3.0
 
     def state_space(self, *, sample_rate: float | None = None) -> StateSpace:
         """One integrator ``random_walk``: F = 0, G = 1, Qc = K², H = 1, P0 = 0 (the walk starts
@@ -555,7 +557,7 @@ class GaussMarkov(Term):
         """Allan variance (IEEE Std 952 Annex C, exponentially correlated noise) [u²]:
         (2σ²T/τ)·[1 − (T/2τ)(3 − 4e^(−τ/T) + e^(−2τ/T))] (:func:`gauss_markov_allan_variance`)."""
         return gauss_markov_allan_variance(
-            _positive_array(tau, "tau"), self.sigma, self.time_constant
+            positive_array(tau, "tau"), self.sigma, self.time_constant
         )
 
     def peak(self) -> tuple[float, float]:
@@ -607,7 +609,7 @@ class Quantization(Term):
         """Allan variance 3Q²/τ² [u²] (IEEE Std 952 Annex C), independent of the sample period:
         the cluster-mean difference is the second difference of the integrated-output error
         e, (e₂ − 2e₁ + e₀)/τ, with var(e) = Q² (an angle quantum s gives Q = s/√12)."""
-        return 3.0 * self.coefficient**2 / _positive_array(tau, "tau") ** 2
+        return 3.0 * self.coefficient**2 / positive_array(tau, "tau") ** 2
 
     def state_space(self, *, sample_rate: float | None = None) -> StateSpace:
         """No continuous state: ``StateSpace.quantization`` = Q². Quantization is white noise
@@ -642,7 +644,7 @@ class Ramp(Term):
     ) -> _FloatArray:
         """Allan variance R²τ²/2 [u²] (IEEE Std 952 Annex C): consecutive cluster means of
         y = s·t differ by s·τ, and E[s²] = R²."""
-        return 0.5 * self.slope**2 * _positive_array(tau, "tau") ** 2
+        return 0.5 * self.slope**2 * positive_array(tau, "tau") ** 2
 
     def state_space(self, *, sample_rate: float | None = None) -> StateSpace:
         """States ``ramp.value`` (the ramp's contribution to the output, 0 at turn-on) and
@@ -681,7 +683,7 @@ class RandomConstant(Term):
         self, tau: npt.ArrayLike, *, sample_rate: float | None = None
     ) -> _FloatArray:
         """Allan variance 0: a constant cancels in every cluster-mean difference."""
-        return np.zeros(_positive_array(tau, "tau").shape)
+        return np.zeros(positive_array(tau, "tau").shape)
 
     def state_space(self, *, sample_rate: float | None = None) -> StateSpace:
         """One state ``random_constant``: F = 0, no driving noise, H = 1, P0 = σ²."""
@@ -787,8 +789,6 @@ class Shaped(Term):
     def state_space(self, *, sample_rate: float | None = None) -> StateSpace:
         """Controllable canonical form of H(s), unit-intensity drive, stationary P0."""
         from scipy.signal import tf2ss
-
-        from .linear import steady_state_covariance
 
         a, b, c, _d = tf2ss(np.array(self.numerator), np.array(self.denominator))
         n = a.shape[0]
@@ -897,7 +897,7 @@ class FlickerRealization:
 
     def allan_variance(self, tau: npt.ArrayLike) -> _FloatArray:
         """Allan variance of the sum of processes [u²] (sum of the closed forms)."""
-        tau = _positive_array(tau, "tau")
+        tau = positive_array(tau, "tau")
         return np.sum(
             [
                 gauss_markov_allan_variance(tau, math.sqrt(v), T)
@@ -952,7 +952,7 @@ def flicker_allan_variance(tau: npt.ArrayLike, coefficient: float, cutoff: float
     """
     from scipy.special import sici
 
-    tau = _positive_array(tau, "tau")
+    tau = positive_array(tau, "tau")
     if not math.isfinite(cutoff):
         return np.full(tau.shape, FLICKER_FLOOR * coefficient**2)
     x = np.pi * cutoff * tau
@@ -1014,7 +1014,7 @@ def gauss_markov_allan_variance(
     time_constant : float
         Correlation time T [s].
     """
-    tau = _positive_array(tau, "tau")
+    tau = positive_array(tau, "tau")
     T = float(time_constant)
     return 2.0 * sigma**2 * T / tau * _gm_bracket(tau / T)
 
@@ -1134,11 +1134,9 @@ def allan_variance_from_psd(
         S must be smooth beyond ``breakpoints`` (not oscillating in f, as the quantization PSD
         does; that term has its closed form).
     """
-    import warnings
-
     from scipy.integrate import IntegrationWarning, quad
 
-    tau = _positive_array(tau, "tau")
+    tau = positive_array(tau, "tau")
     out = np.empty(tau.size)
 
     def s_of(x: float, t: float) -> float:

@@ -404,11 +404,11 @@ def test_error_rates_bias_instability_at_limit(write_datasheet, sheet, trials, n
     # the bootstrap's own generator), 3.7 % in 400 other records with the confirming test at
     # the limit (module notes of acceptance.py); white + flicker alone: 5.2 % and about 2 %.
     from sensormodel.allan import overlapping
-    from sensormodel.model import NoiseModel
+    from sensormodel.convert import build_model
     from sensormodel.simulate import simulate
 
     ax = _axis(write_datasheet, sheet)
-    model = NoiseModel.from_datasheet(load_datasheet(write_datasheet(sheet)), worst_case=True)
+    model = build_model(load_datasheet(write_datasheet(sheet)), worst_case=True)
     calls, overturned = [], 0
     for i in range(trials):
         y = simulate(model, n, 1.0, seed=500 + i)[:, 0]
@@ -555,13 +555,13 @@ def test_band_limited_unit_at_typical_values(write_datasheet) -> None:
     # same record was called pass at 0.6 × its density and fail at 10 × its bias instability
     # (development run of this kind, BW-M200 example at 1-pole 50 Hz).
     from sensormodel.allan import overlapping
-    from sensormodel.model import NoiseModel
+    from sensormodel.convert import build_model
     from sensormodel.simulate import simulate
 
     path = write_datasheet(_BAND_LIMITED_SHEET)
     ax = _axis(write_datasheet, _BAND_LIMITED_SHEET)
     assert acc.output_filter(ax) == (40.0, 2)
-    model = NoiseModel.from_datasheet(load_datasheet(path))
+    model = build_model(load_datasheet(path))
     n, rate = 60_000, 200.0
     y = simulate(model, n, rate, seed=8)[:, 0]
     curve = overlapping(y, rate, confidence=0.9, unit="rad/s", channel="gyro.z")
@@ -594,7 +594,7 @@ def _gm_trial(k: int) -> str:
     import tempfile
 
     from sensormodel.allan import overlapping
-    from sensormodel.model import NoiseModel
+    from sensormodel.convert import build_model
     from sensormodel.simulate import simulate
 
     with tempfile.TemporaryDirectory() as tmp:
@@ -602,7 +602,7 @@ def _gm_trial(k: int) -> str:
         path.write_text(_GM_SHEET, encoding="utf-8")
         sheet = load_datasheet(path)
     ax = sheet.channels()[0]
-    model = NoiseModel.from_datasheet(sheet, worst_case=True)
+    model = build_model(sheet, worst_case=True)
     y = simulate(model, _GM_SAMPLES, 2.0, seed=100 + k)[:, 0]
     curve = overlapping(y, 2.0, confidence=0.9, unit="m/s^2", channel=ax.channel_id)
     cv = acc.verify_curve(curve, ax, duration=_GM_SAMPLES / 2.0, n_boot=_N_BOOT, seed=k)

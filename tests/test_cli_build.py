@@ -18,6 +18,7 @@ import pytest
 from reference import units as ref
 
 from sensormodel.cli import cli
+from sensormodel.convert import build_model
 from sensormodel.errors import UnitError
 from sensormodel.model import NoiseModel
 
@@ -56,7 +57,7 @@ def test_build_every_example(runner, example_datasheet, tmp_path):
         == f"wrote {out}: {len(doc['channels'])} channels, {n_terms} terms (typ values)\n"
     )
     # the CLI writes what the library builds
-    library = NoiseModel.from_datasheet(example_datasheet)
+    library = build_model(example_datasheet)
     assert NoiseModel.load(out) == library
     assert sorted(p.name for p in tmp_path.iterdir()) == ["model.json"]
 
@@ -150,7 +151,7 @@ def test_build_refusal_message_is_the_library_message(runner, write_datasheet, t
     sheet = write_datasheet(G + 'angle_random_walk = "0.1 1/sqrt(h)"\n')
     result = runner.invoke(cli, ["build", str(sheet), "-o", str(tmp_path / "m.json")])
     with pytest.raises(UnitError) as info:
-        NoiseModel.from_datasheet(sheet)
+        build_model(sheet)
     assert result.stderr == f"error: {info.value}\n"
     assert result.stderr == (
         f"error: {sheet}:gyro.angle_random_walk: got '1/sqrt(h)' (1 / [time] ** 0.5); expected an "

@@ -12,8 +12,8 @@ import pytest
 from conftest import SCHEMAS
 
 from sensormodel.cli import cli
+from sensormodel.convert import build_model
 from sensormodel.datasheet import load_datasheet
-from sensormodel.model import NoiseModel
 from sensormodel.simulate import write_record
 
 SHEET = """
@@ -35,7 +35,7 @@ def _record(
     sheet = tmp_path / "sheet.toml"
     if not sheet.exists():
         sheet.write_text(SHEET, encoding="utf-8")
-    model = NoiseModel.from_datasheet(load_datasheet(sheet))
+    model = build_model(load_datasheet(sheet))
     ch = model.channels[0]
     terms = tuple(
         replace(t, density=t.density * white_factor) if t.type == "white" else t for t in ch.terms

@@ -10,19 +10,11 @@ import tomllib
 import numpy as np
 import pytest
 from reference import units as ref
-from scipy import integrate, optimize, signal
+from scipy import optimize
 
-from sensormodel.convert import (
-    FLOOR_FACTOR,
-    QUANTITY,
-    axis_terms,
-    datasheet_to_model,
-    noise_bandwidth,
-    white_sample_std,
-)
+from sensormodel.convert import QUANTITY, axis_terms, build_model
 from sensormodel.datasheet import load_datasheet, parse_datasheet
 from sensormodel.errors import DatasheetError
-from sensormodel.model import NoiseModel
 
 BASE = '[sensor]\nsample_rate = "100 Hz"\n'
 
@@ -31,84 +23,6 @@ def terms_of(text: str, *, basis: str = "typ", instrument: str = "gyro", axis: s
     ds = parse_datasheet(tomllib.loads(text), source="sheet.toml")
     terms, notes = axis_terms(ds.instruments[instrument].axes[axis], basis=basis)
     return {t.type: t for t in terms}, notes
-
-
-# ---- constants and filter rules -------------------------------------------------------------
-
-
-def test_floor_factor_is_ieee_952():
-    # IEEE Std 952-1997 Annex C: flicker Allan-variance floor (2 ln2/pi) B², so the ADEV floor
-    # is sqrt(2 ln2/pi) B = 0.6642824703 B (10 digits, REFERENCES §3).
-    assert FLOOR_FACTOR == pytest.approx(ref.FLOOR_FACTOR, rel=1e-10)
-    assert FLOOR_FACTOR**2 == pytest.approx(ref.FLOOR_FACTOR_SQUARED, rel=1e-9)
-
-
-@pytest.mark.parametrize("order", sorted(ref.BUTTERWORTH_ENBW))
-def test_butterworth_enbw_against_winder_table(order):
-    # S. Winder, Analog and Digital Filter Design, App. A, Table A.3 (7 digits printed).
-    assert noise_bandwidth(1.0, order) == pytest.approx(
-        ref.BUTTERWORTH_ENBW[order], rel=ref.digits_rtol(ref.BUTTERWORTH_ENBW[order])
-    )
-    assert noise_bandwidth(50.0, order) == pytest.approx(
-        50.0 * noise_bandwidth(1.0, order), rel=1e-14
-    )
-
-
-def test_butterworth_enbw_closed_values():
-    # n = 1: pi/2 (one pole / RC); n = 2: pi/(2 sqrt 2) (Winder Table A.3).
-    assert noise_bandwidth(1.0, 1) == pytest.approx(math.pi / 2, rel=1e-15)
-    assert noise_bandwidth(1.0, 2) == pytest.approx(math.pi / (2 * math.sqrt(2)), rel=1e-15)
-
-
-@pytest.mark.parametrize("order", [1, 2, 3, 5, 8])
-def test_butterworth_enbw_against_scipy_filter(order):
-    # scipy as the reference library: integrate |H(j 2 pi f)|² of scipy's analog Butterworth
-    # (-3 dB at f_c) over f >= 0, divided by |H(0)|² = 1.
-    fc = 10.0
-    b, a = signal.butter(order, 2 * np.pi * fc, analog=True)
-
-    def gain2(f: float) -> float:
-        _, h = signal.freqs(b, a, worN=[2 * np.pi * f])
-        return float(abs(h[0]) ** 2)
-
-    head, _ = integrate.quad(gain2, 0, 10 * fc, limit=200, epsabs=0, epsrel=1e-12)
-    tail, _ = integrate.quad(gain2, 10 * fc, np.inf, limit=200, epsabs=0, epsrel=1e-12)
-    assert noise_bandwidth(fc, order) == pytest.approx(head + tail, rel=1e-8)
-
-
-@pytest.mark.parametrize(
-    ("bandwidth", "order"), [(0.0, 1), (-1.0, 1), (math.nan, 1), (math.inf, 1), (1.0, 0)]
-)
-def test_noise_bandwidth_refuses_bad_arguments(bandwidth, order):
-    with pytest.raises(ValueError, match="must be"):
-        noise_bandwidth(bandwidth, order)
-
-
-@pytest.mark.parametrize("rate", [0.0, -1.0, math.nan, math.inf])
-def test_white_sample_std_refuses_bad_rate(rate):
-    with pytest.raises(ValueError, match="must be a positive, finite rate in Hz"):
-        white_sample_std(1e-4, rate)
-
-
-def test_white_sample_std_plain_average():
-    # Each sample the average over its period (ENBW = rate/2): sigma = N sqrt(rate), i.e.
-    # ADEV(tau0) = N/sqrt(tau0) (REFERENCES §0, IEEE Std 952 white-noise AVAR N²/tau).
-    n = 0.15 * ref.DEG_PER_RT_H
-    assert white_sample_std(n, 400.0) == pytest.approx(n * 20.0, rel=1e-15)
-
-
-@pytest.mark.parametrize("order", [1, 2, 4])
-def test_white_sample_std_through_a_butterworth(order):
-    # var = (one-sided PSD 2 N²) x ENBW (REFERENCES §0/§8), ENBW from Winder Table A.3.
-    n, bw = 60e-6 * ref.STANDARD_GRAVITY, 50.0
-    expected = n * math.sqrt(2.0 * ref.BUTTERWORTH_ENBW[order] * bw)
-    got = white_sample_std(n, 200.0, bandwidth=bw, filter_order=order)
-    assert got == pytest.approx(expected, rel=ref.digits_rtol(ref.BUTTERWORTH_ENBW[order]))
-    # the output rate does not enter once the filter is named
-    assert white_sample_std(n, 1000.0, bandwidth=bw, filter_order=order) == got
-    # no order given: one pole
-    if order == 1:
-        assert white_sample_std(n, 200.0, bandwidth=bw) == got
 
 
 # ---- datasheet key -> term ------------------------------------------------------------------
@@ -270,7 +184,7 @@ def test_correlation_time_without_bias_instability(write_datasheet):
         match=rf"^{re.escape(str(path))}:gyro\.correlation_time: correlation_time without "
         r"bias_instability; expected a bias_instability",
     ):
-        datasheet_to_model(ds)
+        build_model(ds)
 
 
 # ---- the whole model ------------------------------------------------------------------------
@@ -278,7 +192,7 @@ def test_correlation_time_without_bias_instability(write_datasheet):
 
 def test_model_channels_from_m200(examples_dir):
     path = examples_dir / "bw-m200.toml"
-    model = datasheet_to_model(load_datasheet(path))
+    model = build_model(load_datasheet(path))
     assert model.channel_ids == [
         "gyro.x",
         "gyro.y",
@@ -301,7 +215,7 @@ def test_model_channels_from_m200(examples_dir):
 
 
 def test_model_of_g30_one_sided_coefficient(examples_dir):
-    model = NoiseModel.from_datasheet(examples_dir / "bw-g30.toml")
+    model = build_model(examples_dir / "bw-g30.toml")
     (ch,) = model.channels
     assert ch.id == "gyro.z"
     assert (ch.bandwidth, ch.filter_order) == (None, None)
@@ -313,8 +227,8 @@ def test_model_of_g30_one_sided_coefficient(examples_dir):
 
 
 def test_model_of_t900_worst_case(examples_dir):
-    typ = NoiseModel.from_datasheet(examples_dir / "bw-t900.toml")
-    worst = NoiseModel.from_datasheet(examples_dir / "bw-t900.toml", worst_case=True)
+    typ = build_model(examples_dir / "bw-t900.toml")
+    worst = build_model(examples_dir / "bw-t900.toml", worst_case=True)
     assert worst.conventions["basis"] == "max"
     assert worst.channel("gyro.x").term("white").density == pytest.approx(
         0.02 * ref.DEG_PER_RT_H, rel=5e-7

@@ -11,7 +11,7 @@ import pytest
 from numpy.testing import assert_allclose
 from scipy import stats
 
-from sensormodel import NoiseModel
+from sensormodel import NoiseModel, build_model
 from sensormodel._io import validate
 from sensormodel.drift import channel_drift, closed_form, default_times, drift, table_times
 from sensormodel.errors import AnalysisError
@@ -159,7 +159,7 @@ def test_quantization_angle_error_simulated():
 
 
 def test_drift_on_example_models(example_datasheet):
-    model = NoiseModel.from_datasheet(example_datasheet)
+    model = build_model(example_datasheet)
     result = drift(model, 3600.0, points=30)
     assert [c.id for c in result.channels] == model.channel_ids
     for c in result.channels:

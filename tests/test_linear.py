@@ -11,16 +11,21 @@ import pytest
 import scipy.linalg
 from numpy.testing import assert_allclose
 from reference import ieee952 as ref
+from reference import simulation as sim_ref
+from scipy import signal
 
 from sensormodel.errors import AnalysisError
 from sensormodel.linear import (
+    INNOVATIONS_TOLERANCE,
     R_CONVENTION,
     R_CONVENTION_QUANTIZATION_IN_R,
     StateSpace,
     discretize,
+    innovations_filter,
     propagate,
     stack,
     steady_state_covariance,
+    step_model,
     van_loan,
 )
 from sensormodel.model import Channel
@@ -327,9 +332,9 @@ def test_state_space_shape_checks():
 
 
 def test_noise_model_theory_api(example_datasheet):
-    from sensormodel import NoiseModel
+    from sensormodel import build_model
 
-    model = NoiseModel.from_datasheet(example_datasheet)
+    model = build_model(example_datasheet)
     tau = np.array([0.01, 1.0, 100.0])
     adev = model.allan_deviation(tau)
     f = np.array([0.01, 1.0, 10.0])
@@ -352,3 +357,87 @@ def test_noise_model_theory_api(example_datasheet):
         )
         real = ch.state_space().allan_variance(tau)
         assert np.all(np.abs(np.sqrt(real / total) - 1) <= tol + 1e-9)
+
+
+# --- the exact step with its output mean, and the innovations form -----------------------------
+
+
+def test_step_model_random_walk_is_the_double_integrator():
+    # Random walk of density √q with the mean of its output over the step: in (rate, angle)
+    # coordinates the augmented system is the double integrator, whose Van Loan Qd is
+    # q [[dt³/3, dt²/2], [dt²/2, dt]] (reference notes section 5). The mean is angle/dt.
+    r = sim_ref.DOUBLE_INTEGRATOR
+    q, dt = r["q"], r["dt"]
+    sm = step_model([[0.0]], [[1.0]], [[q]], [[1.0]], dt)
+    (aa, ax), (_, xx) = r["qd"]
+    np.testing.assert_allclose(sm.phi, [[1.0]], rtol=1e-14)
+    np.testing.assert_allclose(sm.gamma, [1.0], rtol=1e-14)
+    np.testing.assert_allclose(sm.qxx[0, 0], xx, rtol=1e-4)  # printed to 4-5 digits
+    np.testing.assert_allclose(sm.c[0] * sm.qxx[0, 0] * dt, ax, rtol=1e-4)
+    np.testing.assert_allclose((sm.residual + sm.c[0] ** 2 * sm.qxx[0, 0]) * dt**2, aa, rtol=1e-4)
+    # Closed forms to machine precision: c = 1/2, residual = q dt / 12 (Brownian bridge).
+    np.testing.assert_allclose(sm.c, [0.5], rtol=1e-13)
+    np.testing.assert_allclose(sm.residual, q * dt / 12.0, rtol=1e-12)
+
+
+def test_step_model_gauss_markov_matches_closed_form():
+    # Φ = e^(−dt/T), Qd = σ²(1 − e^(−2dt/T)) (reference notes section 2); mean-output gain
+    # γ = T(1 − Φ)/dt, cov(w, mean) = q T²(1 − Φ)²/(2 dt) with q = 2σ²/T (derived by
+    # integrating the Ornstein-Uhlenbeck kernel).
+    r = sim_ref.GM_DISCRETE
+    T, var, dt = r["T"], r["var"], r["dt"]
+    q = 2 * var / T
+    sm = step_model([[-1 / T]], [[1.0]], [[q]], [[1.0]], dt)
+    np.testing.assert_allclose(sm.phi[0, 0], r["phi"], rtol=1e-9)
+    np.testing.assert_allclose(sm.qxx[0, 0], r["qd"], rtol=1e-9)
+    phi = math.exp(-dt / T)
+    np.testing.assert_allclose(sm.gamma[0], T * (1 - phi) / dt, rtol=1e-12)
+    qxa = q * T**2 * (1 - phi) ** 2 / (2 * dt)
+    np.testing.assert_allclose(sm.c[0] * sm.qxx[0, 0], qxa, rtol=1e-11)
+
+
+@pytest.mark.parametrize("rate", [100.0, 1000.0])
+def test_innovations_filter_has_the_model_autocovariance(rate):
+    # One innovation stream through one filter replaces the white stream and one stream per
+    # Gauss-Markov / flicker state (sensormodel.simulate notes). The filter's output must have
+    # exactly the model's autocovariance. Model: the continuous terms' period means in closed
+    # form (sim_ref.gm_period_mean_autocov for the Gauss-Markov term and for each process of
+    # the flicker realization; white N²/dt at lag 0). Filter: C(j) = Λ Σ_k h_k h_{k+j} with h
+    # its impulse response from scipy.signal.sosfilt (a causal filter driven by white noise). The
+    # slowest
+    # time constant is 10 s, so h has decayed to e^{-40} within 40·T·rate samples.
+    dt = 1 / rate
+    wn, gm, fl = White(1e-4), GaussMarkov(2e-3, 0.05), Flicker(1e-3, longest_time=10.0)
+    steps = [step_model(s.F, s.G, s.Qc, s.H, dt) for s in (gm.state_space(), fl.state_space(
+        sample_rate=rate))]  # fmt: skip
+    design = innovations_filter(
+        np.concatenate([np.diag(s.phi) for s in steps]),
+        np.concatenate([s.gamma for s in steps]),
+        np.diag(np.concatenate([np.diag(s.qxx) for s in steps])),
+        np.concatenate([s.c for s in steps]),
+        wn.density**2 / dt + sum(s.residual for s in steps),
+    )
+    assert design is not None
+    assert design.spectrum_error <= INNOVATIONS_TOLERANCE
+    assert design.variance_error <= INNOVATIONS_TOLERANCE
+    assert design.parallel_error <= INNOVATIONS_TOLERANCE
+    # zeros interlace the poles (g_i > 0): one zero below each pole, above the previous one
+    assert np.all(design.zeros < design.poles)
+    assert np.all(design.zeros[1:] > design.poles[:-1])
+    n = int(40 * 10.0 * rate)
+    imp = np.zeros(n)
+    imp[0] = 1.0
+    h = signal.sosfilt(design.sos, imp) * design.std
+    # the parallel form 1 + Σ g_i/(z − p_i) (what a channel runs): the same impulse response
+    hp = imp + sum(signal.lfilter([0.0, g], [1.0, -p], imp) for p, g in zip(
+        design.poles, design.gains, strict=True))  # fmt: skip
+    np.testing.assert_allclose(hp * design.std, h, rtol=0, atol=1e-9 * np.max(np.abs(h)))
+    lags = np.array([0, 1, 2, 5, 30, 300, 3000])
+    ours = np.array([np.dot(h[: n - j], h[j:]) for j in lags])
+    real = fl.realization(sample_rate=rate)
+    model = sim_ref.gm_period_mean_autocov(gm.sigma**2, gm.time_constant, dt, lags)
+    for T, v in zip(real.time_constants, real.variances, strict=True):
+        model += sim_ref.gm_period_mean_autocov(v, T, dt, lags)
+    model[0] += wn.density**2 / dt
+    # Rounding only: poles carried to ε/(1 − p) ≈ 1e-12 relative, sums of 10^5-10^6 terms.
+    np.testing.assert_allclose(ours, model, rtol=1e-9, atol=1e-12 * model[0])

@@ -9,11 +9,20 @@ import pathlib
 import re
 
 import jsonschema
+import numpy as np
 import pytest
 from reference import units as ref
+from scipy import integrate, signal
 
+from sensormodel.convert import build_model
 from sensormodel.errors import AnalysisError, ModelFileError, SensorModelError
-from sensormodel.model import SCHEMA_ID, Channel, NoiseModel
+from sensormodel.model import (
+    SCHEMA_ID,
+    Channel,
+    NoiseModel,
+    noise_bandwidth,
+    white_sample_std,
+)
 from sensormodel.terms import White
 
 SCHEMAS = pathlib.Path(__file__).resolve().parent.parent / "schemas"
@@ -22,7 +31,7 @@ SCHEMAS = pathlib.Path(__file__).resolve().parent.parent / "schemas"
 @pytest.fixture(scope="module")
 def m200() -> NoiseModel:
     examples = pathlib.Path(__file__).resolve().parent.parent / "examples"
-    return NoiseModel.from_datasheet(examples / "bw-m200.toml")
+    return build_model(examples / "bw-m200.toml")
 
 
 def _schema_validator() -> jsonschema.Draft202012Validator:
@@ -32,7 +41,7 @@ def _schema_validator() -> jsonschema.Draft202012Validator:
 
 def test_every_example_builds_a_model_that_validates(example_datasheet):
     # validated here with jsonschema directly, apart from the package's own check
-    model = NoiseModel.from_datasheet(example_datasheet)
+    model = build_model(example_datasheet)
     doc = json.loads(json.dumps(model.to_dict(), allow_nan=False))
     _schema_validator().validate(doc)
     assert doc["schema"] == SCHEMA_ID == "sensormodel/noise-model/1"
@@ -42,7 +51,7 @@ def test_every_example_builds_a_model_that_validates(example_datasheet):
 
 
 def test_save_load_round_trip(example_datasheet, tmp_path):
-    model = NoiseModel.from_datasheet(example_datasheet)
+    model = build_model(example_datasheet)
     path = tmp_path / "model.json"
     model.save(path)
     loaded = NoiseModel.load(path)
@@ -96,7 +105,7 @@ def test_white_sample_std_of_a_channel(m200):
     empty = Channel(id="gyro.x", quantity="angular_rate", unit="rad/s", sample_rate=400.0)
     assert empty.white_sample_std() == 0.0
     for bad in (0.0, -5.0, math.inf, math.nan):  # never a silent fallback or an inf/NaN
-        with pytest.raises(AnalysisError, match=r"^rate: got .*; expected a positive, finite rate"):
+        with pytest.raises(AnalysisError, match=r"^rate: got .*; expected a finite sample rate"):
             plain.white_sample_std(bad)
 
 
@@ -227,3 +236,74 @@ def test_term_refuses_non_finite_in_python():
         ModelFileError, match=r"white\.density = nan; expected a finite, non-negative"
     ):
         White(density=math.nan)
+
+
+# ---- the output-filter rule (ENBW) ----------------------------------------------------------
+
+
+@pytest.mark.parametrize("order", sorted(ref.BUTTERWORTH_ENBW))
+def test_butterworth_enbw_against_winder_table(order):
+    # S. Winder, Analog and Digital Filter Design, App. A, Table A.3 (7 digits printed).
+    assert noise_bandwidth(1.0, order) == pytest.approx(
+        ref.BUTTERWORTH_ENBW[order], rel=ref.digits_rtol(ref.BUTTERWORTH_ENBW[order])
+    )
+    assert noise_bandwidth(50.0, order) == pytest.approx(
+        50.0 * noise_bandwidth(1.0, order), rel=1e-14
+    )
+
+
+def test_butterworth_enbw_closed_values():
+    # n = 1: pi/2 (one pole / RC); n = 2: pi/(2 sqrt 2) (Winder Table A.3).
+    assert noise_bandwidth(1.0, 1) == pytest.approx(math.pi / 2, rel=1e-15)
+    assert noise_bandwidth(1.0, 2) == pytest.approx(math.pi / (2 * math.sqrt(2)), rel=1e-15)
+
+
+@pytest.mark.parametrize("order", [1, 2, 3, 5, 8])
+def test_butterworth_enbw_against_scipy_filter(order):
+    # scipy as the reference library: integrate |H(j 2 pi f)|² of scipy's analog Butterworth
+    # (-3 dB at f_c) over f >= 0, divided by |H(0)|² = 1.
+    fc = 10.0
+    b, a = signal.butter(order, 2 * np.pi * fc, analog=True)
+
+    def gain2(f: float) -> float:
+        _, h = signal.freqs(b, a, worN=[2 * np.pi * f])
+        return float(abs(h[0]) ** 2)
+
+    head, _ = integrate.quad(gain2, 0, 10 * fc, limit=200, epsabs=0, epsrel=1e-12)
+    tail, _ = integrate.quad(gain2, 10 * fc, np.inf, limit=200, epsabs=0, epsrel=1e-12)
+    assert noise_bandwidth(fc, order) == pytest.approx(head + tail, rel=1e-8)
+
+
+@pytest.mark.parametrize(
+    ("bandwidth", "order"), [(0.0, 1), (-1.0, 1), (math.nan, 1), (math.inf, 1), (1.0, 0)]
+)
+def test_noise_bandwidth_refuses_bad_arguments(bandwidth, order):
+    with pytest.raises(AnalysisError, match=r"^(bandwidth|filter_order): got .*; expected a"):
+        noise_bandwidth(bandwidth, order)
+
+
+@pytest.mark.parametrize("rate", [0.0, -1.0, math.nan, math.inf])
+def test_white_sample_std_refuses_bad_rate(rate):
+    with pytest.raises(AnalysisError, match=r"^sample_rate: got .*; expected a finite sample rate"):
+        white_sample_std(1e-4, rate)
+
+
+def test_white_sample_std_plain_average():
+    # Each sample the average over its period (ENBW = rate/2): sigma = N sqrt(rate), i.e.
+    # ADEV(tau0) = N/sqrt(tau0) (REFERENCES §0, IEEE Std 952 white-noise AVAR N²/tau).
+    n = 0.15 * ref.DEG_PER_RT_H
+    assert white_sample_std(n, 400.0) == pytest.approx(n * 20.0, rel=1e-15)
+
+
+@pytest.mark.parametrize("order", [1, 2, 4])
+def test_white_sample_std_through_a_butterworth(order):
+    # var = (one-sided PSD 2 N²) x ENBW (REFERENCES §0/§8), ENBW from Winder Table A.3.
+    n, bw = 60e-6 * ref.STANDARD_GRAVITY, 50.0
+    expected = n * math.sqrt(2.0 * ref.BUTTERWORTH_ENBW[order] * bw)
+    got = white_sample_std(n, 200.0, bandwidth=bw, filter_order=order)
+    assert got == pytest.approx(expected, rel=ref.digits_rtol(ref.BUTTERWORTH_ENBW[order]))
+    # the output rate does not enter once the filter is named
+    assert white_sample_std(n, 1000.0, bandwidth=bw, filter_order=order) == got
+    # no order given: one pole
+    if order == 1:
+        assert white_sample_std(n, 200.0, bandwidth=bw) == got

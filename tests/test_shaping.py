@@ -13,8 +13,8 @@ import numpy as np
 import pytest
 from numpy.testing import assert_allclose
 
+from sensormodel import build_model
 from sensormodel.errors import AnalysisError, DatasheetError, RecordingError
-from sensormodel.model import NoiseModel
 from sensormodel.recording import read_recording
 from sensormodel.shaping import (
     DEFAULT_CHANNEL,
@@ -125,7 +125,7 @@ def test_shape_fits_a_csv_and_adds_to_a_model(tmp_path) -> None:
     psd = 2 * np.abs(0.01 / (s**2 + 1.0 * s + 9.0)) ** 2
     csv = tmp_path / "psd.csv"
     csv.write_text("".join(f"{a:.17g},{b:.17g}\n" for a, b in zip(f, psd, strict=True)))
-    base = NoiseModel.from_datasheet(EXAMPLE.parent / "bw-t900.toml")
+    base = build_model(EXAMPLE.parent / "bw-t900.toml")
     result = shape(str(csv), channel="accelerometer.z", orders=(0, 2), add_to=base)
     assert result.fit is not None and result.fit.rms_db < 0.01
     assert_allclose(result.filter.denominator, [1.0, 1.0, 9.0], rtol=1e-4)

@@ -28,18 +28,18 @@ from reference import simulation as ref
 from scipy import signal, stats
 
 from sensormodel.errors import AnalysisError
+from sensormodel.linear import INNOVATIONS_TOLERANCE, step_model
 from sensormodel.model import Channel, NoiseModel
 from sensormodel.simulate import (
     BLOCK,
     Simulator,
-    _PowerLaw,
     ensemble_statistics,
     kasdin_coefficients,
     run_path,
     simulate,
     simulate_ensemble,
-    step_model,
 )
+from sensormodel.simulate._powerlaw import _PowerLaw
 from sensormodel.terms import (
     Flicker,
     GaussMarkov,
@@ -117,45 +117,11 @@ def _oadev(y, rate, m):
 # -- the exact one-step model -----------------------------------------------------------------
 
 
-def test_step_model_random_walk_is_the_double_integrator():
-    # Random walk of density √q with the mean of its output over the step: in (rate, angle)
-    # coordinates the augmented system is the double integrator, whose Van Loan Qd is
-    # q [[dt³/3, dt²/2], [dt²/2, dt]] (reference notes section 5). The mean is angle/dt.
-    r = ref.DOUBLE_INTEGRATOR
-    q, dt = r["q"], r["dt"]
-    sm = step_model([[0.0]], [[1.0]], [[q]], [[1.0]], dt)
-    (aa, ax), (_, xx) = r["qd"]
-    np.testing.assert_allclose(sm.phi, [[1.0]], rtol=1e-14)
-    np.testing.assert_allclose(sm.gamma, [1.0], rtol=1e-14)
-    np.testing.assert_allclose(sm.qxx[0, 0], xx, rtol=1e-4)  # printed to 4-5 digits
-    np.testing.assert_allclose(sm.c[0] * sm.qxx[0, 0] * dt, ax, rtol=1e-4)
-    np.testing.assert_allclose((sm.residual + sm.c[0] ** 2 * sm.qxx[0, 0]) * dt**2, aa, rtol=1e-4)
-    # Closed forms to machine precision: c = 1/2, residual = q dt / 12 (Brownian bridge).
-    np.testing.assert_allclose(sm.c, [0.5], rtol=1e-13)
-    np.testing.assert_allclose(sm.residual, q * dt / 12.0, rtol=1e-12)
-
-
-def test_step_model_gauss_markov_matches_closed_form():
-    # Φ = e^(−dt/T), Qd = σ²(1 − e^(−2dt/T)) (reference notes section 2); mean-output gain
-    # γ = T(1 − Φ)/dt, cov(w, mean) = q T²(1 − Φ)²/(2 dt) with q = 2σ²/T (derived by
-    # integrating the Ornstein-Uhlenbeck kernel).
-    r = ref.GM_DISCRETE
-    T, var, dt = r["T"], r["var"], r["dt"]
-    q = 2 * var / T
-    sm = step_model([[-1 / T]], [[1.0]], [[q]], [[1.0]], dt)
-    np.testing.assert_allclose(sm.phi[0, 0], r["phi"], rtol=1e-9)
-    np.testing.assert_allclose(sm.qxx[0, 0], r["qd"], rtol=1e-9)
-    phi = math.exp(-dt / T)
-    np.testing.assert_allclose(sm.gamma[0], T * (1 - phi) / dt, rtol=1e-12)
-    qxa = q * T**2 * (1 - phi) ** 2 / (2 * dt)
-    np.testing.assert_allclose(sm.c[0] * sm.qxx[0, 0], qxa, rtol=1e-11)
-
-
 def _state_sources(F, G, Qc, P0, dt, seed):
     """Two sources of one realization on the same stream: the vectorized path and the
     step-by-step loop (which every non-diagonal F takes)."""
     from sensormodel.linear import StateSpace
-    from sensormodel.simulate import _StateSpace
+    from sensormodel.simulate._statespace import _StateSpace
 
     n = np.asarray(F).shape[0]
     ss = StateSpace(
@@ -177,7 +143,7 @@ DRYDEN = Shaped(numerator=(math.sqrt(3) * 0.5 * 1e-3, 1e-3), denominator=(0.25, 
 def test_shaped_term_transfer_form_equals_the_step_by_step_loop(rate):
     # The non-diagonal path (one transfer function per noise input, the initial state in the
     # first filter's state) against the plain loop on the same random numbers.
-    from sensormodel.simulate import _StateSpace
+    from sensormodel.simulate._statespace import _StateSpace
 
     for term in (DRYDEN, Shaped(numerator=(0.0, 2e-3, 1e-3), denominator=(0.1, 1.0, 3.0, 1.0))):
         ss = term.state_space(sample_rate=rate)
@@ -223,7 +189,7 @@ def test_box_muller_deviates_are_independent_standard_normals():
     # happens in one run of 150: over seeds 1000-1149 the KS p-values of 2^21 deviates were
     # uniform (KS test of the p-values: p = 0.79; 3.3 % below 0.05), like those of numpy's
     # ziggurat (p = 0.83; 4.7 %); at 2^25 deviates, p = 0.69. The seed below is the next one.)
-    from sensormodel.simulate import _Normals
+    from sensormodel.simulate._streams import _Normals
 
     a = FAMILY / 7
     gen = _Normals(np.random.default_rng(20240702))
@@ -247,75 +213,14 @@ def test_box_muller_deviates_are_independent_standard_normals():
     np.testing.assert_allclose(g1.normal(7, 2.5), 2.5 * g2.normal(7), rtol=1e-15)
 
 
-def _gm_period_mean_autocov(sigma2, T, dt, lags):
-    """Autocovariance of the period means of a Gauss-Markov process (variance σ², time
-    constant T) at lags j (in samples): the OU autocovariance σ²e^{−|s|/T} integrated over two
-    periods (derived): C(0) = 2σ²(T/dt)²(dt/T − 1 + e^{−dt/T}),
-    C(j ≥ 1) = σ²(T/dt)²(1 − e^{−dt/T})² e^{−(j−1)dt/T}."""
-    r = dt / T
-    j = np.asarray(lags, dtype=float)
-    c0 = 2 * sigma2 * (1 / r) ** 2 * (r - 1 + math.exp(-r))
-    cj = sigma2 * (1 / r) ** 2 * (-math.expm1(-r)) ** 2 * np.exp(-(j - 1) * r)
-    return np.where(j == 0, c0, cj)
-
-
-@pytest.mark.parametrize("rate", [100.0, 1000.0])
-def test_innovations_filter_has_the_model_autocovariance(rate):
-    # One innovation stream through one filter replaces the white stream and one stream per
-    # Gauss-Markov / flicker state (module notes). The filter's output must have exactly the
-    # model's autocovariance. Model: the continuous terms' period means in closed form
-    # (_gm_period_mean_autocov for the Gauss-Markov term and for each process of the flicker
-    # realization; white N²/dt at lag 0). Filter: C(j) = Λ Σ_k h_k h_{k+j} with h its impulse
-    # response from scipy.signal.sosfilt (a causal filter driven by white noise). The slowest
-    # time constant is 10 s, so h has decayed to e^{-40} within 40·T·rate samples.
-    from scipy.signal import sosfilt
-
-    from sensormodel.simulate import INNOVATIONS_TOLERANCE, innovations_filter
-
-    dt = 1 / rate
-    wn, gm, fl = White(1e-4), GaussMarkov(2e-3, 0.05), Flicker(1e-3, longest_time=10.0)
-    steps = [step_model(s.F, s.G, s.Qc, s.H, dt) for s in (gm.state_space(), fl.state_space(
-        sample_rate=rate))]  # fmt: skip
-    design = innovations_filter(
-        np.concatenate([np.diag(s.phi) for s in steps]),
-        np.concatenate([s.gamma for s in steps]),
-        np.diag(np.concatenate([np.diag(s.qxx) for s in steps])),
-        np.concatenate([s.c for s in steps]),
-        wn.density**2 / dt + sum(s.residual for s in steps),
-    )
-    assert design is not None
-    assert design.spectrum_error <= INNOVATIONS_TOLERANCE
-    assert design.variance_error <= INNOVATIONS_TOLERANCE
-    assert design.parallel_error <= INNOVATIONS_TOLERANCE
-    # zeros interlace the poles (g_i > 0): one zero below each pole, above the previous one
-    assert np.all(design.zeros < design.poles)
-    assert np.all(design.zeros[1:] > design.poles[:-1])
-    n = int(40 * 10.0 * rate)
-    imp = np.zeros(n)
-    imp[0] = 1.0
-    h = sosfilt(design.sos, imp) * design.std
-    # the parallel form 1 + Σ g_i/(z − p_i) (what a channel runs): the same impulse response
-    hp = imp + sum(signal.lfilter([0.0, g], [1.0, -p], imp) for p, g in zip(
-        design.poles, design.gains, strict=True))  # fmt: skip
-    np.testing.assert_allclose(hp * design.std, h, rtol=0, atol=1e-9 * np.max(np.abs(h)))
-    lags = np.array([0, 1, 2, 5, 30, 300, 3000])
-    ours = np.array([np.dot(h[: n - j], h[j:]) for j in lags])
-    real = fl.realization(sample_rate=rate)
-    model = _gm_period_mean_autocov(gm.sigma**2, gm.time_constant, dt, lags)
-    for T, v in zip(real.time_constants, real.variances, strict=True):
-        model += _gm_period_mean_autocov(v, T, dt, lags)
-    model[0] += wn.density**2 / dt
-    # Rounding only: poles carried to ε/(1 − p) ≈ 1e-12 relative, sums of 10^5-10^6 terms.
-    np.testing.assert_allclose(ours, model, rtol=1e-9, atol=1e-12 * model[0])
-
-
 def test_innovations_stream_starts_stationary():
     # The filter's state is drawn from its stationary law: across 2000 independent streams the
     # variance of the first sample and of the 1000th is C(0), the period-mean variance in
-    # closed form (_gm_period_mean_autocov over the flicker realization, plus white N²/dt).
+    # closed form (ref.gm_period_mean_autocov over the flicker realization, plus white N²/dt).
     # (runs − 1)s²/C(0) ~ χ²(runs − 1); two checks, Bonferroni. Flicker dominates C(0): a
     # stream started from rest would have var(y_0) = Λ, far outside the band (checked).
-    from sensormodel.simulate import _channel_innovations, _Innovations
+    from sensormodel.simulate._channel import _channel_innovations
+    from sensormodel.simulate._innovations import _Innovations
 
     fl, dt = Flicker(1e-3), 1 / RATE
     ss = fl.state_space(sample_rate=RATE)
@@ -325,7 +230,7 @@ def test_innovations_stream_starts_stationary():
     )
     real = fl.realization(sample_rate=RATE)
     c0 = white + sum(
-        float(_gm_period_mean_autocov(v, T, dt, [0])[0])
+        float(ref.gm_period_mean_autocov(v, T, dt, [0])[0])
         for T, v in zip(real.time_constants, real.variances, strict=True)
     )
     runs = 2000
@@ -345,7 +250,9 @@ def test_single_section_filter_equals_sosfilt():
     # direct form II): the stream must equal sosfilt of the same deviates from the same start.
     from scipy.signal import sosfilt
 
-    from sensormodel.simulate import _channel_innovations, _Innovations, _Normals
+    from sensormodel.simulate._channel import _channel_innovations
+    from sensormodel.simulate._innovations import _Innovations
+    from sensormodel.simulate._streams import _Normals
 
     for terms in ((GaussMarkov(1e-3, 0.5),), (GaussMarkov(1e-3, 0.5), GaussMarkov(2e-3, 20.0))):
         design = _channel_innovations(terms, RATE, 1 / RATE, 1e-8)
@@ -369,7 +276,8 @@ def test_block_engine_equals_the_sample_by_sample_recursions():
     # engine pads it); a stream with no state. Rounding only: sums of <= 16 terms per level.
     from scipy.signal import lfilter
 
-    from sensormodel.simulate import _block_size, _Normals, _Parallel
+    from sensormodel.simulate._innovations import _Parallel
+    from sensormodel.simulate._streams import _block_size, _Normals
 
     streams = [
         (1.3, [0.2, 0.9, 0.999, 1 - 1e-7], [0.5, 0.2, 0.01, 1e-4]),
@@ -419,15 +327,16 @@ def test_channel_block_engine_equals_the_section_and_running_sum_path(monkeypatc
     # streams, same deviates, same start: the two records agree to the rounding of the
     # section coefficients (both filters pass the 1e-7 spectrum check; the difference of two
     # exact forms is far smaller), over several blocks and a partial one.
-    import sensormodel.simulate as sim
+    from sensormodel.simulate import _channel
+    from sensormodel.simulate._innovations import _Parallel
 
     model = _model(White(1e-3), Flicker(1e-4), RandomWalk(1e-5), GaussMarkov(1e-3, 2.0))
-    gen = sim.Simulator(model, seed=31)._gens[0]
-    assert isinstance(gen.sources[0], sim._Parallel)
-    assert gen.innovations.parallel_error <= sim.INNOVATIONS_TOLERANCE
+    gen = Simulator(model, seed=31)._gens[0]
+    assert isinstance(gen.sources[0], _Parallel)
+    assert gen.innovations.parallel_error <= INNOVATIONS_TOLERANCE
     n = 2 * BLOCK + 5000
     fused = simulate(model, n, seed=31)[:, 0]
-    monkeypatch.setattr(sim._ChannelGenerator, "_fuse", lambda self: None)
+    monkeypatch.setattr(_channel._ChannelGenerator, "_fuse", lambda self: None)
     plain = simulate(model, n, seed=31)[:, 0]
     np.testing.assert_allclose(fused, plain, rtol=0, atol=1e-9 * np.std(plain))
 
@@ -436,14 +345,15 @@ def test_state_by_state_fallback_is_faithful(monkeypatch):
     # Where the innovations form does not apply the channel runs one stream per state (the
     # exact per-state recursion); force that path and check the combined model's Allan
     # variance as above (one family of its own).
-    import sensormodel.simulate as sim
+    from sensormodel.simulate import _channel
+    from sensormodel.simulate._statespace import _StateSpace
 
-    monkeypatch.setattr(sim, "_channel_innovations", lambda *a, **k: None)
+    monkeypatch.setattr(_channel, "_channel_innovations", lambda *a, **k: None)
     terms, alphas = CASES["combined"]
     model = _model(*terms)
-    gen = sim.Simulator(model, seed=4242)._gens[0]
+    gen = Simulator(model, seed=4242)._gens[0]
     assert gen.innovations is None
-    assert sum(isinstance(s, sim._StateSpace) for s in gen.sources) == 3  # flicker, RW, GM
+    assert sum(isinstance(s, _StateSpace) for s in gen.sources) == 3  # flicker, RW, GM
     y = simulate(model, N_ALLAN, seed=4242)[:, 0]
     m = _octave_m(N_ALLAN)
     tau = m / RATE
@@ -851,7 +761,7 @@ def test_white_sampled_at_twice_bandwidth_is_uncorrelated():
 
 def test_ensemble_variance_matches_propagated_covariance():
     from sensormodel.drift import channel_drift
-    from sensormodel.linear import _block_diag, propagate
+    from sensormodel.linear import block_diag, propagate
 
     terms = (
         White(1e-3),
@@ -874,9 +784,9 @@ def test_ensemble_variance_matches_propagated_covariance():
     F = np.zeros((n + 1, n + 1))
     F[:n, :n] = ss.F
     F[n, :n] = ss.H[0]
-    G = _block_diag([ss.G, np.ones((1, 1))])
-    Q = _block_diag([ss.Qc, np.full((1, 1), ss.white)])
-    P0 = _block_diag([ss.P0, np.zeros((1, 1))])
+    G = block_diag([ss.G, np.ones((1, 1))])
+    Q = block_diag([ss.Qc, np.full((1, 1), ss.white)])
+    P0 = block_diag([ss.P0, np.zeros((1, 1))])
     var = propagate(F, G, Q, P0, times)[:, n, n] + 2 * ss.quantization
     # The drift module computes the same (its flicker band reaches the horizon: same here).
     d = channel_drift(model.channels[0], 20.0, times=times)
@@ -972,9 +882,16 @@ def test_increments_are_rate_times_period():
     assert np.max(np.abs(np.cumsum(q_only))) <= 2 * math.sqrt(3) * 1e-5 * (1 + 1e-12)
 
 
-def test_noise_model_simulate_method():
+def test_package_level_simulate_is_the_simulator():
+    # DESIGN §7: sensormodel.simulate(model, n, rate, seed) is this function, and the record
+    # does not depend on which name it is called by
+    import sensormodel
+
     model = _model(White(1e-3))
-    np.testing.assert_array_equal(model.simulate(100, seed=1), simulate(model, 100, seed=1))
+    assert sensormodel.simulate is simulate
+    np.testing.assert_array_equal(
+        sensormodel.simulate(model, 100, RATE, 1), simulate(model, 100, seed=1)
+    )
     sim = Simulator(model)  # no seed: fresh entropy, readable for the record
     assert isinstance(sim.seed, int)
     np.testing.assert_array_equal(Simulator(model, seed=sim.seed).read(10), sim.read(10))
@@ -990,10 +907,10 @@ def test_run_path():
 @pytest.mark.parametrize(
     ("kwargs", "match"),
     [
-        ({"n": 0}, "n = 0"),
-        ({"n": 10, "rate": -1.0}, "rate = -1.0"),
-        ({"n": 10, "seed": -3}, "seed = -3"),
-        ({"n": 10, "flicker": "pink"}, "flicker method 'pink'"),
+        ({"n": 0}, r"^n: got 0; expected a whole number ≥ 1"),
+        ({"n": 10, "rate": -1.0}, r"^rate: got -1\.0 Hz; expected a finite sample rate"),
+        ({"n": 10, "seed": -3}, r"^seed: got -3; expected a whole number ≥ 0"),
+        ({"n": 10, "flicker": "pink"}, r"^flicker: got 'pink'; expected one of realization"),
     ],
 )
 def test_bad_arguments(kwargs, match):

@@ -26,8 +26,10 @@ from numpy.testing import assert_allclose
 from scipy import integrate, signal, stats
 
 from sensormodel.cli import cli
+from sensormodel.convert import build_model
 from sensormodel.errors import AnalysisError, ModelFileError
 from sensormodel.model import NoiseModel
+from sensormodel.simulate import simulate
 from sensormodel.spectrum import (
     factorize,
     fit_rational_psd,
@@ -233,7 +235,7 @@ def test_band_limited_white_state_space_is_well_conditioned(bw, order):
 
 
 def test_datasheet_bandwidth_band_limits_the_white_term(example_datasheet):
-    model = NoiseModel.from_datasheet(example_datasheet)
+    model = build_model(example_datasheet)
     for ch in model.channels:
         white = ch.term("white")
         if white is None:
@@ -279,7 +281,7 @@ def test_fit_of_simulated_record_matches_target():
             ),
         ),
     )
-    y = model.simulate(2**18, rate=20.0, seed=4)[:, 0]
+    y = simulate(model, 2**18, rate=20.0, seed=4)[:, 0]
     psd = welch(y, 20.0, nperseg=4096)
     keep = (psd.f > 0.02) & (psd.f < 5.0)
     fit = fit_rational_psd(psd.f[keep], psd.psd[keep], numerator_order=0, denominator_order=2)
@@ -305,7 +307,7 @@ def test_simulated_shaped_record_has_the_target_variance():
         ),
     )
     n, dt = 2**19, 1 / 50.0
-    y = model.simulate(n, rate=50.0, seed=11)[:, 0]
+    y = simulate(model, n, rate=50.0, seed=11)[:, 0]
     dof = n * dt / (2 * (1 / 0.3))
     lo, hi = stats.chi2.ppf([5e-4, 1 - 5e-4], dof) / dof
     # period means of the process: variance slightly below the point variance (τ0 ≪ T_c)

@@ -11,11 +11,13 @@ import numpy as np
 import pytest
 from numpy.testing import assert_allclose
 from reference import ieee952 as ref
+from reference import units as units_ref
 
 from sensormodel.errors import AnalysisError
 from sensormodel.terms import (
     DEFAULT_LONGEST_TIME,
     FLICKER_FLOOR,
+    FLICKER_FLOOR_FACTOR,
     Flicker,
     GaussMarkov,
     Quantization,
@@ -378,14 +380,14 @@ def test_datasheet_floor_with_correlation_time_gives_matching_gauss_markov(write
     # Datasheet → model (convert.py) → theory: bias instability 10 µg (an Allan-deviation
     # floor, common practice) with a 300 s correlation time gives a Gauss-Markov term whose
     # Allan-deviation peak is 10 µg (g_n = 9.80665 m/s², CGPM 1901) at τ ≈ 1.89·T.
-    from sensormodel import NoiseModel
+    from sensormodel import build_model
 
     sheet = write_datasheet(
         '[sensor]\nsample_rate = "100 Hz"\n[accelerometer]\n'
         'velocity_random_walk = "0.02 m/s/rt-h"\n'
         'bias_instability = "10 ug"\ncorrelation_time = "300 s"\n'
     )
-    model = NoiseModel.from_datasheet(sheet)
+    model = build_model(sheet)
     ch = model.channels[0]
     gm = ch.term("gauss_markov")
     assert gm is not None and gm.time_constant == 300.0
@@ -393,3 +395,10 @@ def test_datasheet_floor_with_correlation_time_gives_matching_gauss_markov(write
     adev = gm.allan_deviation(tau)
     assert adev.max() == pytest.approx(10e-6 * 9.80665, rel=1e-8)
     assert tau[np.argmax(adev)] == pytest.approx(ref.GM_PEAK_TAU_OVER_T * 300.0, rel=1e-3)
+
+
+def test_floor_factor_is_ieee_952():
+    # IEEE Std 952-1997 Annex C: flicker Allan-variance floor (2 ln2/pi) B², so the ADEV floor
+    # is sqrt(2 ln2/pi) B = 0.6642824703 B (10 digits, REFERENCES §3).
+    assert FLICKER_FLOOR_FACTOR == pytest.approx(units_ref.FLOOR_FACTOR, rel=1e-10)
+    assert FLICKER_FLOOR_FACTOR**2 == pytest.approx(units_ref.FLOOR_FACTOR_SQUARED, rel=1e-9)

@@ -14,6 +14,7 @@ from numpy.testing import assert_allclose
 
 from sensormodel._io import validate
 from sensormodel.cli import cli
+from sensormodel.convert import build_model
 from sensormodel.drift import drift
 from sensormodel.export import FORMATS
 from sensormodel.model import NoiseModel
@@ -24,7 +25,7 @@ EXAMPLES = pathlib.Path(__file__).resolve().parents[1] / "examples"
 @pytest.fixture
 def model_file(example_datasheet, tmp_path) -> pathlib.Path:
     path = tmp_path / f"{example_datasheet.stem}.json"
-    NoiseModel.from_datasheet(example_datasheet).save(path)
+    build_model(example_datasheet).save(path)
     return path
 
 
@@ -94,7 +95,7 @@ def test_export_every_example_in_all_forms(runner, model_file, tmp_path):
 
 def test_export_single_form_from_suffix_and_quantization_in_r(runner, tmp_path):
     model = tmp_path / "t900.json"
-    NoiseModel.from_datasheet(pathlib.Path(__file__).parents[1] / "examples" / "bw-t900.toml").save(
+    build_model(pathlib.Path(__file__).parents[1] / "examples" / "bw-t900.toml").save(
         model
     )
     out = tmp_path / "d.json"
@@ -180,7 +181,7 @@ def test_drift_every_example(runner, model_file, tmp_path):
 
 def test_drift_plot(runner, tmp_path):
     model = tmp_path / "t900.json"
-    NoiseModel.from_datasheet(EXAMPLES / "bw-t900.toml").save(model)
+    build_model(EXAMPLES / "bw-t900.toml").save(model)
     png = tmp_path / "drift.png"
     result = runner.invoke(
         cli,
@@ -227,7 +228,7 @@ def test_inspect_shows_flicker_realization(runner, model_file):
 
 def test_inspect_plot(runner, tmp_path):
     model = tmp_path / "t900.json"
-    NoiseModel.from_datasheet(EXAMPLES / "bw-t900.toml").save(model)
+    build_model(EXAMPLES / "bw-t900.toml").save(model)
     png = tmp_path / "model.png"
     args = [
         "inspect",

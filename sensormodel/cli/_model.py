@@ -11,7 +11,7 @@ import click
 
 from .. import plots
 from .._io import check_writable, write_json
-from ..convert import datasheet_to_model
+from ..convert import build_model
 from ..datasheet import load_datasheet
 from ..drift import drift, table_times
 from ..errors import AnalysisError
@@ -55,7 +55,7 @@ def build(datasheet: str, output: str, worst_case: bool, force: bool) -> None:
       sensormodel build examples/bw-m200.toml -o m200-worst.json --worst-case
     """
     check_writable(output, force=force)
-    model = datasheet_to_model(load_datasheet(datasheet), worst_case=worst_case)
+    model = build_model(load_datasheet(datasheet), worst_case=worst_case)
     model.save(output, force=force)
     n_terms = sum(len(c.terms) for c in model.channels)
     click.echo(f"wrote {output}: {len(model.channels)} channels, {n_terms} terms "

@@ -115,16 +115,16 @@ def _state_by_state() -> None:
     """Put simulate back to the method before the innovations form (for the ratio)."""
     import numpy as np
 
-    import sensormodel.simulate as sim
+    from sensormodel.simulate import _channel, _streams
 
-    sim._channel_innovations = lambda *a, **k: None  # one stream per state
+    _channel._channel_innovations = lambda *a, **k: None  # one stream per state
 
     def ziggurat(self, n, scale=1.0, out=None):
         z = self._rng.standard_normal(n) if out is None else self._rng.standard_normal(out=out)
         z *= scale
         return z
 
-    sim._Normals.normal = ziggurat  # numpy's ziggurat deviates
+    _streams._Normals.normal = ziggurat  # numpy's ziggurat deviates
     assert np  # (imported for the side effect of a warm numpy)
 
 
@@ -168,9 +168,9 @@ def _worker(kind: str, case: str, n: int, rate: float, channels: int, path: str)
         if kind == "state by state":
             _state_by_state()
         elif kind == "sections":
-            import sensormodel.simulate as simulate_module
+            from sensormodel.simulate import _channel
 
-            simulate_module._ChannelGenerator._fuse = lambda self: None  # sosfilt, cumsum
+            _channel._ChannelGenerator._fuse = lambda self: None  # sosfilt, cumsum
         method = "power-law" if "power-law" in case else "realization"
         model = _model(_terms(case), rate, channels)
         sim = Simulator(model, seed=SEED, flicker=method)

@@ -6,11 +6,16 @@ numerically (closed form), [M] from memory.
 
 from __future__ import annotations
 
+import math
+
+import numpy as np
+
 __all__ = [
     "GM_DISCRETE",
     "DOUBLE_INTEGRATOR",
     "KASDIN_FLOOR",
     "KASDIN_REFERENCE_RUNS",
+    "gm_period_mean_autocov",
 ]
 
 #: First-order Gauss-Markov process, exact discretization Φ = exp(−dt/T), Qd = σ²(1 − e^(−2dt/T)):
@@ -32,3 +37,15 @@ KASDIN_FLOOR = 0.6642824703
 #: Seeded study in the reference notes (section 9): 4 runs of 2^20 samples, Q_d = 1, OADEV at
 #: m = 16, 256, 4096 [N] (a regression picture, not an assertion: the runs are not ours).
 KASDIN_REFERENCE_RUNS = {16: 0.6660, 256: 0.6653, 4096: 0.6634}
+
+
+def gm_period_mean_autocov(sigma2, T, dt, lags):
+    """Autocovariance of the period means of a Gauss-Markov process (variance σ², time
+    constant T) at lags j (in samples): the OU autocovariance σ²e^{−|s|/T} integrated over two
+    periods (derived): C(0) = 2σ²(T/dt)²(dt/T − 1 + e^{−dt/T}),
+    C(j ≥ 1) = σ²(T/dt)²(1 − e^{−dt/T})² e^{−(j−1)dt/T}."""
+    r = dt / T
+    j = np.asarray(lags, dtype=float)
+    c0 = 2 * sigma2 * (1 / r) ** 2 * (r - 1 + math.exp(-r))
+    cj = sigma2 * (1 / r) ** 2 * (-math.expm1(-r)) ** 2 * np.exp(-(j - 1) * r)
+    return np.where(j == 0, c0, cj)
