@@ -214,6 +214,32 @@ def _profile_time_constant(
     return t_best, best[0], best[1]
 
 
+def _null_gauss_markov(
+    c: _Curve, d: _Design, others: npt.NDArray[np.bool_], held: float, start: _FloatArray
+) -> tuple[_FloatArray, float]:
+    """The fit with the Gauss-Markov variance held at ``held`` (σ²): its time constant profiled
+    over the design's grid and refined (:func:`_profile_time_constant`), the ``others``
+    refitted beside it. Returns coefficients and T [s]."""
+    assert d.gm_grid is not None and d.gm_columns is not None
+    idx = np.flatnonzero(others)
+    phi_o = d.phi[:, idx]
+
+    def fit_with(column: _FloatArray) -> tuple[_FloatArray, float]:
+        offset = held * column
+        if idx.size == 0:
+            return np.zeros(0), _chi2(c.avar, offset, c.edf)
+        return _irls(c.avar, phi_o, d.edf, start, offset)
+
+    t_best, coef_o, _misfit = _profile_time_constant(
+        d.gm_grid,
+        lambda k: fit_with(d.gm_columns[k]),  # type: ignore[index]
+        lambda t: fit_with(_basis("gauss_markov", c.tau, c.rate, t)),
+    )
+    out = np.zeros(len(d.names))
+    out[idx] = coef_o
+    return out, t_best
+
+
 def _wls_matrix(phi: _FloatArray, model: _FloatArray, edf: _FloatArray) -> _FloatArray:
     """A with ĉ_u = A·â: unconstrained weighted least squares with var = 2 model²/edf."""
     w = edf / (2.0 * model**2)

@@ -2,13 +2,7 @@
 
 from __future__ import annotations
 
-__all__ = [
-    "DEFAULT_TERMS",
-    "KNOWN_TERMS",
-    "PARAMETERS",
-    "DEFAULT_CONFIDENCE",
-    "DEFAULT_BOOTSTRAP",
-]
+__all__ = ["DEFAULT_TERMS", "KNOWN_TERMS", "PARAMETERS", "DEFAULT_CONFIDENCE", "DEFAULT_BOOTSTRAP"]
 
 #: Terms fitted unless told otherwise (Gauss-Markov only on request).
 DEFAULT_TERMS: tuple[str, ...] = ("quantization", "white", "flicker", "random_walk", "ramp")
