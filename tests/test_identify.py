@@ -1,20 +1,11 @@
-"""identify.fit: noise terms from an Allan curve, their intervals, the classical slope readings.
+"""identify: noise terms from an Allan curve, their intervals, the classical slope readings,
+the test at a limit, through the package's public names.
 
-The "true" records of these tests come from generators written here with plain numpy,
-independent of sensormodel's simulators:
-
-* white noise of density N: independent normal samples of standard deviation N·√rate (each
-  sample the mean over its period of white noise of two-sided PSD N²; IEEE Std 952-1997
-  Annex C: AVAR N²/τ);
-* random walk of density K: the cumulative sum of independent normal steps of standard
-  deviation K·√dt (AVAR K²τ/3 + K² dt²/(6τ), the last part negligible here);
-* flicker of coefficient B: spectral synthesis (random Gaussian Fourier coefficients, J. Timmer
-  & M. König, Astron. Astrophys. 300:707-710, 1995) over 8 times the record length of the
-  one-sided PSD B²/(πf)·sinc²(f·dt) up to the Nyquist frequency (IEEE Std 952 Annex C 1/f
-  spectrum, two-sided B²/(2πf), of which each sample is the period mean); its Allan variance is
-  checked below against the exact Annex C form with the cut-off at the Nyquist frequency.
-
-The project's own simulator (sensormodel.simulate) is used in one further recovery test.
+The "true" records of these tests come from the independent generators of
+``tests/identify_records.py`` (plain numpy, independent of sensormodel's simulators); the
+flicker generator is checked here against the exact Annex C form. The project's own simulator
+(sensormodel.simulate) is used in one further recovery test. The bootstrap's own generator and
+Allan-variance engine are tested in ``tests/test_identify_bootstrap.py``.
 """
 
 from __future__ import annotations
@@ -24,58 +15,28 @@ import multiprocessing
 import os
 from concurrent.futures import ProcessPoolExecutor
 
-import allantools
 import numpy as np
 import pytest
+from identify_records import (
+    band_limited_white,
+    flicker,
+    flicker_avar,
+    mean_within,
+    oavar,
+    random_walk,
+    white,
+)
 from reference import ieee952
-from scipy.special import sici
 from scipy.stats import binom, chi2
 
 from sensormodel import identify
 from sensormodel.allan import overlapping
 from sensormodel.errors import AnalysisError
+from sensormodel.terms import Flicker, Quantization, Ramp, RandomWalk, White
 
 # ---------------------------------------------------------------------------------------------
-# independent generators and the published flicker form
+# the independent flicker generator and the published flicker form
 # ---------------------------------------------------------------------------------------------
-
-
-def white(rng: np.random.Generator, n: int, rate: float, density: float) -> np.ndarray:
-    """Period means of white noise of density N [u·√s]: std N·√rate (IEEE Std 952 Annex C)."""
-    return rng.standard_normal(n) * density * math.sqrt(rate)
-
-
-def random_walk(rng: np.random.Generator, n: int, rate: float, density: float) -> np.ndarray:
-    """A random walk of density K [u/√s]: cumulative sum of N(0, K² dt) steps."""
-    return np.cumsum(rng.standard_normal(n)) * density / math.sqrt(rate)
-
-
-def flicker(rng: np.random.Generator, n: int, rate: float, coefficient: float) -> np.ndarray:
-    """Period means of 1/f noise of coefficient B [u] (two-sided PSD B²/(2πf) up to rate/2).
-
-    Timmer & König (1995) spectral synthesis over L = 8n samples, the first n kept: Fourier
-    coefficients with E|Z_j|² = L·S1(f_j)/(2 dt), S1 the one-sided PSD of the period means.
-    """
-    length = 8 * n
-    dt = 1.0 / rate
-    f = np.fft.rfftfreq(length, d=dt)
-    s1 = np.zeros(f.size)
-    s1[1:] = coefficient**2 / (np.pi * f[1:]) * np.sinc(f[1:] * dt) ** 2
-    z = rng.standard_normal(f.size) + 1j * rng.standard_normal(f.size)
-    z *= np.sqrt(s1 * length / (4.0 * dt))
-    z[-1] = z[-1].real * math.sqrt(2.0)
-    return np.fft.irfft(z, n=length)[:n]
-
-
-def flicker_avar(tau: np.ndarray, coefficient: float, cutoff: float) -> np.ndarray:
-    """Exact Allan variance of 1/f noise with cut-off f0 (IEEE Std 952-1997 Annex C; reference
-    notes §3): (2B²/π)[ln2 − sin³x (sin x + 4x cos x)/(2x²) + Ci(2x) − Ci(4x)], x = π f0 τ."""
-    x = np.pi * cutoff * np.asarray(tau, dtype=float)
-    ci2 = sici(2.0 * x)[1]
-    ci4 = sici(4.0 * x)[1]
-    sx, cx = np.sin(x), np.cos(x)
-    bracket = math.log(2.0) - sx**3 * (sx + 4.0 * x * cx) / (2.0 * x**2) + ci2 - ci4
-    return 2.0 * coefficient**2 / np.pi * bracket
 
 
 def test_flicker_form_matches_published_values() -> None:
@@ -84,132 +45,12 @@ def test_flicker_form_matches_published_values() -> None:
         assert flicker_avar(np.array([tau]), 1.0, f0)[0] == pytest.approx(value, rel=1e-8)
 
 
-def _oavar(y: np.ndarray, m: np.ndarray) -> np.ndarray:
-    """Overlapping AVAR of rate samples at factors m (NIST SP 1065 eq. (11), phase form)."""
-    x = np.concatenate([[0.0], np.cumsum(y - y.mean())])
-    out = []
-    for k in m:
-        d = x[2 * k :] - 2.0 * x[k:-k] + x[: -2 * k]
-        out.append(np.mean(d * d) / (2.0 * k * k))
-    return np.array(out)
-
-
-def _mean_within(samples: np.ndarray, theory: np.ndarray, extra: float = 0.0) -> None:
-    """Assert the mean of R independent AVAR estimates (rows) matches theory at each τ.
-
-    Tolerance: 4 standard errors of the mean, s/√R, from the samples themselves (two-sided
-    p ≈ 6e-5 per τ, so about 1e-3 over a dozen τ), plus a stated systematic ``extra``.
-    """
-    r = samples.shape[0]
-    mean = samples.mean(axis=0)
-    se = samples.std(axis=0, ddof=1) / math.sqrt(r)
-    assert np.all(np.abs(mean - theory) <= 4.0 * se + extra * theory), (mean / theory, se / theory)
-
-
 def test_reference_flicker_generator_follows_the_exact_form() -> None:
     rng = np.random.default_rng(11)
     n, rate = 4096, 10.0
     m = 2 ** np.arange(11)
-    samples = np.array([_oavar(flicker(rng, n, rate, 1.0), m) for _ in range(400)])
-    _mean_within(samples, flicker_avar(m / rate, 1.0, rate / 2.0))
-
-
-def test_oavar_engine_matches_reference_libraries() -> None:
-    # the bootstrap's engine against allantools (reference library) and sensormodel.allan
-    rng = np.random.default_rng(3)
-    rate = 50.0
-    y = white(rng, 5000, rate, 0.3) + random_walk(rng, 5000, rate, 0.05)
-    curve = overlapping(y, rate)
-    ours = identify._Oavar(y.size, curve.m)(y)
-    np.testing.assert_allclose(np.sqrt(ours), curve.adev, rtol=1e-10)
-    taus, adev, _err, _n = allantools.oadev(y, rate=rate, data_type="freq", taus=curve.tau)
-    np.testing.assert_allclose(np.sqrt(ours), adev, rtol=1e-9)
-
-
-# ---------------------------------------------------------------------------------------------
-# the bootstrap simulator against the exact Allan variances (IEEE Std 952 Annex C)
-# ---------------------------------------------------------------------------------------------
-
-
-@pytest.mark.parametrize(
-    ("params", "time_constant", "extra"),
-    [
-        ({"white": 0.3}, None, 0.0),
-        # through a 1-pole output filter at 2 Hz (sample rate 10 Hz): a Gauss-Markov process
-        # of T = 1/(2π·2 Hz), σ² = N²·π·2 Hz (two-sided N²|B|² integrated), IEEE 952 Markov row
-        ({"white": 0.3, "white_filter": (2.0, 1)}, None, 0.0),
-        ({"quantization": 0.02}, None, 0.0),
-        ({"random_walk": 0.1}, None, 0.0),
-        # spectral synthesis over 2n samples with the slope for the missing band: within 1 %
-        # up to an eighth of the record (documented in _Simulator)
-        ({"flicker": 1.0}, None, 0.01),
-        ({"ramp": 0.01}, None, 0.0),
-        ({"gauss_markov": 0.5}, 2.0, 0.0),
-    ],
-    ids=[
-        "white",
-        "band-limited white",
-        "quantization",
-        "random_walk",
-        "flicker",
-        "ramp",
-        "gauss_markov",
-    ],
-)
-def test_simulator_has_the_exact_allan_variance(params, time_constant, extra) -> None:
-    n, rate = 4096, 10.0
-    m = 2 ** np.arange(10)  # τ up to n/8 samples
-    tau = m / rate
-    params = dict(params)
-    white_filter = params.pop("white_filter", None)
-    sim = identify._Simulator(params, time_constant, n, rate, white_filter)
-    rng = np.random.default_rng(5)
-    engine = identify._Oavar(n, m)
-    samples = np.array([engine(sim.record(rng)) for _ in range(300)])
-    (name, value), *_ = params.items()
-    if white_filter is not None:
-        name = "band-limited white"
-        bw = white_filter[0]
-        t_c = 1.0 / (2.0 * math.pi * bw)
-        sigma = value * math.sqrt(math.pi * bw)
-    theory = {
-        "white": lambda: ieee952.avar_white(tau, value),
-        "band-limited white": lambda: ieee952.avar_markov(tau, sigma * math.sqrt(2.0 / t_c), t_c),
-        "quantization": lambda: ieee952.avar_quantization(tau, value),
-        "random_walk": lambda: ieee952.avar_random_walk(tau, value),
-        "flicker": lambda: flicker_avar(tau, value, rate / 2.0),
-        "ramp": lambda: ieee952.avar_ramp(tau, value),
-        # Markov row with (q_c T_c)² = 2σ²T, i.e. q_c = σ√(2/T) (reference notes §2)
-        "gauss_markov": lambda: ieee952.avar_markov(
-            tau, value * math.sqrt(2.0 / time_constant), time_constant
-        ),
-    }[name]()
-    if name == "ramp":  # deterministic: exact to rounding
-        np.testing.assert_allclose(samples.mean(axis=0), theory, rtol=1e-9)
-    else:
-        _mean_within(samples, theory, extra)
-    if white_filter is not None:
-        # the fit's basis is the same curve (terms.White with the bandwidth), and far above
-        # the filter's time constant it is the plain white line
-        basis = identify._basis("white", tau, rate, white_filter=white_filter) * value**2
-        np.testing.assert_allclose(basis, theory, rtol=1e-9)
-        assert theory[0] < 0.7 * ieee952.avar_white(tau[0], value)
-        # (the relative gap is about 3T/(2τ), 2.3e-3 at τ = 51.2 s)
-        np.testing.assert_allclose(theory[-1], ieee952.avar_white(tau[-1], value), rtol=3e-3)
-
-
-def test_band_limited_white_spectrum_folds_every_alias() -> None:
-    # Σ_k sinc²(x + k) = 1 (the spectrum of period means of white noise is flat), and with a
-    # Butterworth |B|² the brute-force sum over 40 001 aliases (its own truncation ~1e-5)
-    f = np.fft.rfftfreq(1000, d=1 / 200.0)[1:]
-    np.testing.assert_allclose(identify._white_alias_sum(f, 200.0, None), 1.0)
-    np.testing.assert_allclose(identify._white_alias_sum(f, 200.0, (1e9, 2)), 1.0, atol=1e-6)
-    for bw, order in ((50.0, 1), (50.0, 3), (8000.0, 1)):
-        k = np.arange(-20_000, 20_001)[:, None]
-        g = f[None, :] + k * 200.0
-        brute = np.sum(np.sinc(g / 200.0) ** 2 / (1.0 + (g / bw) ** (2 * order)), axis=0)
-        got = identify._white_alias_sum(f, 200.0, (bw, order))
-        np.testing.assert_allclose(got, brute, rtol=2e-5)
+    samples = np.array([oavar(flicker(rng, n, rate, 1.0), m) for _ in range(400)])
+    mean_within(samples, flicker_avar(m / rate, 1.0, rate / 2.0))
 
 
 # ---------------------------------------------------------------------------------------------
@@ -258,29 +99,6 @@ def test_recovers_independent_record_within_intervals() -> None:
     assert np.all(stat <= chi2.ppf(0.9995, curve.edf)), stat
 
 
-def band_limited_white(
-    rng: np.random.Generator, n: int, rate: float, density: float, bandwidth: float
-) -> np.ndarray:
-    """Period means of white noise of density N through a 1-pole low-pass at ``bandwidth``.
-
-    That process is Gauss-Markov with T = 1/(2π·bandwidth) and σ² = N²·π·bandwidth (two-sided
-    N²/(1 + (f/bandwidth)²) integrated over f). Its point samples 64 times per period follow
-    the exact AR(1) step φ = e^(−h/T); each period mean is the average of its 64 points (the
-    rectangle rule: a variance error of order (h/T)²/12 ≈ 1e-4 here).
-    """
-    sub = 64
-    h = 1.0 / (rate * sub)
-    t_c = 1.0 / (2.0 * math.pi * bandwidth)
-    sigma = density * math.sqrt(math.pi * bandwidth)
-    phi = math.exp(-h / t_c)
-    drive = rng.standard_normal(n * sub) * sigma * math.sqrt(1.0 - phi**2)
-    drive[0] = rng.standard_normal() * sigma  # stationary start
-    from scipy.signal import lfilter
-
-    x = lfilter([1.0], [1.0, -phi], drive)
-    return x.reshape(n, sub).mean(axis=1)
-
-
 def test_band_limited_record_needs_its_bandwidth() -> None:
     # 2^15 samples at 100 Hz of white noise through a 1-pole filter at 20 Hz (a MEMS output
     # filter; the Allan deviation at τ = 10 ms is 0.48 of the white line) plus a random walk.
@@ -321,7 +139,6 @@ def test_recovers_project_simulator_record() -> None:
     # the same with a record from sensormodel.simulate (exact period means of the model)
     from sensormodel.model import Channel, NoiseModel
     from sensormodel.simulate import simulate
-    from sensormodel.terms import Flicker, RandomWalk, White
 
     truth = {"white": 1e-3, "flicker": 2e-4, "random_walk": 5e-5}
     channel = Channel(
@@ -400,7 +217,14 @@ def _coverage_trial(k: int) -> dict[str, tuple[float, float, float, bool, float,
     # the naive interval: weighted least squares with independent points of variance
     # 2·AVAR²/edf (what a per-point fit would state), 90 %, on the variance scale
     names = [ft.term for ft in result.terms]
-    phi = np.array([identify._basis(nm, curve.tau, RATE) for nm in names]).T
+    unit = {  # each term at unit parameter: its exact Allan variance (sensormodel.terms)
+        "quantization": Quantization(coefficient=1.0),
+        "white": White(density=1.0),
+        "flicker": Flicker(coefficient=1.0),
+        "random_walk": RandomWalk(density=1.0),
+        "ramp": Ramp(slope=1.0),
+    }
+    phi = np.array([unit[nm].allan_variance(curve.tau, sample_rate=RATE) for nm in names]).T
     coef = np.array([ft.estimate**2 for ft in result.terms])
     model = phi @ coef
     cov = np.linalg.pinv(phi.T @ (phi * (curve.edf / (2.0 * model**2))[:, None]))
@@ -498,6 +322,26 @@ def test_slope_readings_say_when_the_point_is_off_the_curve() -> None:
     assert readings["white"] == pytest.approx(1e-3, rel=1e-12)
     assert any(note.startswith("white: τ = 1 s is outside the curve") for note in notes)
     assert any("flicker: the Allan deviation still falls" in note for note in notes)
+
+
+def test_identification_carries_reason_codes_beside_its_notes() -> None:
+    # a record at 0.2 Hz: the curve starts at τ = 5 s, past both reading points (1 s and 3 s),
+    # so both readings are carried from its first point; each note has its code and numbers
+    rng = np.random.default_rng(6)
+    rate = 0.2
+    y = white(rng, 4096, rate, 1e-3) + random_walk(rng, 4096, rate, 1e-6)
+    result = identify.fit(_curve(y, rate), terms="white,random_walk", seed=1, n_boot=40)
+    carried = [r for r in result.reasons if r.code == "reading_carried"]
+    assert [(r.term, r.target) for r in carried] == [("white", 1.0), ("random_walk", 3.0)]
+    for r in carried:
+        assert r.tau == result.tau[0] == 5.0
+        assert r.curve == (result.tau[0], result.tau[-1])
+    assert len(result.reasons) == len(result.notes)
+    for r, note in zip(result.reasons, result.notes, strict=True):
+        assert isinstance(r, identify.SlopeNote)
+        assert note.startswith(r.term + ":")
+    # the readings' own notes are the same sentences
+    assert identify.slope_readings(result.tau, result.adev)[1] == result.notes
 
 
 def test_slope_reading_disagreement_is_flagged() -> None:

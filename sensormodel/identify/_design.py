@@ -1,0 +1,301 @@
+"""The fit engine: the bases (each term's exact Allan variance at unit parameter), the design
+matrix, non-negative iteratively reweighted least squares, the Gauss-Markov time-constant
+profile, and the fit on a subset of the terms.
+"""
+
+from __future__ import annotations
+
+import math
+from collections.abc import Callable, Sequence
+from dataclasses import dataclass
+from typing import Any
+
+import numpy as np
+import numpy.typing as npt
+
+from ..terms import Flicker, GaussMarkov, Quantization, Ramp, RandomWalk, White
+from ._checks import _Curve
+
+_FloatArray = npt.NDArray[np.float64]
+
+#: IRLS: most iterations and relative convergence tolerance of the coefficients.
+_IRLS_MAX = 20
+_IRLS_TOL = 1e-5
+#: Gauss-Markov time-constant grid for the profile: points per decade.
+_GM_PER_DECADE = 6
+
+
+# ---------------------------------------------------------------------------------------------
+# Basis functions (the exact Allan variances of sensormodel.terms at unit parameter)
+# ---------------------------------------------------------------------------------------------
+
+
+def _basis(
+    name: str,
+    tau: _FloatArray,
+    rate: float,
+    time_constant: float = 1.0,
+    white_filter: tuple[float, int] | None = None,
+) -> _FloatArray:
+    """The Allan variance of term ``name`` at unit parameter at ``tau`` [s] (a column of the
+    fit): the term's own exact form from :mod:`sensormodel.terms`."""
+    if name == "white":
+        term: Any = _white_term(1.0, white_filter)
+    elif name == "flicker":
+        term = Flicker(coefficient=1.0)
+    elif name == "random_walk":
+        term = RandomWalk(density=1.0)
+    elif name == "quantization":
+        term = Quantization(coefficient=1.0)
+    elif name == "ramp":
+        term = Ramp(slope=1.0)
+    else:
+        term = GaussMarkov(sigma=1.0, time_constant=time_constant)
+    return np.asarray(term.allan_variance(tau, sample_rate=rate), dtype=np.float64)
+
+
+def _white_term(density: float, white_filter: tuple[float, int] | None, **meta: Any) -> Any:
+    """White noise of density N [u·√s], band-limited by the sensor's output filter (bandwidth
+    [Hz], Butterworth order) when one is given."""
+    if white_filter is None:
+        return White(density=density, **meta)
+    return White(density=density, bandwidth=white_filter[0], filter_order=white_filter[1], **meta)
+
+
+# ---------------------------------------------------------------------------------------------
+# The fit engine
+# ---------------------------------------------------------------------------------------------
+
+
+@dataclass
+class _Design:
+    """The fixed (linear) part of the fit: basis matrix, weights, and the GM grid."""
+
+    names: tuple[str, ...]
+    tau: _FloatArray
+    rate: float
+    edf: _FloatArray
+    phi: _FloatArray  # (k, p) with the GM column (if any) filled per time constant
+    gm_index: int | None
+    gm_grid: _FloatArray | None
+    gm_columns: _FloatArray | None  # (n_grid, k)
+    white_filter: tuple[float, int] | None = None  # the white term's band limit
+
+    def with_gm(self, time_constant: float) -> _FloatArray:
+        phi = self.phi.copy()
+        if self.gm_index is not None:
+            phi[:, self.gm_index] = _basis("gauss_markov", self.tau, self.rate, time_constant)
+        return phi
+
+
+def _design(
+    names: tuple[str, ...], c: _Curve, white_filter: tuple[float, int] | None = None
+) -> _Design:
+    phi = np.zeros((c.tau.size, len(names)))
+    gm_index = None
+    for j, name in enumerate(names):
+        if name == "gauss_markov":
+            gm_index = j
+        else:
+            phi[:, j] = _basis(name, c.tau, c.rate, white_filter=white_filter)
+    grid = cols = None
+    if gm_index is not None:
+        lo = math.log10(c.tau[0] / 4.0)
+        hi = math.log10(c.tau[-1] * 2.0)
+        grid = 10.0 ** np.arange(lo, hi + 1e-9, 1.0 / _GM_PER_DECADE)
+        cols = np.array([_basis("gauss_markov", c.tau, c.rate, t) for t in grid])
+    return _Design(names, c.tau, c.rate, c.edf, phi, gm_index, grid, cols, white_filter)
+
+
+def _irls(
+    avar: _FloatArray,
+    phi: _FloatArray,
+    edf: _FloatArray,
+    start: _FloatArray | None = None,
+    offset: _FloatArray | None = None,
+) -> tuple[_FloatArray, float]:
+    """Non-negative least squares with weights from the fitted AVAR, iterated.
+
+    The first weights come from ``start`` (an AVAR curve, e.g. a previous fit) or else from the
+    measured values; every later one from the current fit, until the coefficients change by
+    less than a relative 1e-5. ``offset`` is a fixed part of the model (a term held at a given
+    value): the columns fit ``avar − offset``, the weights and χ² use the whole model. Returns
+    the coefficients (variance scale, c_k = p_k²) and χ² = Σ (â − m)² edf/(2 m²) with m the
+    fitted AVAR.
+    """
+    from scipy.optimize import nnls
+
+    fixed = np.zeros(avar.shape) if offset is None else offset
+    colscale = np.sqrt(np.sum(phi * phi, axis=0))
+    colscale[colscale == 0] = 1.0
+    ref = avar if start is None else start
+    c = np.zeros(phi.shape[1])
+    for _ in range(_IRLS_MAX):
+        s = ref * np.sqrt(2.0 / edf)
+        a = phi / s[:, None] / colscale
+        sol, _res = nnls(a, (avar - fixed) / s, maxiter=50 * phi.shape[1])
+        c_new = sol / colscale
+        model = phi @ c_new + fixed
+        floor = 1e-9 * float(np.max(model)) if np.max(model) > 0 else 0.0
+        if floor == 0.0:
+            c = c_new
+            break
+        ref = np.maximum(model, floor)
+        done = np.all(np.abs(c_new - c) <= _IRLS_TOL * np.maximum(np.abs(c_new), 1e-300))
+        c = c_new
+        if done:
+            break
+    return c, _chi2(avar, phi @ c + fixed, edf)
+
+
+def _chi2(avar: _FloatArray, model: _FloatArray, edf: _FloatArray) -> float:
+    """Σ (â − m)² edf/(2 m²): the misfit of a model AVAR m with var(â) = 2 m²/edf."""
+    model = np.maximum(model, 1e-300)
+    return float(np.sum((avar - model) ** 2 * edf / (2.0 * model**2)))
+
+
+def _fit_one(
+    avar: _FloatArray,
+    d: _Design,
+    *,
+    start: _FloatArray | None = None,
+    offset: _FloatArray | None = None,
+) -> tuple[_FloatArray, float, float | None]:
+    """Fit one Allan-variance vector: coefficients, χ², GM time constant (or None).
+
+    ``start`` only speeds up the iteration (first weights); the result is its fixed point.
+    ``offset``: a fixed part of the model (:func:`_irls`).
+    """
+    if d.gm_index is None:
+        c, chi2 = _irls(avar, d.phi, d.edf, start, offset)
+        return c, chi2, None
+    assert d.gm_grid is not None and d.gm_columns is not None
+    phi = d.phi.copy()
+    gm = d.gm_index
+
+    def fit_grid(k: int) -> tuple[_FloatArray, float]:
+        phi[:, gm] = d.gm_columns[k]  # type: ignore[index]
+        return _irls(avar, phi, d.edf, start, offset)
+
+    def fit_at(t: float) -> tuple[_FloatArray, float]:
+        return _irls(avar, d.with_gm(t), d.edf, start, offset)
+
+    t_best, c, chi2 = _profile_time_constant(d.gm_grid, fit_grid, fit_at)
+    return c, chi2, t_best
+
+
+def _profile_time_constant(
+    grid: _FloatArray,
+    fit_grid: Callable[[int], tuple[_FloatArray, float]],
+    fit_at: Callable[[float], tuple[_FloatArray, float]],
+) -> tuple[float, _FloatArray, float]:
+    """The Gauss-Markov time constant of least χ²: the best point of ``grid`` [s], refined in
+    log T between its neighbours (bounded golden-section search on a unimodal bracket) and kept
+    only if no worse. ``fit_grid(k)`` and ``fit_at(T)`` return (coefficients, χ²) at grid
+    point k and at any T. Returns (T, coefficients, χ²)."""
+    from scipy.optimize import minimize_scalar
+
+    results = [fit_grid(k) for k in range(grid.size)]
+    i = int(np.argmin([r[1] for r in results]))
+    t_best, best = float(grid[i]), results[i]
+    lo = math.log(grid[max(i - 1, 0)])
+    hi = math.log(grid[min(i + 1, grid.size - 1)])
+    if hi > lo:
+        res = minimize_scalar(
+            lambda logt: fit_at(math.exp(logt))[1],
+            bounds=(lo, hi),
+            method="bounded",
+            options={"xatol": 1e-3},
+        )
+        t = math.exp(float(res.x))
+        refined = fit_at(t)
+        if refined[1] <= best[1]:
+            t_best, best = t, refined
+    return t_best, best[0], best[1]
+
+
+def _null_gauss_markov(
+    c: _Curve, d: _Design, others: npt.NDArray[np.bool_], held: float, start: _FloatArray
+) -> tuple[_FloatArray, float]:
+    """The fit with the Gauss-Markov variance held at ``held`` (σ²): its time constant profiled
+    over the design's grid and refined (:func:`_profile_time_constant`), the ``others``
+    refitted beside it. Returns coefficients and T [s]."""
+    assert d.gm_grid is not None and d.gm_columns is not None
+    idx = np.flatnonzero(others)
+    phi_o = d.phi[:, idx]
+
+    def fit_with(column: _FloatArray) -> tuple[_FloatArray, float]:
+        offset = held * column
+        if idx.size == 0:
+            return np.zeros(0), _chi2(c.avar, offset, c.edf)
+        return _irls(c.avar, phi_o, d.edf, start, offset)
+
+    t_best, coef_o, _misfit = _profile_time_constant(
+        d.gm_grid,
+        lambda k: fit_with(d.gm_columns[k]),  # type: ignore[index]
+        lambda t: fit_with(_basis("gauss_markov", c.tau, c.rate, t)),
+    )
+    out = np.zeros(len(d.names))
+    out[idx] = coef_o
+    return out, t_best
+
+
+def _wls_matrix(phi: _FloatArray, model: _FloatArray, edf: _FloatArray) -> _FloatArray:
+    """A with ĉ_u = A·â: unconstrained weighted least squares with var = 2 model²/edf."""
+    w = edf / (2.0 * model**2)
+    colscale = np.sqrt(np.sum(phi * phi, axis=0))
+    colscale[colscale == 0] = 1.0
+    ps = phi / colscale
+    normal = ps.T @ (ps * w[:, None])
+    a = np.linalg.pinv(normal) @ (ps.T * w[None, :])
+    return a / colscale[:, None]
+
+
+@dataclass(frozen=True)
+class _RefitState:
+    """The parts of a fit that :func:`limit_test` repeats on new records."""
+
+    curve: _Curve
+    design: _Design
+    in_fit: npt.NDArray[np.bool_]
+    coef: _FloatArray
+    time_constant: float | None
+
+
+def _params(names: Sequence[str], coef: _FloatArray) -> dict[str, float]:
+    """SI parameters p_k = √c_k of a coefficient vector."""
+    return {nm: math.sqrt(max(float(v), 0.0)) for nm, v in zip(names, coef, strict=True)}
+
+
+def _phi(d: _Design, time_constant: float | None) -> _FloatArray:
+    """The design matrix with the Gauss-Markov column (if any) at ``time_constant`` [s]."""
+    return d.with_gm(time_constant) if (d.gm_index is not None and time_constant) else d.phi
+
+
+def _fit_subset(
+    avar: _FloatArray,
+    d: _Design,
+    mask: npt.NDArray[np.bool_],
+    *,
+    start: _FloatArray | None,
+    offset: _FloatArray | None = None,
+) -> tuple[_FloatArray, float | None]:
+    """Fit with the terms where ``mask`` is True; the others get 0 (plus ``offset``, a fixed
+    part of the model)."""
+    idx = np.flatnonzero(mask)
+    gm = d.gm_index if (d.gm_index is not None and mask[d.gm_index]) else None
+    sub = _Design(
+        names=tuple(d.names[i] for i in idx),
+        tau=d.tau,
+        rate=d.rate,
+        edf=d.edf,
+        phi=d.phi[:, idx],
+        gm_index=None if gm is None else int(np.flatnonzero(idx == gm)[0]),
+        gm_grid=d.gm_grid if gm is not None else None,
+        gm_columns=d.gm_columns if gm is not None else None,
+        white_filter=d.white_filter,
+    )
+    c_sub, _chi2, t = _fit_one(avar, sub, start=start, offset=offset)
+    out = np.zeros(len(d.names))
+    out[idx] = c_sub
+    return out, t
