@@ -56,7 +56,6 @@ non-overlapping clusters ⌊n/m⌋ for comparison).
 """
 
 from ..confidence import DEFAULT_CONFIDENCE, NOISE_ALPHAS, chi2_interval
-from ..validate import usable_cpus as _usable_cpus  # noqa: F401
 from ._curve import (
     CSV_HEADER,
     SCHEMA_FILE,
@@ -69,8 +68,6 @@ from ._curve import (
     curves_to_json,
 )
 from ._engine import (
-    _aligned_scratch,  # noqa: F401
-    _chunk_sums,  # noqa: F401
     aligned_scratch,
     overlapping,
     overlapping_from_increments,
@@ -79,9 +76,6 @@ from ._engine import (
 )
 from ._noise import NOISE_NAMES, noise_alpha
 from ._samples import averaging_factors, tau_grid
-
-# _usable_cpus, _chunk_sums and _aligned_scratch stay importable from here for modules written
-# before the public names (validate.usable_cpus, second_difference_sums, aligned_scratch).
 
 __all__ = [
     "AllanCurve",

@@ -86,11 +86,6 @@ def second_difference_sums(
     return np.array(sums)
 
 
-#: The names the bootstrap of :mod:`sensormodel.identify` used before the engine had public ones.
-_chunk_sums = second_difference_sums
-_aligned_scratch = aligned_scratch
-
-
 # ---------------------------------------------------------------------------------------------
 # The schedule: records, chunks and workers
 # ---------------------------------------------------------------------------------------------

@@ -16,7 +16,7 @@ from .._io import atomic_writer, check_writable, write_json
 from ..allan import SCHEMA_FILE, curves_to_csv, curves_to_json
 from ..confidence import DEFAULT_CONFIDENCE
 from ..errors import AnalysisError
-from ..identify import fit, to_model
+from ..identify import fit_recording, to_model
 from ..model import NoiseModel
 from ..pipeline import SEGMENT_POLICY, RecordingAnalysis, analyse
 from ..report import (
@@ -135,23 +135,16 @@ _FIT_OPTIONS = {"terms": "--terms", "confidence": "--confidence", "n_boot": "--b
 
 
 def _fit_channels(analysis: RecordingAnalysis, **options: Any) -> list[Any]:
-    """identify.fit of every analysed channel, one progress bar over all bootstrap records."""
-    results = []
-    n = len(analysis)
+    """identify.fit_recording of the analysed channels, one progress bar over all bootstrap
+    records; an argument error names the command's option."""
     with StderrBar("bootstrap") as bar:
-        for j, ch in enumerate(analysis):
-
-            def progress(done: int, total: int, j: int = j) -> None:
-                bar(j * total + done, n * total)
-
-            try:
-                results.append(fit(ch.curve, progress=progress, **options))
-            except AnalysisError as exc:  # name the option rather than the argument
-                option = _FIT_OPTIONS.get(exc.field or "")
-                if option is None:
-                    raise exc.located(source=analysis.recording.source) from None
-                raise AnalysisError(exc.problem, exc.expected, field=option) from None
-    return results
+        try:
+            return fit_recording(analysis, progress=bar, **options)
+        except AnalysisError as exc:  # name the option rather than the argument
+            option = _FIT_OPTIONS.get(exc.field or "")
+            if option is None:
+                raise exc.located(source=analysis.recording.source) from None
+            raise AnalysisError(exc.problem, exc.expected, field=option) from None
 
 
 @click.command("identify", context_settings=CONTEXT)

@@ -12,8 +12,9 @@ curve. The two meet in the theory they both follow (:mod:`sensormodel.terms`: th
 Allan variance), which the tests check each generator against.
 
 The Allan variance of each record is computed by the engine of
-:func:`sensormodel.allan.overlapping` (its block sums, :func:`sensormodel.allan._chunk_sums`),
-on the phase of the record held in a per-thread buffer (:class:`_BootstrapAllan`).
+:func:`sensormodel.allan.overlapping` (its block sums,
+:func:`sensormodel.allan.second_difference_sums`), on the phase of the record held in a
+per-thread buffer (:class:`_BootstrapAllan`).
 """
 
 from __future__ import annotations
@@ -30,7 +31,7 @@ import numpy as np
 import numpy.typing as npt
 
 from .. import validate
-from ..allan import _aligned_scratch, _chunk_sums
+from ..allan import aligned_scratch, second_difference_sums
 from ..errors import AnalysisError
 from ._checks import _Curve
 
@@ -229,8 +230,9 @@ class _BootstrapAllan:
     The estimator of :func:`sensormodel.allan.overlapping` (NIST SP 1065 section 5.2.4 eq. (11))
     on the phase x = τ0·cumsum(y − ȳ) with N = n + 1 points:
     Σ (x[i+2m] − 2x[i+m] + x[i])²/(2 m² τ0² (N − 2m)), written here with τ0 cancelled. The sums
-    are that engine's block sums (:func:`sensormodel.allan._chunk_sums`); the phase is built one
-    record at a time in a preallocated buffer, which one thread reuses for all its records.
+    are that engine's block sums (:func:`sensormodel.allan.second_difference_sums`); the phase
+    is built one record at a time in a preallocated buffer, which one thread reuses for all its
+    records.
     """
 
     def __init__(self, n: int, m: npt.NDArray[np.int64]) -> None:
@@ -240,7 +242,7 @@ class _BootstrapAllan:
             raise AnalysisError("averaging factors not increasing", "increasing m", field="m")
         self.x = np.empty(self.n + 1)
         # at least the engine's block (a record's length suffices for any block size)
-        self.scratch = _aligned_scratch(self.n + 1)
+        self.scratch = aligned_scratch(self.n + 1)
         self.denominator = 2.0 * self.m * self.m * (self.n + 1 - 2 * self.m)
 
     def __call__(self, y: _FloatArray) -> _FloatArray:
@@ -248,7 +250,7 @@ class _BootstrapAllan:
         x[0] = 0.0
         np.subtract(y, y.mean(), out=x[1:])
         np.cumsum(x[1:], out=x[1:])
-        sums = _chunk_sums(x, self.m, 0, n + 1 - 2 * int(self.m[0]), self.scratch)
+        sums = second_difference_sums(x, self.m, 0, n + 1 - 2 * int(self.m[0]), self.scratch)
         return np.asarray(sums / self.denominator, dtype=np.float64)
 
 

@@ -1,8 +1,6 @@
-"""Noise terms of a whole recording: every channel's overlapping Allan deviation, fitted.
-
-Each channel must be one clean segment today; :mod:`sensormodel.pipeline` is to own the path
-from a recording to a curve, with its one segment policy.
-"""
+"""Noise terms of a whole recording: each channel's Allan deviation from the one recording →
+analysis path (:func:`sensormodel.pipeline.analyse`, its segment policy), fitted by
+:func:`~sensormodel.identify.fit`."""
 
 from __future__ import annotations
 
@@ -10,88 +8,61 @@ from collections.abc import Sequence
 from typing import Any
 
 from .. import validate
-from ..allan import overlapping
-from ..errors import AnalysisError
+from ..pipeline import RecordingAnalysis, analyse
 from ._bootstrap import ProgressCallback
 from ._checks import _check_n_boot
 from ._fit import fit
-from ._names import DEFAULT_CONFIDENCE, DEFAULT_TERMS
+from ._names import DEFAULT_CONFIDENCE
 from ._results import Identification
 
 __all__ = ["fit_recording"]
 
 
 def fit_recording(
-    recording: Any,
+    source: Any,
     *,
     channels: Sequence[str] | None = None,
     taus: Any = None,
-    terms: Sequence[str] | str = DEFAULT_TERMS,
-    confidence: float = DEFAULT_CONFIDENCE,
-    seed: int | None = None,
-    n_boot: int | None = None,
     progress: ProgressCallback | None = None,
-    bandwidth: float | None = None,
-    filter_order: int | None = None,
+    **options: Any,
 ) -> list[Identification]:
-    """Identify every channel of a :class:`sensormodel.recording.Recording`.
-
-    The overlapping Allan deviation of each channel (:func:`sensormodel.allan.overlapping`,
-    τ grid ``taus``, default octaves) is fitted by :func:`fit`.
+    """Identify every channel of a recording.
 
     Parameters
     ----------
-    recording : Recording
-        From :func:`sensormodel.recording.read_recording`; each channel must be one clean
-        segment.
+    source : Recording or RecordingAnalysis
+        A recording from :func:`sensormodel.recording.read_recording` (analysed here by
+        :func:`sensormodel.pipeline.analyse`: the longest clean segment of each channel, its
+        overlapping Allan deviation on the τ grid ``taus``, default octaves), or its analysis
+        already made.
     channels : sequence of str, optional
-        Channel ids to identify (default all).
+        Channel ids to identify, for a recording (default all).
     taus : optional
-        τ grid for the Allan deviation (see :func:`sensormodel.allan.tau_grid`).
-    terms, confidence, seed, n_boot, progress, bandwidth, filter_order
-        As for :func:`fit` (the same output filter for every channel); ``progress(done,
-        total)`` counts bootstrap records over all channels.
+        τ grid for the Allan deviation of a recording (see :func:`sensormodel.allan.tau_grid`).
+    progress : callable, optional
+        ``progress(done, total)`` over the bootstrap records of all channels.
+    **options
+        The keyword arguments of :func:`~sensormodel.identify.fit` (terms, confidence, seed,
+        n_boot, bandwidth, filter_order), the same for every channel.
+
+    Returns
+    -------
+    list of Identification
+        One per channel, in the analysis' order.
     """
-    ids = list(recording.channels) if not channels else list(channels)
-    for cid in ids:
-        if cid not in recording.channels:
-            raise AnalysisError(
-                f"no channel {cid!r} in the recording",
-                f"one of {', '.join(recording.channels)}",
-                source=getattr(recording, "source", None),
-                field="channel",
-            )
+    analysis = source
+    if not isinstance(source, RecordingAnalysis):
+        analysis = analyse(source, channels=channels, taus=taus)
+    # argument errors before any channel's work
+    confidence = validate.probability(options.get("confidence", DEFAULT_CONFIDENCE))
+    _check_n_boot(options.get("n_boot"), confidence)
     out = []
-    total = len(ids) * _check_n_boot(n_boot, validate.probability(confidence, "confidence"))
-    for k, cid in enumerate(ids):
-        segs = recording.segments[cid]
-        if len(segs) != 1:
-            raise AnalysisError(
-                f"channel {cid} has {len(segs)} clean segments",
-                "one uniform record per channel (cut the recording at its gaps first)",
-                source=getattr(recording, "source", None),
-                field=cid,
-            )
-        s = segs[0]
-        y = recording.data[cid][s.start : s.stop]
-        curve = overlapping(y, recording.rate, taus=taus, unit=recording.units[cid], channel=cid)
-        base = k * (total // len(ids))
+    for k, ch in enumerate(analysis):
         sub = None
         if progress is not None:
 
-            def sub(done: int, _tot: int, base: int = base) -> None:
-                progress(base + done, total)
+            def sub(done: int, total: int, k: int = k) -> None:
+                progress(k * total + done, len(analysis) * total)
 
-        out.append(
-            fit(
-                curve,
-                terms=terms,
-                confidence=confidence,
-                seed=seed,
-                n_boot=n_boot,
-                progress=sub,
-                bandwidth=bandwidth,
-                filter_order=filter_order,
-            )
-        )
+        out.append(fit(ch.curve, progress=sub, **options))
     return out
