@@ -14,6 +14,7 @@ from .convert import build_model
 from .datasheet import load_datasheet
 from .errors import *  # noqa: F403 - the exception hierarchy, re-exported whole
 from .model import Channel, NoiseModel
+from .recording import read_recording
 from .simulate import simulate
 
 __all__ = [
@@ -21,6 +22,7 @@ __all__ = [
     "load_datasheet",
     "build_model",
     "simulate",
+    "read_recording",
     "NoiseModel",
     "Channel",
     *_errors.__all__,
