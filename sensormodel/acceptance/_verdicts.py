@@ -181,8 +181,6 @@ class ChannelVerdict:
         The measured :class:`sensormodel.allan.AllanCurve`.
     duration : float
         Record length analysed [s].
-    rate : float
-        Sample rate [Hz].
     psd : PSDResult or None
         One-sided Welch PSD [u²/Hz] of the analysed segment in logarithmic bins
         (:func:`sensormodel.pipeline.analyse`), when a recording was given; for figures only.
@@ -197,8 +195,12 @@ class ChannelVerdict:
     identification: Any
     allan: Any
     duration: float
-    rate: float
     psd: Any = None
+
+    @property
+    def rate(self) -> float:
+        """Sample rate [Hz] (of the measured curve ``allan``)."""
+        return float(self.allan.sample_rate)
 
     @property
     def verdict(self) -> str:
