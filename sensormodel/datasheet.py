@@ -58,6 +58,7 @@ __all__ = [
     "load_datasheet",
     "parse_datasheet",
     "datasheet_schema",
+    "check_keys",
 ]
 
 
@@ -189,7 +190,29 @@ def _suggest(key: str, known: list[str]) -> str:
     return f" (did you mean '{close[0]}'?)" if close else ""
 
 
-def _check_keys(table: dict[str, Any], known: list[str], where: str, source: str) -> None:
+def check_keys(table: dict[str, Any], known: list[str], where: str, source: str) -> None:
+    """Refuse a key of a TOML table that is not in ``known``, suggesting the nearest name.
+
+    The one unknown-key check of every TOML table the library reads (datasheets, spectrum
+    files).
+
+    Parameters
+    ----------
+    table : dict
+        The table as read.
+    known : list of str
+        The keys it may hold.
+    where : str
+        The table's dotted name (``sensor``, ``gyro.z``, ``spectrum``): the error's field is
+        ``<where>.<key>``.
+    source : str
+        The file, for the error.
+
+    Raises
+    ------
+    DatasheetError
+        ``unknown key '<key>' (did you mean '<name>'?)``, located at the file and field.
+    """
     for key in table:
         if key not in known:
             raise DatasheetError(
@@ -202,7 +225,7 @@ def _check_keys(table: dict[str, Any], known: list[str], where: str, source: str
 
 def _parse_spec(value: Any, kind: str, where: str, source: str) -> SpecValue:
     if isinstance(value, dict):
-        _check_keys(value, ["typ", "max"], where, source)
+        check_keys(value, ["typ", "max"], where, source)
         if not value:
             raise DatasheetError(
                 "empty table", '{ typ = "…" } and/or { max = "…" }', source=source, field=where
@@ -401,7 +424,7 @@ def _sensor_table(data: dict[str, Any], source: str) -> dict[str, Any]:
         "filter_order",
         *CONVENTIONS,
     ]
-    _check_keys(sensor, sensor_known, "sensor", source)
+    check_keys(sensor, sensor_known, "sensor", source)
     for key in _SENSOR_TEXT_KEYS:
         if key in sensor and not isinstance(sensor[key], str):
             raise DatasheetError(
@@ -417,7 +440,7 @@ def _instrument(
     if not isinstance(table, dict):
         raise DatasheetError(f"got {table!r}", "a table", source=source, field=name)
     keys = list(FIELDS[name])
-    _check_keys(table, [*keys, *CONVENTIONS, "filter_order", "axes", *_AXES], name, source)
+    check_keys(table, [*keys, *CONVENTIONS, "filter_order", "axes", *_AXES], name, source)
     inst_axes = _axes(table["axes"], f"{name}.axes", source) if "axes" in table else axes
     level = base.below(table, keys, name, name, source)
     per_axis = {}
@@ -449,7 +472,7 @@ def _axis_spec(
                 field=f"{name}.{axis}",
             )
         keys = list(FIELDS[name])
-        _check_keys(override, [*keys, *CONVENTIONS, "filter_order"], f"{name}.{axis}", source)
+        check_keys(override, [*keys, *CONVENTIONS, "filter_order"], f"{name}.{axis}", source)
         level = level.below(override, keys, name, f"{name}.{axis}", source)
         for key in ("angle_random_walk", "velocity_random_walk", "noise_density"):
             if key in override:

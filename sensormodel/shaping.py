@@ -30,7 +30,7 @@ from typing import Any
 import numpy as np
 import numpy.typing as npt
 
-from .datasheet import _check_keys  # the one unknown-key check of TOML tables
+from .datasheet import check_keys
 from .errors import AnalysisError, DatasheetError, RecordingError
 from .model import Channel, NoiseModel
 from .pipeline import analysed_segment
@@ -154,7 +154,7 @@ def read_spectrum_table(path: str) -> SpectrumTable:
             source=path,
             field="spectrum",
         )
-    _check_keys(table, _TABLE_KEYS, "spectrum", path)
+    check_keys(table, _TABLE_KEYS, "spectrum", path)
     num, den = (_table_polynomial(table, part, path) for part in ("numerator", "denominator"))
     rate = None
     if "sample_rate" in table:

@@ -28,6 +28,21 @@ __all__ = [
 ]
 
 
+def _number(value: Any, name: str, expected: str) -> tuple[float, Any]:
+    """``float(value)`` and the value as messages show it, or AnalysisError(``got <value>;
+    expected <expected>``) naming ``name``.
+
+    A boolean is read (and shown) as NaN: ``float(True)`` is 1.0, never a meant number, so the
+    caller's range check refuses it with its own message.
+    """
+    if isinstance(value, bool):
+        return math.nan, math.nan
+    try:
+        return float(value), value
+    except (TypeError, ValueError):
+        raise AnalysisError(f"got {value!r}", expected, field=name) from None
+
+
 def probability(value: Any, name: str = "confidence", *, example: str = "0.9") -> float:
     """A probability strictly between 0 and 1 (a confidence, a power, a quantile).
 
@@ -44,14 +59,7 @@ def probability(value: Any, name: str = "confidence", *, example: str = "0.9") -
     -------
     float
     """
-    if isinstance(value, bool):
-        value = math.nan
-    try:
-        c = float(value)
-    except (TypeError, ValueError):
-        raise AnalysisError(
-            f"got {value!r}", f"a probability between 0 and 1, e.g. {example}", field=name
-        ) from None
+    c, value = _number(value, name, f"a probability between 0 and 1, e.g. {example}")
     if not 0.0 < c < 1.0:
         raise AnalysisError(
             f"got {value!r}", f"a probability strictly between 0 and 1, e.g. {example}", field=name
@@ -61,14 +69,7 @@ def probability(value: Any, name: str = "confidence", *, example: str = "0.9") -
 
 def rate(value: Any, name: str = "rate") -> float:
     """A sample rate [Hz]: a finite number > 0."""
-    if isinstance(value, bool):
-        value = math.nan
-    try:
-        r = float(value)
-    except (TypeError, ValueError):
-        raise AnalysisError(
-            f"got {value!r}", "a sample rate in Hz (a positive number)", field=name
-        ) from None
+    r, value = _number(value, name, "a sample rate in Hz (a positive number)")
     if not (math.isfinite(r) and r > 0.0):
         raise AnalysisError(f"got {value!r} Hz", "a finite sample rate > 0 Hz", field=name)
     return r

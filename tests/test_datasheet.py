@@ -12,7 +12,13 @@ import jsonschema
 import pytest
 from reference import units as ref
 
-from sensormodel.datasheet import CONVENTIONS, FIELDS, load_datasheet, parse_datasheet
+from sensormodel.datasheet import (
+    CONVENTIONS,
+    FIELDS,
+    check_keys,
+    load_datasheet,
+    parse_datasheet,
+)
 from sensormodel.errors import DatasheetError, SensorModelError, UnitError
 
 SCHEMAS = pathlib.Path(__file__).resolve().parent.parent / "schemas"
@@ -538,3 +544,13 @@ def test_values_are_finite_floats(example_datasheet):
         for spec in ax.values.values():
             for v in (spec.typ, spec.max):
                 assert v is None or (isinstance(v, float) and math.isfinite(v) and v >= 0)
+
+
+def test_check_keys_refuses_an_unknown_key_with_the_nearest_name():
+    check_keys({"typ": 1, "max": 2}, ["typ", "max"], "gyro.arw", "unit.toml")  # all known
+    with pytest.raises(DatasheetError) as info:
+        check_keys({"typ": 1, "maks": 2}, ["typ", "max"], "gyro.arw", "unit.toml")
+    assert info.value.field == "gyro.arw.maks"
+    assert info.value.source == "unit.toml"
+    assert "did you mean 'max'?" in info.value.problem
+    assert info.value.expected == "one of typ, max"

@@ -39,6 +39,14 @@ DEFAULT_CONFIDENCE = DECISION_CONFIDENCE
 DEFAULT_PRECISION = 0.25
 
 
+def _verdict(failed: bool, passed: bool) -> str:
+    """The one ranking of the three verdicts: ``fail`` outranks ``pass``; neither is
+    ``inconclusive``."""
+    if failed:
+        return "fail"
+    return "pass" if passed else "inconclusive"
+
+
 def decide(low: float, high: float, limit: float) -> str:
     """The verdict of an interval [low, high] against an upper limit.
 
@@ -55,22 +63,14 @@ def decide(low: float, high: float, limit: float) -> str:
         )
     if low > high:
         raise AnalysisError(f"interval [{low}, {high}]", "low <= high", field="interval")
-    if high <= limit:
-        return "pass"
-    if low > limit:
-        return "fail"
-    return "inconclusive"
+    return _verdict(failed=low > limit, passed=high <= limit)  # never both: low <= high
 
 
 def combine(verdicts: Sequence[str]) -> str:
     """Overall verdict: ``fail`` if any fails, ``pass`` if all pass (and there is at least one),
     else ``inconclusive``."""
     v = list(verdicts)
-    if "fail" in v:
-        return "fail"
-    if v and all(x == "pass" for x in v):
-        return "pass"
-    return "inconclusive"
+    return _verdict(failed="fail" in v, passed=bool(v) and all(x == "pass" for x in v))
 
 
 @dataclass(frozen=True)
@@ -157,11 +157,7 @@ class CurveCheck:
     @property
     def verdict(self) -> str:
         """``fail`` if exceeded anywhere, ``pass`` if within everywhere, else ``inconclusive``."""
-        if self.exceeded:
-            return "fail"
-        if bool(np.all(self.within)):
-            return "pass"
-        return "inconclusive"
+        return _verdict(failed=bool(self.exceeded), passed=bool(np.all(self.within)))
 
 
 @dataclass(frozen=True)
@@ -185,8 +181,6 @@ class ChannelVerdict:
         The measured :class:`sensormodel.allan.AllanCurve`.
     duration : float
         Record length analysed [s].
-    rate : float
-        Sample rate [Hz].
     psd : PSDResult or None
         One-sided Welch PSD [u²/Hz] of the analysed segment in logarithmic bins
         (:func:`sensormodel.pipeline.analyse`), when a recording was given; for figures only.
@@ -201,8 +195,12 @@ class ChannelVerdict:
     identification: Any
     allan: Any
     duration: float
-    rate: float
     psd: Any = None
+
+    @property
+    def rate(self) -> float:
+        """Sample rate [Hz] (of the measured curve ``allan``)."""
+        return float(self.allan.sample_rate)
 
     @property
     def verdict(self) -> str:

@@ -136,7 +136,6 @@ def verify_curve(
         identification=identification,
         allan=curve,
         duration=float(duration),
-        rate=rate,
     )
 
 

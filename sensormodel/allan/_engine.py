@@ -4,6 +4,7 @@ records on one pool of worker threads, and the public functions over it (private
 
 from __future__ import annotations
 
+import dataclasses
 import math
 import threading
 from collections.abc import Callable, Iterable
@@ -134,24 +135,31 @@ class _Job:
         return self.n + sum(self.chunk_work)
 
 
+@dataclass(frozen=True)
+class _Request:
+    """The keyword arguments every public function shares, applied to each of its records."""
+
+    taus: Any
+    confidence: Any
+    noise_type: Any
+    workers: Any
+    #: The worker count's argument name in messages (``threads`` or ``workers``).
+    workers_name: str
+    progress: ProgressCallback | None
+
+
 def _job(
-    index: int,
-    y: Any,
-    rate: float,
-    scale: float,
-    *,
-    name: str,
-    taus: Any,
-    confidence: float,
-    noise_type: Any,
-    unit: str,
-    channel: str,
+    index: int, y: Any, rate: float, scale: float, label: tuple[str, str, str], request: _Request
 ) -> _Job:
-    """Check one record's arguments and lay out its chunks (no pass over the samples yet)."""
+    """Check one record's arguments and lay out its chunks (no pass over the samples yet).
+
+    ``label`` is (name in messages, channel id, unit label); ``request.confidence`` is checked.
+    """
+    name, channel, unit = label
     arr = _as_samples(y, name)
     n = arr.shape[0]
-    ms = averaging_factors(n, rate, taus)
-    fixed = _noise_types(noise_type, len(ms))
+    ms = averaging_factors(n, rate, request.taus)
+    fixed = _noise_types(request.noise_type, len(ms))
     n_phase = n + 1
     n_diff = n_phase - 2 * ms
     ends = [int(e) for e in n_diff]
@@ -165,7 +173,7 @@ def _job(
         scale=scale,
         ms=ms,
         fixed=fixed,
-        confidence=confidence,
+        confidence=request.confidence,
         unit=unit,
         channel=channel,
         chunks=chunks,
@@ -378,41 +386,26 @@ def _default_workers(jobs: list[_Job]) -> int:
 def _run(
     items: list[Any],
     rate: Any,
-    *,
-    names: list[str],
-    ids: list[str],
-    units: list[str],
+    labels: tuple[list[str], list[str], list[str]],
     increments: bool,
-    taus: Any,
-    confidence: Any,
-    noise_type: Any,
-    workers: Any,
-    workers_name: str,
-    progress: ProgressCallback | None,
+    request: _Request,
 ) -> list[AllanCurve]:
-    """The one path of every public function: check, lay out the jobs, run the schedule."""
+    """The one path of every public function: check, lay out the jobs, run the schedule.
+
+    ``labels`` is (names in messages, channel ids, unit labels), one of each per record.
+    """
     rate = validate.rate(rate)
-    confidence = validate.probability(confidence, "confidence", example="0.683")
-    count = validate.workers(workers, workers_name)
+    confidence = validate.probability(request.confidence, "confidence", example="0.683")
+    request = dataclasses.replace(request, confidence=confidence)
+    count = validate.workers(request.workers, request.workers_name)
     scale = 1.0 if increments else 1.0 / rate
     jobs = [
-        _job(
-            i,
-            y,
-            rate,
-            scale,
-            name=names[i],
-            taus=taus,
-            confidence=confidence,
-            noise_type=noise_type,
-            unit=units[i],
-            channel=ids[i],
-        )
-        for i, y in enumerate(items)
+        _job(i, y, rate, scale, label, request)
+        for i, (y, label) in enumerate(zip(items, zip(*labels, strict=True), strict=True))
     ]
     if count is None:
         count = _default_workers(jobs)
-    return _Schedule(jobs, count).run(progress)
+    return _Schedule(jobs, count).run(request.progress)
 
 
 def _records(records: Any) -> list[Any]:
@@ -530,20 +523,8 @@ def overlapping(
     >>> np.round(curve.adev * np.sqrt(curve.tau) / (0.01 * np.sqrt(0.01)), 1)
     array([1., 1.])
     """
-    (curve,) = _run(
-        [y],
-        rate,
-        names=["y"],
-        ids=[channel],
-        units=[unit],
-        increments=False,
-        taus=taus,
-        confidence=confidence,
-        noise_type=noise_type,
-        workers=threads,
-        workers_name="threads",
-        progress=progress,
-    )
+    request = _Request(taus, confidence, noise_type, threads, "threads", progress)
+    (curve,) = _run([y], rate, (["y"], [channel], [unit]), False, request)
     return curve
 
 
@@ -584,20 +565,8 @@ def overlapping_from_increments(
     AllanCurve
         Allan deviation of the rate [unit of dx / s].
     """
-    (curve,) = _run(
-        [dx],
-        rate,
-        names=["dx"],
-        ids=[channel],
-        units=[unit],
-        increments=True,
-        taus=taus,
-        confidence=confidence,
-        noise_type=noise_type,
-        workers=threads,
-        workers_name="threads",
-        progress=progress,
-    )
+    request = _Request(taus, confidence, noise_type, threads, "threads", progress)
+    (curve,) = _run([dx], rate, (["dx"], [channel], [unit]), True, request)
     return curve
 
 
@@ -680,18 +649,5 @@ def overlapping_many(
     True
     """
     items = _records(records)
-    names, ids, unit_list = _labels(len(items), units, channels)
-    return _run(
-        items,
-        rate,
-        names=names,
-        ids=ids,
-        units=unit_list,
-        increments=increments,
-        taus=taus,
-        confidence=confidence,
-        noise_type=noise_type,
-        workers=workers,
-        workers_name="workers",
-        progress=progress,
-    )
+    request = _Request(taus, confidence, noise_type, workers, "workers", progress)
+    return _run(items, rate, _labels(len(items), units, channels), increments, request)

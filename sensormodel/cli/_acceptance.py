@@ -11,7 +11,7 @@ from .._io import check_writable
 from ..acceptance import plan, verify
 from ..datasheet import load_datasheet
 from ..report import plan_text, verdict_text, write_verdict_html, write_verdict_json
-from ._app import CONTEXT, force_option, guarded, status
+from ._app import CONTEXT, force_option, guarded, output_option, status
 from ._options import RecordingOptions, recording_options
 from ._types import RATE, Fraction, Probability
 
@@ -36,10 +36,10 @@ _ACCEPTANCE_HELP = (
               help="Two-sided confidence of the intervals (each one-sided error ≤ (1−C)/2).")
 @click.option("--power", type=Probability("0.8"), default=0.8, show_default=True,
               help="Probability with which the suggested record length decides a term.")
-@click.option("--report", "report_file", type=click.Path(dir_okay=False), default=None,
-              help="Write the HTML report (and one PNG per figure beside it).")
-@click.option("--json", "json_file", type=click.Path(dir_okay=False), default=None,
-              help="Write the verdict report as JSON (schema sensormodel/verdict-report/1, SI).")
+@output_option("--report", "report_file",
+               help="Write the HTML report (and one PNG per figure beside it).")
+@output_option("--json", "json_file",
+               help="Write the verdict report as JSON (schema sensormodel/verdict-report/1, SI).")
 @recording_options
 @click.option("--only", "only", multiple=True, metavar="CHANNEL_ID",
               help="Verify only this channel (repeatable).")

@@ -26,6 +26,7 @@ __all__ = [
     "cli",
     "echo_findings",
     "force_option",
+    "output_option",
     "guarded",
     "main",
     "status",
@@ -69,6 +70,11 @@ def guarded(func: Callable[..., Any]) -> Callable[..., Any]:
 def force_option(func: Callable[..., Any]) -> Callable[..., Any]:
     """The ``--force`` flag of every command that writes files."""
     return click.option("--force", is_flag=True, help="Overwrite an existing output file.")(func)
+
+
+def output_option(flag: str, dest: str, help: str) -> Callable[[Any], Any]:
+    """An optional output file option (``--json``, ``--plot``, ``--report``) stored as ``dest``."""
+    return click.option(flag, dest, type=click.Path(dir_okay=False), default=None, help=help)
 
 
 class StderrBar:

@@ -28,7 +28,7 @@ from ..report import (
     shape_summary,
 )
 from ..shaping import DEFAULT_CHANNEL, shape
-from ._app import CONTEXT, force_option, guarded
+from ._app import CONTEXT, force_option, guarded, output_option
 from ._types import DURATION, RATE, TIME_STEP, FormatList, Orders
 
 __all__ = ["COMMANDS"]
@@ -71,9 +71,9 @@ def build(datasheet: str, output: str, worst_case: bool, force: bool) -> None:
                    "(default: the channel's).")
 @click.option("--channel", "channels", multiple=True,
               help="Show only this channel (repeatable), e.g. --channel gyro.z.")
-@click.option("--plot", "plot_file", type=click.Path(dir_okay=False), default=None,
-              help="Write a figure: log-log Allan deviation of each term and the sum, and the "
-                   "one-sided PSD, per channel (.png, .pdf or .svg).")
+@output_option("--plot", "plot_file",
+               help="Write a figure: log-log Allan deviation of each term and the sum, and the "
+                    "one-sided PSD, per channel (.png, .pdf or .svg).")
 @force_option
 @guarded
 def inspect(model_file: str, rate: float | None, channels: tuple[str, ...],
@@ -161,10 +161,10 @@ def export_command(model_file: str, dt: float, formats: list[str] | None, output
               help="Only this channel (repeatable).")
 @click.option("--points", type=click.IntRange(min=2), default=121, show_default=True,
               help="Log-spaced times of the curve (JSON, plot).")
-@click.option("--json", "json_file", type=click.Path(dir_okay=False), default=None,
-              help="Write the curves as JSON (schema sensormodel/drift/1, SI, 1σ).")
-@click.option("--plot", "plot_file", type=click.Path(dir_okay=False), default=None,
-              help="Write a log-log figure (.png, .pdf or .svg).")
+@output_option("--json", "json_file",
+               help="Write the curves as JSON (schema sensormodel/drift/1, SI, 1σ).")
+@output_option("--plot", "plot_file",
+               help="Write a log-log figure (.png, .pdf or .svg).")
 @force_option
 @guarded
 def drift_command(model_file: str, horizon: float, channels: tuple[str, ...], points: int,

@@ -10,7 +10,7 @@ from __future__ import annotations
 
 import functools
 from collections.abc import Callable, Sequence
-from dataclasses import dataclass
+from dataclasses import dataclass, fields
 from typing import Any
 
 import click
@@ -25,7 +25,8 @@ __all__ = ["RecordingOptions", "recording_options"]
 
 @dataclass(frozen=True)
 class RecordingOptions:
-    """How to read a recording, as the options gave it (see :func:`read_recording`).
+    """How to read a recording, as the options gave it: the keyword arguments of
+    :func:`read_recording` of the same names.
 
     Attributes
     ----------
@@ -52,17 +53,10 @@ class RecordingOptions:
 
     def read(self, path: str) -> Recording:
         """Read ``path`` with these options, a progress bar on a terminal."""
+        # the fields are read_recording's keyword arguments, by name
+        arguments = {f.name: getattr(self, f.name) for f in fields(self)}
         with StderrBar("reading") as bar:
-            return read_recording(
-                path,
-                rate=self.rate,
-                unit=self.unit,
-                increments=self.increments,
-                columns=self.columns,
-                channel_map=self.channel_map,
-                gaps=self.gaps,
-                progress=bar,
-            )
+            return read_recording(path, progress=bar, **arguments)
 
 
 def _units(ctx: click.Context, param: click.Parameter, value: Sequence[Any]) -> Any:

@@ -74,6 +74,25 @@ class _Checked(click.ParamType):
         self.fail(str(AnalysisError(f"{self.label(param)} {value}", expected)), param, ctx)
 
 
+class _Parsed(_Checked):
+    """A type that parses text into a ``converted`` value (a tuple, a list).
+
+    click also passes values that are already converted (defaults, values given from Python);
+    they go through unchanged, and only text reaches :meth:`parse`.
+    """
+
+    converted: type = tuple
+
+    def convert(self, value: Any, param: click.Parameter | None, ctx: click.Context | None) -> Any:
+        if isinstance(value, self.converted):
+            return value
+        return self.parse(str(value), param, ctx)
+
+    def parse(self, text: str, param: click.Parameter | None, ctx: click.Context | None) -> Any:
+        """The value of the option text ``text`` (refusals through :meth:`refuse`)."""
+        raise NotImplementedError
+
+
 class Quantity(_Checked):
     """A positive, finite quantity in SI: a bare number is SI; otherwise a value with its unit.
 
@@ -177,22 +196,20 @@ class TauGrid(_Checked):
         return [TIME_STEP.convert(part, param, ctx) for part in value.split(",") if part.strip()]
 
 
-class ChannelPair(_Checked):
+class ChannelPair(_Parsed):
     """``COLUMN=CHANNEL_ID``, e.g. ``rate_z=gyro.z`` → ``("rate_z", "gyro.z")``."""
 
     name = "channel map"
 
-    def convert(self, value: Any, param: click.Parameter | None, ctx: click.Context | None) -> Any:
-        if isinstance(value, tuple):
-            return value
+    def parse(self, text: str, param: click.Parameter | None, ctx: click.Context | None) -> Any:
         try:
-            ((column, channel),) = parse_channel_map([value]).items()
+            ((column, channel),) = parse_channel_map([text]).items()
         except RecordingError as exc:
             self.fail(str(exc), param, ctx)
         return column, channel
 
 
-class UnitSpec(_Checked):
+class UnitSpec(_Parsed):
     """``U`` (every column without a unit) or ``COLUMN=U`` → ``(None, U)`` or ``(COLUMN, U)``.
 
     The unit itself is checked by the recording reader, which knows the column's quantity.
@@ -200,15 +217,13 @@ class UnitSpec(_Checked):
 
     name = "unit"
 
-    def convert(self, value: Any, param: click.Parameter | None, ctx: click.Context | None) -> Any:
-        if isinstance(value, tuple):
-            return value
-        column, sep, unit = str(value).partition("=")
+    def parse(self, text: str, param: click.Parameter | None, ctx: click.Context | None) -> Any:
+        column, sep, unit = text.partition("=")
         if not sep:
             return None, column.strip()
         if not column.strip() or not unit.strip():
             self.fail(
-                str(RecordingError(f"--unit {value}", "COLUMN=UNIT, e.g. gyro_x=deg/s")), param, ctx
+                str(RecordingError(f"--unit {text}", "COLUMN=UNIT, e.g. gyro_x=deg/s")), param, ctx
             )
         return column.strip(), unit.strip()
 
@@ -255,33 +270,30 @@ class OutputFile(click.Path):
         return path
 
 
-class FormatList(_Checked):
+class FormatList(_Parsed):
     """A comma list of file forms, each one of ``choices`` → list."""
 
     name = "formats"
+    converted = list
 
     def __init__(self, choices: Sequence[str]) -> None:
         self.choices = tuple(choices)
 
-    def convert(self, value: Any, param: click.Parameter | None, ctx: click.Context | None) -> Any:
-        if isinstance(value, list):
-            return value
-        wanted = [f.strip().lower() for f in str(value).split(",") if f.strip()]
+    def parse(self, text: str, param: click.Parameter | None, ctx: click.Context | None) -> Any:
+        wanted = [f.strip().lower() for f in text.split(",") if f.strip()]
         if not wanted or any(f not in self.choices for f in wanted):
-            self.refuse(value, f"a comma list of {', '.join(self.choices)}", param, ctx)
+            self.refuse(text, f"a comma list of {', '.join(self.choices)}", param, ctx)
         return wanted
 
 
-class Orders(_Checked):
+class Orders(_Parsed):
     """``N/D``: numerator and denominator orders of a rational fit, e.g. ``1/3`` → (1, 3)."""
 
     name = "orders"
 
-    def convert(self, value: Any, param: click.Parameter | None, ctx: click.Context | None) -> Any:
-        if isinstance(value, tuple):
-            return value
+    def parse(self, text: str, param: click.Parameter | None, ctx: click.Context | None) -> Any:
         try:
-            n_ord, d_ord = (int(v) for v in str(value).split("/"))
+            n_ord, d_ord = (int(v) for v in text.split("/"))
         except ValueError:
-            self.refuse(value, "two whole numbers such as 1/3", param, ctx)
+            self.refuse(text, "two whole numbers such as 1/3", param, ctx)
         return n_ord, d_ord
