@@ -63,6 +63,16 @@ def _model(*terms, rate: float = RATE, cid: str = "gyro.z", **kw) -> NoiseModel:
     return NoiseModel(sensor={"name": "test"}, channels=(ch,))
 
 
+
+def _two_gyros(*terms) -> NoiseModel:
+    """Channels gyro.x and gyro.y with the same terms."""
+    return NoiseModel(
+        sensor={},
+        channels=tuple(
+            Channel(c, "angular_rate", "rad/s", RATE, tuple(terms)) for c in ("gyro.x", "gyro.y")
+        ),
+    )
+
 def _octave_m(n: int, min_clusters: int = 32) -> np.ndarray:
     """Averaging factors 1, 2, 4, … with at least ``min_clusters`` non-overlapping clusters
     ("enough clusters": below that the EDF is a handful and the check says little)."""
@@ -924,13 +934,7 @@ def test_options_are_checked_once_and_passed_through(tmp_path):
     # SimulationOptions owns the keyword options: checked where they are built, the same
     # record whether given by name or as one object, and write_record hands the keywords
     # that are not simulation options to the writer
-    model = NoiseModel(
-        sensor={},
-        channels=tuple(
-            Channel(c, "angular_rate", "rad/s", RATE, (White(1e-3), Flicker(1e-5)))
-            for c in ("gyro.x", "gyro.y")
-        ),
-    )
+    model = _two_gyros(White(1e-3), Flicker(1e-5))
     opts = SimulationOptions(run=2, increments=True, flicker="power-law", channels=["gyro.y"])
     assert opts.channels == ("gyro.y",) and opts.max_taps >= 2 and opts.threads is None
     by_name = simulate(
@@ -953,7 +957,13 @@ def test_options_are_checked_once_and_passed_through(tmp_path):
 
     path = tmp_path / "rec.npy"
     written = write_record(
-        path, model, 500, seed=3, run=2, flicker="power-law", channels=["gyro.y"],
+        path,
+        model,
+        500,
+        seed=3,
+        run=2,
+        flicker="power-law",
+        channels=["gyro.y"],
         time_column=False,
     )
     assert written.options == SimulationOptions(run=2, flicker="power-law", channels=["gyro.y"])
@@ -983,13 +993,7 @@ def test_long_record_streams_in_constant_memory(tmp_path):
     from sensormodel.recording import read_recording
     from sensormodel.simulate import write_record
 
-    model = NoiseModel(
-        sensor={},
-        channels=tuple(
-            Channel(c, "angular_rate", "rad/s", RATE, (White(1e-3), RandomWalk(1e-5)))
-            for c in ("gyro.x", "gyro.y")
-        ),
-    )
+    model = _two_gyros(White(1e-3), RandomWalk(1e-5))
     peaks = []
     for n in (2**19, 2**21):
         path = tmp_path / f"long{n}.npy"
