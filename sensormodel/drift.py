@@ -41,7 +41,7 @@ Every drift document carries the export caution (:data:`sensormodel.export.CAUTI
 from __future__ import annotations
 
 import math
-from collections.abc import Iterable, Sequence
+from collections.abc import Callable, Iterable, Sequence
 from dataclasses import dataclass, field, replace
 from typing import Any
 
@@ -191,6 +191,17 @@ def default_times(
     return np.unique(np.concatenate([grid, table_times(horizon)]))
 
 
+def _outputs(channel: Any) -> tuple[str, ...]:
+    """The integrated quantities of a gyro or accelerometer channel (``_OUTPUTS``)."""
+    outputs = _OUTPUTS.get(channel.quantity)
+    if outputs is None:
+        raise AnalysisError(
+            f"channel {channel.id} has quantity '{channel.quantity}'",
+            "a gyro (angular_rate) or accelerometer (acceleration) channel",
+        )
+    return outputs
+
+
 def _drift_terms(terms: Sequence[Any], horizon: float) -> list[Any]:
     out = []
     for t in terms:
@@ -204,36 +215,49 @@ def _drift_terms(terms: Sequence[Any], horizon: float) -> list[Any]:
     return out
 
 
+def _by_size(
+    x: _FloatArray,
+    limit: float,
+    series: Callable[[_FloatArray], _FloatArray],
+    closed: Callable[[_FloatArray], _FloatArray],
+) -> _FloatArray:
+    """``series(x)`` where x < ``limit`` (the closed form cancels there), ``closed(x)`` above."""
+    out = np.empty_like(x)
+    small = x < limit
+    out[small] = series(x[small])
+    out[~small] = closed(x[~small])
+    return out
+
+
 def _gm_single(x: _FloatArray) -> _FloatArray:
     """x − 1 + e^(−x), accurate for small x."""
-    out = np.empty_like(x)
-    small = x < 0.1
-    xs = x[small]
-    acc = np.zeros_like(xs)
-    term = xs * xs / 2.0
-    for n in range(2, 20):
-        acc += term
-        term = -term * xs / (n + 1)
-    out[small] = acc
-    xl = x[~small]
-    out[~small] = xl + np.expm1(-xl)
-    return out
+
+    def series(xs: _FloatArray) -> _FloatArray:
+        acc = np.zeros_like(xs)
+        term = xs * xs / 2.0
+        for n in range(2, 20):
+            acc += term
+            term = -term * xs / (n + 1)
+        return acc
+
+    return _by_size(x, 0.1, series, lambda xl: xl + np.expm1(-xl))
 
 
 def _gm_double(x: _FloatArray) -> _FloatArray:
     """x³/3 − x²/2 + 1 − e^(−x)(1 + x) = Σ_{n≥4} (−1)^n (n−1) x^n / n!, accurate for small x."""
-    out = np.empty_like(x)
-    small = x < 1.0
-    xs = x[small]
-    acc = np.zeros_like(xs)
-    power = xs**4 / 24.0  # x^n / n!
-    for n in range(4, 40):
-        acc += (-1) ** n * (n - 1) * power
-        power = power * xs / (n + 1)
-    out[small] = acc
-    xl = x[~small]
-    out[~small] = xl**3 / 3.0 - xl**2 / 2.0 + 1.0 - np.exp(-xl) * (1.0 + xl)
-    return out
+
+    def series(xs: _FloatArray) -> _FloatArray:
+        acc = np.zeros_like(xs)
+        power = xs**4 / 24.0  # x^n / n!
+        for n in range(4, 40):
+            acc += (-1) ** n * (n - 1) * power
+            power = power * xs / (n + 1)
+        return acc
+
+    def closed(xl: _FloatArray) -> _FloatArray:
+        return xl**3 / 3.0 - xl**2 / 2.0 + 1.0 - np.exp(-xl) * (1.0 + xl)
+
+    return _by_size(x, 1.0, series, closed)
 
 
 def _term_variances(
@@ -334,12 +358,7 @@ def closed_form(
     dict
         {term label: {"angle": var} or {"velocity": var, "position": var}} [SI²].
     """
-    outputs = _OUTPUTS.get(channel.quantity)
-    if outputs is None:
-        raise AnalysisError(
-            f"channel {channel.id} has quantity '{channel.quantity}'",
-            "a gyro (angular_rate) or accelerometer (acceleration) channel",
-        )
+    outputs = _outputs(channel)
     t = np.asarray(times, dtype=float).ravel()
     horizon = float(horizon if horizon is not None else np.max(t))
     out: dict[str, dict[str, _FloatArray]] = {}
@@ -376,12 +395,7 @@ def channel_drift(
     -------
     ChannelDrift
     """
-    outputs = _OUTPUTS.get(channel.quantity)
-    if outputs is None:
-        raise AnalysisError(
-            f"channel {channel.id} has quantity '{channel.quantity}'",
-            "a gyro (angular_rate) or accelerometer (acceleration) channel",
-        )
+    outputs = _outputs(channel)
     horizon = float(horizon)
     t = (
         default_times(horizon, sample_rate=channel.sample_rate, points=points)
@@ -430,13 +444,7 @@ def channel_drift(
     )
 
 
-def drift(
-    model: Any,
-    horizon: float,
-    *,
-    times: npt.ArrayLike | None = None,
-    points: int = 121,
-) -> DriftResult:
+def drift(model: Any, horizon: float, **grid: Any) -> DriftResult:
     """Error growth of every gyro and accelerometer channel of a model over a horizon.
 
     Parameters
@@ -445,10 +453,10 @@ def drift(
         The model (channels with quantity ``as_recorded`` are skipped and listed).
     horizon : float
         Last time [s], positive.
-    times : array_like, optional
-        Times [s] (default :func:`default_times` per channel).
-    points : int
-        Number of log-spaced times of the default grid.
+    **grid
+        The time grid of each channel, as for :func:`channel_drift`: ``times`` (times [s];
+        default :func:`default_times` per channel) or ``points`` (the default grid's number of
+        log-spaced times).
 
     Returns
     -------
@@ -460,7 +468,7 @@ def drift(
     done, skipped = [], []
     for c in model.channels:
         if c.quantity in _OUTPUTS:
-            done.append(channel_drift(c, horizon, times=times, points=points))
+            done.append(channel_drift(c, horizon, **grid))
         else:
             skipped.append(c.id)
     if not done:

@@ -190,3 +190,13 @@ def test_time_grid_and_refusals():
         drift(NoiseModel(sensor={}, channels=(recorded,)), 10.0)
     both = drift(NoiseModel(sensor={}, channels=(recorded, _gyro(White(1.0)))), 10.0, points=5)
     assert both.skipped == ("col",)
+    # the grid keywords are channel_drift's, passed through unchanged
+    grid = [0.0, 1.0, 5.0, 10.0]
+    given = drift(NoiseModel(sensor={}, channels=(_gyro(White(1.0)),)), 10.0, times=grid)
+    alone = channel_drift(_gyro(White(1.0)), 10.0, times=grid)
+    assert given.channels[0].time.tolist() == grid
+    assert_allclose(given.channels[0].values["angle"], alone.values["angle"], rtol=0, atol=0)
+    with pytest.raises(AnalysisError, match="channel col has quantity 'as_recorded'"):
+        closed_form(recorded, grid)
+    with pytest.raises(TypeError, match="points_per_decade"):
+        drift(NoiseModel(sensor={}, channels=(_gyro(White(1.0)),)), 10.0, points_per_decade=3)

@@ -32,6 +32,7 @@ from sensormodel.linear import INNOVATIONS_TOLERANCE, step_model
 from sensormodel.model import Channel, NoiseModel
 from sensormodel.simulate import (
     BLOCK,
+    SimulationOptions,
     Simulator,
     ensemble_statistics,
     kasdin_coefficients,
@@ -61,6 +62,16 @@ def _model(*terms, rate: float = RATE, cid: str = "gyro.z", **kw) -> NoiseModel:
     ch = Channel(cid, quantity, unit, rate, tuple(terms), **kw)
     return NoiseModel(sensor={"name": "test"}, channels=(ch,))
 
+
+
+def _two_gyros(*terms) -> NoiseModel:
+    """Channels gyro.x and gyro.y with the same terms."""
+    return NoiseModel(
+        sensor={},
+        channels=tuple(
+            Channel(c, "angular_rate", "rad/s", RATE, tuple(terms)) for c in ("gyro.x", "gyro.y")
+        ),
+    )
 
 def _octave_m(n: int, min_clusters: int = 32) -> np.ndarray:
     """Averaging factors 1, 2, 4, … with at least ``min_clusters`` non-overlapping clusters
@@ -919,6 +930,48 @@ def test_bad_arguments(kwargs, match):
         simulate(model, **kwargs)
 
 
+def test_options_are_checked_once_and_passed_through(tmp_path):
+    # SimulationOptions owns the keyword options: checked where they are built, the same
+    # record whether given by name or as one object, and write_record hands the keywords
+    # that are not simulation options to the writer
+    model = _two_gyros(White(1e-3), Flicker(1e-5))
+    opts = SimulationOptions(run=2, increments=True, flicker="power-law", channels=["gyro.y"])
+    assert opts.channels == ("gyro.y",) and opts.max_taps >= 2 and opts.threads is None
+    by_name = simulate(
+        model, 500, seed=3, run=2, increments=True, flicker="power-law", channels=["gyro.y"]
+    )
+    sim = Simulator(model, seed=3, options=opts)
+    assert sim.options == opts and sim.channel_ids == ["gyro.y"]
+    np.testing.assert_array_equal(sim.read(500), by_name)
+    with pytest.raises(AnalysisError, match=r"^max_taps: got 1; expected a whole number ≥ 2"):
+        SimulationOptions(max_taps=1)
+    with pytest.raises(AnalysisError, match=r"^run: got -1"):
+        simulate(model, 10, seed=1, run=-1)
+    with pytest.raises(TypeError, match="unexpected keyword argument 'flicker_method'"):
+        simulate(model, 10, seed=1, flicker_method="power-law")
+    options, rest = SimulationOptions.split({"increments": True, "time_column": False})
+    assert options == SimulationOptions(increments=True) and rest == {"time_column": False}
+
+    from sensormodel.recording import read_recording
+    from sensormodel.simulate import write_record
+
+    path = tmp_path / "rec.npy"
+    written = write_record(
+        path,
+        model,
+        500,
+        seed=3,
+        run=2,
+        flicker="power-law",
+        channels=["gyro.y"],
+        time_column=False,
+    )
+    assert written.options == SimulationOptions(run=2, flicker="power-law", channels=["gyro.y"])
+    rec = read_recording(path)
+    assert list(rec.data) == ["gyro.y"]
+    np.testing.assert_allclose(rec.data["gyro.y"], by_name[:, 0] * RATE, rtol=1e-12)
+
+
 def test_mixed_rates_need_a_rate():
     chans = (
         Channel("gyro.x", "angular_rate", "rad/s", 100.0, (White(1e-3),)),
@@ -940,13 +993,7 @@ def test_long_record_streams_in_constant_memory(tmp_path):
     from sensormodel.recording import read_recording
     from sensormodel.simulate import write_record
 
-    model = NoiseModel(
-        sensor={},
-        channels=tuple(
-            Channel(c, "angular_rate", "rad/s", RATE, (White(1e-3), RandomWalk(1e-5)))
-            for c in ("gyro.x", "gyro.y")
-        ),
-    )
+    model = _two_gyros(White(1e-3), RandomWalk(1e-5))
     peaks = []
     for n in (2**19, 2**21):
         path = tmp_path / f"long{n}.npy"

@@ -13,7 +13,6 @@ from typing import Any
 import numpy as np
 import numpy.typing as npt
 
-from .. import validate
 from ..errors import AnalysisError
 from ..model import Channel, NoiseModel
 from ..quantities import INSTRUMENT_KIND, SI_LABEL
@@ -199,25 +198,24 @@ class Identification:
         tau : array_like
             Averaging times [s], positive.
         """
-        tau = validate.positive_array(tau, "tau")
-        total = np.zeros(tau.shape)
-        for t in self._model_terms(supported_only=False):
-            total = total + t.allan_variance(tau, sample_rate=self.sample_rate)
-        return np.sqrt(total)
+        return self._channel(supported_only=False).allan_deviation(tau)
 
-    def to_channel(self) -> Any:
+    def to_channel(self) -> Channel:
         """The identified channel as a :class:`sensormodel.model.Channel`.
 
         Supported terms only; each carries ``meta["uncertainty"] = {"low", "high",
         "confidence"}`` (SI, DESIGN §10) and ``meta["supported"]``. The flicker term has no
         explicit cut-off (the channel's Nyquist frequency, as in the fit).
         """
+        return self._channel(supported_only=True)
+
+    def _channel(self, *, supported_only: bool) -> Channel:
         return Channel(
             id=self.channel,
             quantity=_quantity(self.unit),
             unit=self.unit,
             sample_rate=self.sample_rate,
-            terms=tuple(self._model_terms(supported_only=True)),
+            terms=tuple(self._model_terms(supported_only=supported_only)),
         )
 
 

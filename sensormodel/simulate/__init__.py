@@ -107,9 +107,12 @@ The package exports the names below; its modules are private: ``_streams`` (gene
 Box-Muller deviates, the block schedule, white / quantization / ramp sources), ``_statespace``
 (exact period means of a realization), ``_powerlaw`` (Kasdin-Walter flicker),
 ``_innovations`` (the innovation stream and the block engine), ``_channel`` (one channel's
-sources), ``_simulator`` (:class:`Simulator`, :func:`simulate`, :func:`simulate_ensemble`),
-``_ensemble`` (:func:`ensemble_statistics`) and ``_records`` (:func:`write_record`). The
-algebra they run (the exact step, the innovations form) is :mod:`sensormodel.linear`'s.
+sources), ``_simulator`` (:class:`SimulationOptions`, :class:`Simulator`, :func:`simulate`,
+:func:`simulate_ensemble`), ``_ensemble`` (:func:`ensemble_statistics`) and ``_records``
+(:func:`write_record`). The options of a record (run, increments, flicker method, channels,
+Kasdin-Walter length, threads) are :class:`SimulationOptions`' alone: the public functions take
+them as keywords and pass them on. The algebra they run (the exact step, the innovations form)
+is :mod:`sensormodel.linear`'s.
 """
 
 from __future__ import annotations
@@ -119,6 +122,7 @@ from ._powerlaw import DEFAULT_MAX_TAPS, kasdin_coefficients
 from ._records import run_path, write_record
 from ._simulator import (
     FLICKER_METHODS,
+    SimulationOptions,
     Simulator,
     new_seed,
     record_rate,
@@ -134,6 +138,7 @@ __all__ = [
     "FIRST_BLOCK",
     "DEFAULT_MAX_TAPS",
     "Simulator",
+    "SimulationOptions",
     "simulate",
     "simulate_ensemble",
     "EnsembleStatistics",

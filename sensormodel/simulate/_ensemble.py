@@ -2,17 +2,16 @@
 
 from __future__ import annotations
 
-from collections.abc import Callable, Sequence
-from dataclasses import dataclass
-from typing import TYPE_CHECKING
+from collections.abc import Callable
+from dataclasses import dataclass, replace
+from typing import TYPE_CHECKING, Any
 
 import numpy as np
 import numpy.typing as npt
 
 from .. import validate
 from ..errors import AnalysisError
-from ._powerlaw import DEFAULT_MAX_TAPS
-from ._simulator import Simulator, _seed, record_rate, samples_for
+from ._simulator import SimulationOptions, Simulator, _seed, record_rate, samples_for
 
 if TYPE_CHECKING:  # pragma: no cover
     from ..model import NoiseModel
@@ -53,10 +52,8 @@ def ensemble_statistics(
     runs: int,
     seed: int | None = None,
     times: npt.ArrayLike | None = None,
-    flicker: str = "realization",
-    channels: Sequence[str] | None = None,
-    max_taps: int = DEFAULT_MAX_TAPS,
     progress: Callable[[int], None] | None = None,
+    **options: Any,
 ) -> EnsembleStatistics:
     """Monte Carlo: the ensemble mean and variance of the integrated output at given instants.
 
@@ -74,14 +71,17 @@ def ensemble_statistics(
         Length of each run [s].
     runs : int
         Number of independent runs (≥ 2).
+    rate, seed
+        As for :func:`simulate` (``seed`` is the ensemble's: run r is the record of
+        :func:`simulate` with ``run=r``).
     times : array_like, optional
         Instants [s] in (0, duration], rounded to whole samples; default 40 instants spaced
         logarithmically from one sample period to ``duration``.
-    rate, seed, flicker, channels, max_taps
-        As for :class:`Simulator` (``seed`` is the ensemble's: run r is the record of
-        :func:`simulate` with ``run=r``).
     progress : callable, optional
         Called with the number of samples generated after each chunk.
+    **options
+        :class:`SimulationOptions` by name (``flicker``, ``channels``, ``max_taps``,
+        ``threads``; each run is simulated as increments, with its own ``run``).
 
     Returns
     -------
@@ -89,7 +89,8 @@ def ensemble_statistics(
     """
     runs = validate.whole_number(runs, "runs", minimum=2)
     seed = _seed(seed)
-    sel = model.select(list(channels) if channels else None)
+    opts = SimulationOptions(**options)
+    sel = opts.select(model)
     r = record_rate(sel, rate)
     duration = float(duration)
     n = samples_for(duration, r)
@@ -104,9 +105,7 @@ def ensemble_statistics(
     mean = np.zeros((idx.size, k))
     m2 = np.zeros((idx.size, k))
     for run in range(runs):
-        sim = Simulator(
-            sel, r, seed=seed, run=run, increments=True, flicker=flicker, max_taps=max_taps
-        )
+        sim = Simulator(model, r, seed=seed, options=replace(opts, run=run, increments=True))
         theta = np.zeros(k)
         start = 0
         values = np.empty((idx.size, k))

@@ -4,13 +4,13 @@ from __future__ import annotations
 
 import os
 import pathlib
-from collections.abc import Callable, Sequence
+from collections.abc import Callable
+from dataclasses import replace
 from typing import TYPE_CHECKING, Any
 
 from .. import validate
 from ..recording import open_writer
-from ._powerlaw import DEFAULT_MAX_TAPS
-from ._simulator import Simulator
+from ._simulator import SimulationOptions, Simulator
 from ._streams import BLOCK
 
 if TYPE_CHECKING:  # pragma: no cover
@@ -55,16 +55,10 @@ def write_record(
     rate: float | None = None,
     *,
     seed: int | None = None,
-    run: int = 0,
-    increments: bool = False,
-    flicker: str = "realization",
-    channels: Sequence[str] | None = None,
-    max_taps: int = DEFAULT_MAX_TAPS,
     force: bool = False,
     chunk: int = 4 * BLOCK,
     progress: Callable[[int], None] | None = None,
-    threads: int | None = None,
-    **writer_options: Any,
+    **keywords: Any,
 ) -> Simulator:
     """Stream a simulated record to a file (CSV, NPY, NPZ or HDF5 by extension), atomically.
 
@@ -79,41 +73,34 @@ def write_record(
         The noise model.
     n : int
         Samples per channel.
-    rate, seed, run, increments, flicker, channels, max_taps, threads
-        As for :class:`Simulator` (read the seed back from the returned simulator).
+    rate, seed
+        As for :func:`simulate` (read the seed back from the returned simulator).
     force : bool
         Overwrite an existing file.
     chunk : int
         Rows per write.
     progress : callable, optional
         Called with the number of rows written after each chunk.
-    **writer_options
-        Passed on to :func:`sensormodel.recording.open_writer` (``time_column``,
-        ``start_time``).
+    **keywords
+        :class:`SimulationOptions` by name (``run``, ``increments``, ``flicker``,
+        ``channels``, ``max_taps``, ``threads``); the others are passed on to
+        :func:`sensormodel.recording.open_writer` (``time_column``, ``start_time``).
 
     Returns
     -------
     Simulator
         The exhausted generator (its ``seed``, ``rate``, ``channel_ids``, ``units``).
     """
+    options, writer_options = SimulationOptions.split(keywords)
     # The writer takes period means (SI rates) and writes increments itself when asked.
-    sim = Simulator(
-        model,
-        rate,
-        seed=seed,
-        run=run,
-        flicker=flicker,
-        channels=channels,
-        max_taps=max_taps,
-        threads=threads,
-    )
+    sim = Simulator(model, rate, seed=seed, options=replace(options, increments=False))
     n = validate.whole_number(n, "n")
     with open_writer(
         path,
         sim.channel_ids,
         None,
         sim.rate,
-        increments=increments,
+        increments=options.increments,
         force=force,
         n_samples=n,
         **writer_options,

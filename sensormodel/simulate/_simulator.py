@@ -5,7 +5,8 @@ from __future__ import annotations
 
 import math
 import threading
-from collections.abc import Iterator, Sequence
+from collections.abc import Iterator
+from dataclasses import dataclass, fields, replace
 from typing import TYPE_CHECKING, Any
 
 import numpy as np
@@ -97,6 +98,63 @@ def samples_for(duration: float, rate: float) -> int:
     return int(n)
 
 
+@dataclass(frozen=True)
+class SimulationOptions:
+    """How a record is simulated, besides its model, rate, seed and length: the one owner of
+    the keyword options of :class:`Simulator`, :func:`simulate`, :func:`simulate_ensemble`,
+    :func:`ensemble_statistics` and :func:`write_record` (each takes them as keywords and
+    passes them here, where they are checked).
+
+    Attributes
+    ----------
+    run : int
+        Run index for Monte Carlo ensembles: run r of a seed is independent of every other run.
+    increments : bool
+        Deliver increments (integral over each sample period, [u·s]) instead of rate samples
+        (period means, [u]).
+    flicker : {"realization", "power-law"}
+        Flicker method (package notes).
+    channels : tuple of str or None
+        Channel ids to simulate, in this order (None: all, in model order).
+    max_taps : int
+        Largest Kasdin-Walter filter length (``flicker="power-law"``), at least 2.
+    threads : int or None
+        Channels generated at once, in threads (None: one per available core, at most one per
+        channel). The record does not depend on it: every channel has its own streams.
+    """
+
+    run: int = 0
+    increments: bool = False
+    flicker: str = "realization"
+    channels: tuple[str, ...] | None = None
+    max_taps: int = DEFAULT_MAX_TAPS
+    threads: int | None = None
+
+    def __post_init__(self) -> None:
+        checked = {
+            "run": validate.whole_number(self.run, "run", minimum=0),
+            "increments": bool(self.increments),
+            "flicker": _check_method(self.flicker),
+            "channels": tuple(self.channels) if self.channels else None,
+            "max_taps": validate.whole_number(self.max_taps, "max_taps", minimum=2),
+        }
+        if self.threads is not None:
+            checked["threads"] = validate.whole_number(self.threads, "threads")
+        for name, value in checked.items():
+            object.__setattr__(self, name, value)
+
+    @classmethod
+    def split(cls, keywords: dict[str, Any]) -> tuple[SimulationOptions, dict[str, Any]]:
+        """The options among ``keywords`` (checked) and the other keywords, untouched."""
+        names = {f.name for f in fields(cls)}
+        mine = {k: v for k, v in keywords.items() if k in names}
+        return cls(**mine), {k: v for k, v in keywords.items() if k not in names}
+
+    def select(self, model: NoiseModel) -> NoiseModel:
+        """The model reduced to :attr:`channels` (all channels when None)."""
+        return model.select(list(self.channels) if self.channels else None)
+
+
 #: Reads shorter than this many rows run the channels one after the other (thread overhead).
 _THREADED_READ = 4096
 _EXECUTOR: Any = None
@@ -127,23 +185,16 @@ class Simulator:
         Simulation rate [Hz]; default the channels' common sample rate.
     seed : int, optional
         Seed of the record; ``None`` draws fresh entropy (read it back from :attr:`seed`).
-    run : int
-        Run index for Monte Carlo ensembles: run r of a seed is independent of every other run.
-    increments : bool
-        Deliver increments (integral over each sample period, [u·s]) instead of rate samples
-        (period means, [u]).
-    flicker : {"realization", "power-law"}
-        Flicker method (package notes).
-    channels : sequence of str, optional
-        Channel ids to simulate (default all).
-    max_taps : int
-        Largest Kasdin-Walter filter length (``flicker="power-law"``).
-    threads : int, optional
-        Channels generated at once, in threads (default: one per available core, at most one
-        per channel). The record does not depend on it: every channel has its own streams.
+    options : SimulationOptions, optional
+        How the record is simulated (default :class:`SimulationOptions` ()).
+    **keywords
+        Options by name, over ``options``: ``run``, ``increments``, ``flicker``,
+        ``channels``, ``max_taps``, ``threads`` (:class:`SimulationOptions`).
 
     Attributes
     ----------
+    options : SimulationOptions
+        The options, checked.
     channel_ids : list of str
     units : list of str
         The channels' SI units of the *rate* samples (an increment is that unit times s).
@@ -162,33 +213,24 @@ class Simulator:
         rate: float | None = None,
         *,
         seed: int | None = None,
-        run: int = 0,
-        increments: bool = False,
-        flicker: str = "realization",
-        channels: Sequence[str] | None = None,
-        max_taps: int = DEFAULT_MAX_TAPS,
-        threads: int | None = None,
+        options: SimulationOptions | None = None,
+        **keywords: Any,
     ) -> None:
-        model = model.select(list(channels) if channels else None)
+        self.options = opts = replace(options or SimulationOptions(), **keywords)
+        model = opts.select(model)
         self.rate = record_rate(model, rate)
         self.seed = _seed(seed)
-        self.run = validate.whole_number(run, "run", minimum=0)
-        self.increments = bool(increments)
-        self.flicker = _check_method(flicker)
-        max_taps = validate.whole_number(max_taps, "max_taps", minimum=2)
         self.channel_ids = [c.id for c in model.channels]
         self.units = [c.unit for c in model.channels]
         self.position = 0
         self._gens = [
             _ChannelGenerator(
-                c, self.rate, seed=self.seed, run=self.run, flicker=self.flicker, max_taps=max_taps
+                c, self.rate, seed=self.seed, run=opts.run, flicker=opts.flicker,
+                max_taps=opts.max_taps,
             )
             for c in model.channels
         ]
-        if threads is None:
-            cores = validate.usable_cpus()
-        else:
-            cores = validate.whole_number(threads, "threads")
+        cores = validate.usable_cpus() if opts.threads is None else opts.threads
         self.threads = max(1, min(cores, len(self._gens)))
 
     @property
@@ -215,7 +257,7 @@ class Simulator:
         else:
             for j, g in enumerate(self._gens):
                 g.take(n, out[:, j])
-        if self.increments:
+        if self.options.increments:
             out *= self.dt
         self.position += n
         return out
@@ -232,17 +274,7 @@ class Simulator:
 
 
 def simulate(
-    model: NoiseModel,
-    n: int,
-    rate: float | None = None,
-    seed: int | None = None,
-    *,
-    run: int = 0,
-    increments: bool = False,
-    flicker: str = "realization",
-    channels: Sequence[str] | None = None,
-    max_taps: int = DEFAULT_MAX_TAPS,
-    threads: int | None = None,
+    model: NoiseModel, n: int, rate: float | None = None, seed: int | None = None, **options: Any
 ) -> _FloatArray:
     """A noise record of ``n`` samples per channel, in memory (DESIGN §7:
     ``sensormodel.simulate(model, n, rate, seed)``).
@@ -253,12 +285,15 @@ def simulate(
         The noise model.
     n : int
         Samples per channel.
-    rate, seed, run, increments, flicker, channels, max_taps, threads
-        As for :class:`Simulator`: rate [Hz] (default the channels' common sample rate), seed
-        (the same seed gives the same record; ``None``: fresh entropy), Monte Carlo run index,
-        increments [u·s] instead of period means [u], flicker method, channel ids (default
-        all, in model order), Kasdin-Walter filter length, threads (the record does not
-        depend on them).
+    rate : float, optional
+        Simulation rate [Hz]; default the channels' common sample rate.
+    seed : int, optional
+        The same seed gives the same record; ``None``: fresh entropy.
+    **options
+        :class:`SimulationOptions` by name: ``run`` (Monte Carlo run index), ``increments``
+        ([u·s] instead of period means [u]), ``flicker`` (method), ``channels`` (ids, default
+        all, in model order), ``max_taps`` (Kasdin-Walter filter length), ``threads`` (the
+        record does not depend on them).
 
     Returns
     -------
@@ -277,18 +312,7 @@ def simulate(
     (1000, 1)
     """
     n = validate.whole_number(n, "n")
-    sim = Simulator(
-        model,
-        rate,
-        seed=seed,
-        run=run,
-        increments=increments,
-        flicker=flicker,
-        channels=channels,
-        max_taps=max_taps,
-        threads=threads,
-    )
-    return sim.read(n)
+    return Simulator(model, rate, seed=seed, **options).read(n)
 
 
 def simulate_ensemble(
@@ -298,10 +322,7 @@ def simulate_ensemble(
     *,
     runs: int,
     seed: int | None = None,
-    increments: bool = False,
-    flicker: str = "realization",
-    channels: Sequence[str] | None = None,
-    max_taps: int = DEFAULT_MAX_TAPS,
+    **options: Any,
 ) -> _FloatArray:
     """``runs`` independent records (Monte Carlo), in memory.
 
@@ -316,8 +337,11 @@ def simulate_ensemble(
         Samples per channel and run.
     runs : int
         Number of runs.
-    rate, seed, increments, flicker, channels, max_taps
-        As for :class:`Simulator` (``seed`` is the ensemble's).
+    rate, seed
+        As for :func:`simulate` (``seed`` is the ensemble's).
+    **options
+        :class:`SimulationOptions` by name, as for :func:`simulate` (``run`` is each
+        record's index).
 
     Returns
     -------
@@ -326,24 +350,9 @@ def simulate_ensemble(
     """
     runs = validate.whole_number(runs, "runs")
     seed = _seed(seed)
-    out = np.empty(
-        (
-            runs,
-            validate.whole_number(n, "n"),
-            len(model.select(list(channels) if channels else None).channels),
-        )
-    )
+    opts = SimulationOptions(**options)
+    n = validate.whole_number(n, "n")
+    out = np.empty((runs, n, len(opts.select(model).channels)))
     for r in range(runs):
-        out[r] = simulate(
-            model,
-            n,
-            rate,
-            seed,
-            run=r,
-            increments=increments,
-            flicker=flicker,
-            channels=channels,
-            max_taps=max_taps,
-        )
+        out[r] = Simulator(model, rate, seed=seed, options=replace(opts, run=r)).read(n)
     return out
-
