@@ -161,7 +161,9 @@ def test_threads_memmap_float32_and_increments_agree(tmp_path):
     )
 
     # increments dx = y/rate (e.g. angle increments) give the Allan deviation of the rate
-    inc = allan.overlapping_from_increments(y / RATE_LIB, RATE_LIB, noise_type=-1, unit="rad/s")
+    inc = allan.overlapping(
+        y / RATE_LIB, RATE_LIB, increments=True, noise_type=-1, unit="rad/s"
+    )
     np.testing.assert_allclose(inc.adev, one.adev, rtol=1e-12)
     assert inc.unit == "rad/s"
 
@@ -263,7 +265,9 @@ def test_many_increments_fixed_noise_and_grids_to_the_bit():
         curves = allan.overlapping_many(dx, RATE_LIB, increments=True, workers=2, **kwargs)
         assert [c.channel for c in curves] == ["signal#1", "signal#2"]
         for d, curve in zip(dx, curves, strict=True):
-            single = allan.overlapping_from_increments(d, RATE_LIB, channel=curve.channel, **kwargs)
+            single = allan.overlapping(
+                d, RATE_LIB, increments=True, channel=curve.channel, **kwargs
+            )
             assert_same_curve(curve, single)
     one = allan.overlapping_many([MANY[3]], RATE_LIB)
     assert one[0].channel == "signal"
@@ -418,7 +422,7 @@ def test_bad_input_is_refused_naming_the_argument(kwargs, field, match):
 
 def test_increments_name_their_argument():
     with pytest.raises(AnalysisError, match=r"^dx: got 1 sample"):
-        allan.overlapping_from_increments([0.1], 10.0)
+        allan.overlapping([0.1], 10.0, increments=True)
 
 
 # ---------------------------------------------------------------------------------------------

@@ -70,7 +70,6 @@ from ._curve import (
 from ._engine import (
     aligned_scratch,
     overlapping,
-    overlapping_from_increments,
     overlapping_many,
     second_difference_sums,
 )
@@ -80,7 +79,6 @@ from ._samples import averaging_factors, tau_grid
 __all__ = [
     "AllanCurve",
     "overlapping",
-    "overlapping_from_increments",
     "overlapping_many",
     "tau_grid",
     "averaging_factors",

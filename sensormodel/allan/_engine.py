@@ -23,7 +23,6 @@ from ._samples import _as_samples, _check_finite_mean, _phase, averaging_factors
 
 __all__ = [
     "overlapping",
-    "overlapping_from_increments",
     "overlapping_many",
     "second_difference_sums",
     "aligned_scratch",
@@ -457,10 +456,12 @@ def overlapping(
     noise_type: Any = "auto",
     unit: str = "1",
     channel: str = "signal",
+    increments: bool = False,
     threads: int | None = None,
     progress: ProgressCallback | None = None,
 ) -> AllanCurve:
-    """Overlapping Allan deviation of rate samples, with chi-square confidence intervals.
+    """Overlapping Allan deviation of rate samples (or of the rate behind increments), with
+    chi-square confidence intervals.
 
     The estimator of IEEE Std 1139-2008 / NIST SP 1065 section 5.2.4 eq. (11) on the phase
     form x = cumsum(y − ȳ)/rate (see the module notes); the EDF of Greenhall & Riley (2003) with
@@ -488,6 +489,13 @@ def overlapping(
         Unit label of ``y``, kept in the result for display and files (no conversion).
     channel : str
         Channel id kept in the result.
+    increments : bool
+        ``y`` holds increments per sample period (angle increments Δθ [rad], velocity
+        increments Δv [m/s]), the native output of many navigation-grade units: the phase is
+        x = cumsum(y − mean) directly, with no division by the rate, so the rate is never
+        formed. The result is the Allan deviation of the rate y·rate, in [unit of y]/s
+        (give ``unit`` as that rate's unit, e.g. ``"rad/s"``), identical to rounding to
+        ``overlapping(y * rate, rate)``.
     threads : int, optional
         Threads for the engine (default: one per usable CPU for records of 2^20 samples or
         more, else the calling thread only). Results do not depend on it, to the bit.
@@ -524,49 +532,8 @@ def overlapping(
     array([1., 1.])
     """
     request = _Request(taus, confidence, noise_type, threads, "threads", progress)
-    (curve,) = _run([y], rate, (["y"], [channel], [unit]), False, request)
-    return curve
-
-
-def overlapping_from_increments(
-    dx: npt.ArrayLike,
-    rate: float,
-    *,
-    taus: Any = None,
-    confidence: float = DEFAULT_CONFIDENCE,
-    noise_type: Any = "auto",
-    unit: str = "1",
-    channel: str = "signal",
-    threads: int | None = None,
-    progress: ProgressCallback | None = None,
-) -> AllanCurve:
-    """Overlapping Allan deviation of the rate behind integrated samples (increments).
-
-    For sensors that output increments per sample period (angle increments Δθ [rad], velocity
-    increments Δv [m/s]): the phase is x = cumsum(dx − mean) directly, with no division by the
-    rate, so the rate is never formed. The result is the Allan deviation of the rate dx·rate,
-    in [unit of dx]/s, identical (to rounding) to ``overlapping(dx * rate, rate)``.
-
-    Parameters
-    ----------
-    dx : array_like
-        Increments per sample period [e.g. rad], 1-D, finite.
-    rate : float
-        Sample rate [Hz].
-    taus, confidence, noise_type, threads, progress
-        As for :func:`overlapping`.
-    unit : str
-        Unit label of the rate (e.g. ``"rad/s"`` for angle increments in rad).
-    channel : str
-        Channel id kept in the result.
-
-    Returns
-    -------
-    AllanCurve
-        Allan deviation of the rate [unit of dx / s].
-    """
-    request = _Request(taus, confidence, noise_type, threads, "threads", progress)
-    (curve,) = _run([dx], rate, (["dx"], [channel], [unit]), True, request)
+    name = "dx" if increments else "y"
+    (curve,) = _run([y], rate, ([name], [channel], [unit]), bool(increments), request)
     return curve
 
 
@@ -585,8 +552,8 @@ def overlapping_many(
 ) -> list[AllanCurve]:
     """Overlapping Allan deviation of several records (channels, segments) at one sample rate.
 
-    Each result is bit-for-bit the :func:`overlapping` (or :func:`overlapping_from_increments`)
-    curve of its record, whatever ``workers`` is: every record's second-difference sums are
+    Each result is bit-for-bit the :func:`overlapping` curve (with the same ``increments``)
+    of its record, whatever ``workers`` is: every record's second-difference sums are
     formed in fixed chunks of 2^20 and the chunks added exactly (``math.fsum``). The records
     share one pool of worker threads: all workers take chunks of the earliest unfinished record
     (one phase array in the caches at a time), the noise identification runs beside its chunks,
@@ -615,8 +582,7 @@ def overlapping_many(
         Channel id of each record (default ``signal#1``, ``signal#2``, …); also names the record
         in error messages.
     increments : bool
-        The records hold increments per sample period, as for
-        :func:`overlapping_from_increments`.
+        The records hold increments per sample period, as for :func:`overlapping`.
     workers : int, optional
         Worker threads (default: one per usable CPU when the records hold 2^20 samples or more
         in all, else none beside the caller). Results do not depend on it.
