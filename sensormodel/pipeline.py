@@ -83,14 +83,14 @@ class ChannelAnalysis:
         return self.segment.n / self.curve.sample_rate
 
     @property
-    def reasons(self) -> tuple[tuple[str, dict[str, float]], ...]:
-        """Reason codes with their numbers: ``("segments_left_out", {count, samples})`` when the
-        channel has clean segments that were not analysed."""
+    def reasons(self) -> tuple[tuple[str, dict[str, int]], ...]:
+        """Reason codes with their numbers: ``("segments_left_out", {count, samples})`` (whole
+        numbers) when the channel has clean segments that were not analysed."""
         if self.n_segments <= 1:
             return ()
         left = {
-            "count": float(self.n_segments - 1),
-            "samples": float(self.samples_total - self.segment.n),
+            "count": self.n_segments - 1,
+            "samples": self.samples_total - self.segment.n,
         }
         return (("segments_left_out", left),)
 

@@ -660,7 +660,7 @@ def test_verify_recording_notes_as_reason_codes(write_datasheet, tmp_path) -> No
     assert codes["channels_missing"] == {"channels": ("gyro.y",)}
     assert codes["channels_extra"] == {"channels": ("gyro.x",)}
     left = codes["segments_left_out"]
-    assert left["channel"] == "gyro.z" and left["segments"] == 2 and left["count"] == 1.0
+    assert left["channel"] == "gyro.z" and left["segments"] == 2 and left["count"] == 1
     assert left["samples"] == 2000.0 and left["duration"] == pytest.approx(600.0, rel=1e-6)
     text = report.verdict_text(rep)
     assert "note: not in the recording, not verified: gyro.y" in text

@@ -337,7 +337,7 @@ def test_reason_codes_become_the_sentences_of_the_reports():
     assert reason_text("segments_left_out", {"count": 2.0, "samples": 1500.0}) == (
         "2 shorter clean segments (1500 samples) left out; the longest is analysed"
     )
-    assert reason_text("segments_left_out", {"count": 1.0, "samples": 10.0}).startswith(
+    assert reason_text("segments_left_out", {"count": 1, "samples": 10}).startswith(
         "1 shorter clean segment (10 samples)"
     )
     with pytest.raises(KeyError):
