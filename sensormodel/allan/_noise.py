@@ -17,9 +17,11 @@ requested:
   the same whatever grid was requested. Every α whose μ lies within half a step plus one
   standard error of the estimate is a candidate (the slope cannot separate white from
   flicker angle noise at all). Between ``_ID_LOW_POINTS`` (30, about the least Riley &
-  Greenhall suggest for the lag-1 method) and 100 points the lag-1 answer picks among the
-  candidates when it is one of them (it separates white from flicker angle noise well where it
-  cannot yet be trusted on white against flicker rate noise); when it is not, it joins them.
+  Greenhall suggest for the lag-1 method) and 100 points the lag-1 answer decides between white
+  and flicker angle noise when both are candidates (white or flicker phase: δ = r1/(1 + r1) of
+  the undifferenced phase near 0 against near 1/2, told apart well from 30 points, where white
+  against flicker rate noise is not yet); a lag-1 answer the slope excludes joins the
+  candidates.
 * **The conservative choice** where the candidates remain undecided: the α with the fewest
   degrees of freedom at that τ (:func:`sensormodel.confidence.edf_cached`), i.e. the widest
   interval. A record too short for any slope takes the fewest over all five types.
@@ -67,6 +69,8 @@ _SLOPE_OCTAVES = (2, 1)
 #: max(1, m // 16) samples: differences that close overlap strongly, so little precision is
 #: lost, and the slope's cost stays far below one pass over the record.
 _SLOPE_STEP_DIVISOR = 16
+#: White and flicker angle noise: the same Allan-variance slope (μ = −2).
+_ANGLE_PAIR = (2, 1)
 #: μ of the Allan variance for each power law α of the rate PSD.
 _AVAR_SLOPE = {2: -2, 1: -2, 0: -1, -1: 0, -2: 1}
 #: Decision bounds on the unrounded estimate after two differences when m > 1 (block-averaged
@@ -237,18 +241,20 @@ def _slope_candidates(slope: tuple[float, float] | None) -> tuple[int, ...]:
 
 
 def _alpha_at(x: np.ndarray, m: int, slopes: dict[int, float | None]) -> int:
-    """The noise type at m (module notes): lag-1 with ≥ 100 points, else the local slope's
-    candidates narrowed by the lag-1 answer with ≥ 30 points, else the fewest EDF of them (the
-    lag-1 answer among them when the slope excludes it)."""
+    """The noise type at m (module notes): lag-1 with ≥ 100 points; else the fewest EDF among
+    the local slope's candidates, where a lag-1 answer from ≥ 30 points decides between white
+    and flicker angle noise, and joins the candidates when the slope excludes it."""
     segs = _phase_segments(x, m, minimum=_ID_LOW_POINTS)
     lag1 = _alpha_from_phase_segments(segs, m)[0] if segs is not None else None
     if lag1 is not None and (x.shape[0] - 1) // m + 1 >= _ID_MIN_POINTS:
         return lag1
     candidates = _slope_candidates(_local_slope(x, m, slopes))
     if lag1 is not None:
-        if lag1 in candidates:
-            return lag1
-        candidates = tuple(a for a in NOISE_ALPHAS if a in candidates or a == lag1)
+        if lag1 in _ANGLE_PAIR and set(_ANGLE_PAIR) <= set(candidates):
+            # the one pair the slope cannot separate: the lag-1 answer decides it
+            candidates = tuple(a for a in candidates if a == lag1 or a not in _ANGLE_PAIR)
+        elif lag1 not in candidates:
+            candidates = tuple(a for a in NOISE_ALPHAS if a in candidates or a == lag1)
     n_phase = int(x.shape[0])
     # the fewest degrees of freedom; equal ones (never seen) go to the larger α, as ordered
     return min(candidates, key=lambda a: edf_cached(int(a), m, n_phase))
