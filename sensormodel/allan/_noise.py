@@ -240,7 +240,7 @@ def _slope_candidates(slope: tuple[float, float] | None) -> tuple[int, ...]:
     return tuple(a for a in NOISE_ALPHAS if abs(_AVAR_SLOPE[a] - mu) < 0.5 + error)
 
 
-def _alpha_at(x: np.ndarray, m: int, slopes: dict[int, float | None]) -> int:
+def _alpha_at(x: np.ndarray, m: int, octaves: dict[int, float | None]) -> int:
     """The noise type at m (module notes): lag-1 with ≥ 100 points; else the fewest EDF among
     the local slope's candidates, where a lag-1 answer from ≥ 30 points decides between white
     and flicker angle noise, and joins the candidates when the slope excludes it."""
@@ -248,7 +248,7 @@ def _alpha_at(x: np.ndarray, m: int, slopes: dict[int, float | None]) -> int:
     lag1 = _alpha_from_phase_segments(segs, m)[0] if segs is not None else None
     if lag1 is not None and (x.shape[0] - 1) // m + 1 >= _ID_MIN_POINTS:
         return lag1
-    candidates = _slope_candidates(_local_slope(x, m, slopes))
+    candidates = _slope_candidates(_local_slope(x, m, octaves))
     if lag1 is not None:
         if lag1 in _ANGLE_PAIR and set(_ANGLE_PAIR) <= set(candidates):
             # the one pair the slope cannot separate: the lag-1 answer decides it
@@ -262,8 +262,8 @@ def _alpha_at(x: np.ndarray, m: int, slopes: dict[int, float | None]) -> int:
 
 def _identify_all(x: np.ndarray, ms: np.ndarray) -> np.ndarray:
     """α at each m, each decided from the record at and around that m alone (module notes)."""
-    slopes: dict[int, float | None] = {}  # octave AVAR values, shared only as a cache
-    return np.array([_alpha_at(x, int(m), slopes) for m in ms], dtype=np.int64)
+    octaves: dict[int, float | None] = {}  # octave AVAR values, shared only as a cache
+    return np.array([_alpha_at(x, int(m), octaves) for m in ms], dtype=np.int64)
 
 
 def noise_alpha(y: npt.ArrayLike, m: int) -> tuple[int, float]:
