@@ -40,13 +40,17 @@ equivalent degrees of freedom (EDF) of C. A. Greenhall and W. J. Riley, "Uncerta
 stability variances based on finite differences", Proc. 35th PTTI Meeting (2003), for the
 overlapped, unmodified Allan variance. The EDF depends on the power-law noise type α at each τ
 (one-sided PSD of the rate S_y(f) ∝ f^α: α = 2 white angle noise, 0 white rate noise, −1 flicker
-rate noise, −2 random-walk rate noise), identified from the data by the lag-1 autocorrelation
-method of W. J. Riley and C. A. Greenhall, "Power law noise identification using the lag 1
-autocorrelation", Proc. 18th EFTF (2004), or given by the caller.
+rate noise, −2 random-walk rate noise), decided from the data at each τ from the record at and
+around that τ alone (never copied from another τ, so independent of the requested grid): the
+lag-1 autocorrelation method of W. J. Riley and C. A. Greenhall, "Power law noise
+identification using the lag 1 autocorrelation", Proc. 18th EFTF (2004) where 100 decimated
+points remain, else the local slope of the Allan variance on a fixed octave grid of the record,
+with the type of fewest degrees of freedom (the widest interval) where the slope leaves it
+undecided; or the noise type is given by the caller.
 
 Modules (private; this package exports the public names): ``_samples`` (sample checks, the
 phase, τ grids), ``_engine`` (second-difference sums, the schedule of records on worker
-threads, :func:`overlapping` and its siblings), ``_noise`` (the lag-1 noise identification),
+threads, :func:`overlapping` and its siblings), ``_noise`` (the noise type at each τ),
 ``_curve`` (:class:`AllanCurve` and its JSON/CSV files). The degrees of freedom and intervals
 are :mod:`sensormodel.confidence`'s.
 

@@ -465,8 +465,9 @@ def overlapping(
 
     The estimator of IEEE Std 1139-2008 / NIST SP 1065 section 5.2.4 eq. (11) on the phase
     form x = cumsum(y − ȳ)/rate (see the module notes); the EDF of Greenhall & Riley (2003) with
-    the noise type at each τ from the lag-1 autocorrelation method (Riley & Greenhall 2004); the
-    interval of SP 1065 eq. (45).
+    the noise type decided at each τ (the lag-1 autocorrelation method of Riley & Greenhall
+    2004, or the local Allan-variance slope with the conservative type where it is undecided);
+    the interval of SP 1065 eq. (45).
 
     Parameters
     ----------
@@ -481,10 +482,13 @@ def overlapping(
     confidence : float
         Two-sided confidence of the intervals (default 0.683).
     noise_type : "auto", int or sequence of int
-        α of the rate PSD S_y ∝ f^α used for the EDF: ``"auto"`` identifies it at each τ from
-        the data; where fewer than 100 decimated points remain, the α of the longest τ that had
-        enough is kept (white rate noise, α = 0, if no τ had enough). An int fixes it for all τ;
-        a sequence gives one per τ of the grid.
+        α of the rate PSD S_y ∝ f^α used for the EDF: ``"auto"`` decides it at each τ from
+        the record at and around that τ alone, so it does not depend on the other τ requested:
+        the lag-1 autocorrelation where 100 decimated points remain, else the local slope of
+        the Allan variance on a fixed octave grid of the record (narrowed by the lag-1 answer
+        from 30 points), and where that leaves more than one type (always for white against
+        flicker angle noise) the one with the fewest degrees of freedom, the widest interval.
+        An int fixes it for all τ; a sequence gives one per τ of the grid.
     unit : str
         Unit label of ``y``, kept in the result for display and files (no conversion).
     channel : str

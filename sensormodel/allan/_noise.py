@@ -1,15 +1,44 @@
-"""Noise identification at each τ: the lag-1 autocorrelation method of W. J. Riley and
-C. A. Greenhall, "Power law noise identification using the lag 1 autocorrelation", Proc. 18th
-EFTF (2004) (private to :mod:`sensormodel.allan`; :func:`noise_alpha` is public there)."""
+"""Noise identification at each τ (private to :mod:`sensormodel.allan`; :func:`noise_alpha` is
+public there).
+
+The noise type α behind the degrees of freedom at a τ = m τ0 is decided from the record at and
+around that τ only, never copied from another τ, so it does not depend on which other τ were
+requested:
+
+* **Lag-1 autocorrelation** (W. J. Riley and C. A. Greenhall, "Power law noise identification
+  using the lag 1 autocorrelation", Proc. 18th EFTF (2004)) where the phase decimated by m
+  keeps at least ``_ID_MIN_POINTS`` (100) points: its answer is taken as it is.
+* **Local slope of the Allan variance** where fewer remain. AVAR ∝ τ^μ with μ = −α − 1 for
+  −2 ≤ α ≤ 0 and μ ≈ −2 for both white (α = 2) and flicker (α = 1) angle noise (J. A. Barnes
+  et al., "Characterization of frequency stability", IEEE Trans. Instrum. Meas. IM-20 (1971);
+  NIST SP 1065, W. J. Riley, "Handbook of Frequency Stability Analysis", 2008; IEEE Std
+  952-1997 Annex C). μ is the least-squares slope of ln AVAR over ln τ on a FIXED octave
+  grid of the record (m_j = 2^j, the octaves from m/4 to 2m that fit in the record), so it is
+  the same whatever grid was requested. Every α whose μ lies within half a step plus one
+  standard error of the estimate is a candidate (the slope cannot separate white from
+  flicker angle noise at all). Between ``_ID_LOW_POINTS`` (30, about the least Riley &
+  Greenhall suggest for the lag-1 method) and 100 points the lag-1 answer decides between white
+  and flicker angle noise when both are candidates (white or flicker phase: δ = r1/(1 + r1) of
+  the undifferenced phase near 0 against near 1/2, told apart well from 30 points, where white
+  against flicker rate noise is not yet); a lag-1 answer the slope excludes joins the
+  candidates.
+* **The conservative choice** where the candidates remain undecided: the α with the fewest
+  degrees of freedom at that τ (:func:`sensormodel.confidence.edf_cached`), i.e. the widest
+  interval. A record too short for any slope takes the fewest over all five types.
+
+Everything is computed in the one thread of the ``identify`` task from the phase array alone,
+so the result is the same to the bit whatever the number of workers.
+"""
 
 from __future__ import annotations
 
+import math
 from typing import Any
 
 import numpy as np
 import numpy.typing as npt
 
-from ..confidence import NOISE_ALPHAS
+from ..confidence import NOISE_ALPHAS, edf_cached
 from ..errors import AnalysisError
 from ._samples import _as_samples, _check_finite_mean, _phase
 
@@ -28,9 +57,22 @@ NOISE_NAMES = {
 #: Greenhall (2004) suggest about 30 (from memory); seeded simulations here (300 records per
 #: case) identified white rate noise correctly in 77 % of records at 33 points, 89 % at 50 and
 #: 97 % at 100 (white angle and random-walk rate noise ≥ 97 % throughout), and a white record
-#: taken for angle noise gets a far too large EDF, so 100 points are required; longer τ keep the
-#: α of the nearest τ that had them.
+#: taken for angle noise gets a far too large EDF, so 100 points are required for the lag-1
+#: answer alone; with fewer the local Allan-variance slope decides (module notes).
 _ID_MIN_POINTS = 100
+#: Fewest decimated phase points at which the lag-1 answer still picks among the slope's
+#: candidates (about the least Riley & Greenhall 2004 suggest for the method).
+_ID_LOW_POINTS = 30
+#: Octaves below (2) and above (1) τ on the fixed grid that enter the local slope.
+_SLOPE_OCTAVES = (2, 1)
+#: The second differences of an octave point m of the slope grid are taken every
+#: max(1, m // 16) samples: differences that close overlap strongly, so little precision is
+#: lost, and the slope's cost stays far below one pass over the record.
+_SLOPE_STEP_DIVISOR = 16
+#: White and flicker angle noise: the same Allan-variance slope (μ = −2).
+_ANGLE_PAIR = (2, 1)
+#: μ of the Allan variance for each power law α of the rate PSD.
+_AVAR_SLOPE = {2: -2, 1: -2, 0: -1, -1: 0, -2: 1}
 #: Decision bounds on the unrounded estimate after two differences when m > 1 (block-averaged
 #: rate): (random walk | flicker, flicker | white). Averaging over m biases the lag-1
 #: autocorrelation of the differenced block means: for random-walk rate noise r1 → 1/4
@@ -44,9 +86,6 @@ _AVERAGED_BOUNDS = (-1.92, -0.72)
 #: Most decimated phase points used for the identification (in 4 spread segments beyond it);
 #: the lag-1 autocorrelation then has a standard error of about 1/sqrt(65536) = 0.004.
 _ID_MAX_POINTS = 1 << 16
-#: α assumed when no τ of the record has enough points for the identification (very short
-#: records): white rate noise, the usual dominant term at short τ (common practice).
-_ID_FALLBACK_ALPHA = 0
 
 
 def _noise_types(noise_type: Any, k: int) -> np.ndarray | None:
@@ -128,10 +167,13 @@ def _alpha_from_phase_segments(segments: list[np.ndarray], m: int) -> tuple[int,
         d += 1
 
 
-def _phase_segments(x: np.ndarray, m: int) -> list[np.ndarray] | None:
-    """Phase decimated by m (x[0], x[m], …), or up to 4 spread segments of it; None if too few."""
+def _phase_segments(
+    x: np.ndarray, m: int, minimum: int = _ID_MIN_POINTS
+) -> list[np.ndarray] | None:
+    """Phase decimated by m (x[0], x[m], …), or up to 4 spread segments of it; None if fewer
+    than ``minimum`` points."""
     k_total = (x.shape[0] - 1) // m + 1
-    if k_total < _ID_MIN_POINTS:
+    if k_total < minimum:
         return None
     if k_total <= _ID_MAX_POINTS:
         return [np.array(x[: (k_total - 1) * m + 1 : m], dtype=np.float64)]
@@ -140,24 +182,88 @@ def _phase_segments(x: np.ndarray, m: int) -> list[np.ndarray] | None:
     return [np.array(x[int(a) * m : (int(a) + seg - 1) * m + 1 : m]) for a in starts]
 
 
+def _octave_avar(x: np.ndarray, j: int) -> float | None:
+    """Allan variance (up to the factor 1/τ0², which a slope ignores) at m = 2^j from second
+    differences taken every max(1, m // 16) samples; None where the record has fewer than two
+    (the least any τ of a curve has)."""
+    m = 1 << j
+    count = x.shape[0] - 2 * m
+    if count < 2:
+        return None
+    step = max(1, m // _SLOPE_STEP_DIVISOR)
+    d = x[2 * m : 2 * m + count : step] - 2.0 * x[m : m + count : step]
+    d += x[0:count:step]
+    return float(np.einsum("i,i->", d, d)) / (2.0 * m * m * d.shape[0])
+
+
+def _local_slope(
+    x: np.ndarray, m: int, cache: dict[int, float | None]
+) -> tuple[float, float] | None:
+    """Weighted least-squares slope μ of ln AVAR over ln τ on the fixed octaves 2^j around m
+    (from ``_SLOPE_OCTAVES`` below to above ⌊log2 m⌋) and its standard error; None with fewer
+    than two usable octaves.
+
+    Each octave's ln AVAR has variance about 2/ν (the chi-square model with ν degrees of
+    freedom behind the intervals, NIST SP 1065 eq. (45)); ν is taken as white rate noise's
+    (:func:`sensormodel.confidence.edf_cached`, α = 0) as a nominal weight: the error is needed
+    to its order only. Octaves are treated as independent, which understates the error a little.
+    """
+    n_phase = int(x.shape[0])
+    top = m.bit_length() - 1
+    t_list: list[float] = []
+    v_list: list[float] = []
+    w_list: list[float] = []
+    for j in range(max(0, top - _SLOPE_OCTAVES[0]), top + _SLOPE_OCTAVES[1] + 1):
+        if j not in cache:
+            cache[j] = _octave_avar(x, j)
+        value = cache[j]
+        if value is not None and value > 0.0:
+            t_list.append(j * math.log(2.0))
+            v_list.append(math.log(value))
+            w_list.append(0.5 * edf_cached(0, 1 << j, n_phase))
+    if len(t_list) < 2:
+        return None
+    t, v, w = np.array(t_list), np.array(v_list), np.array(w_list)
+    t -= float(np.einsum("i,i->", w, t)) / float(np.einsum("i->", w))
+    sxx = float(np.einsum("i,i,i->", w, t, t))
+    return float(np.einsum("i,i,i->", w, t, v)) / sxx, 1.0 / math.sqrt(sxx)
+
+
+def _slope_candidates(slope: tuple[float, float] | None) -> tuple[int, ...]:
+    """Every α whose Allan-variance slope lies within half a step plus the estimate's standard
+    error of μ (the nearest end of the range beyond it); all five types when there is no slope.
+    """
+    if slope is None:
+        return NOISE_ALPHAS
+    mu, error = slope
+    mu = min(max(mu, -2.0), 1.0)
+    return tuple(a for a in NOISE_ALPHAS if abs(_AVAR_SLOPE[a] - mu) < 0.5 + error)
+
+
+def _alpha_at(x: np.ndarray, m: int, octaves: dict[int, float | None]) -> int:
+    """The noise type at m (module notes): lag-1 with ≥ 100 points; else the fewest EDF among
+    the local slope's candidates, where a lag-1 answer from ≥ 30 points decides between white
+    and flicker angle noise, and joins the candidates when the slope excludes it."""
+    segs = _phase_segments(x, m, minimum=_ID_LOW_POINTS)
+    lag1 = _alpha_from_phase_segments(segs, m)[0] if segs is not None else None
+    if lag1 is not None and (x.shape[0] - 1) // m + 1 >= _ID_MIN_POINTS:
+        return lag1
+    candidates = _slope_candidates(_local_slope(x, m, octaves))
+    if lag1 is not None:
+        if lag1 in _ANGLE_PAIR and set(_ANGLE_PAIR) <= set(candidates):
+            # the one pair the slope cannot separate: the lag-1 answer decides it
+            candidates = tuple(a for a in candidates if a == lag1 or a not in _ANGLE_PAIR)
+        elif lag1 not in candidates:
+            candidates = tuple(a for a in NOISE_ALPHAS if a in candidates or a == lag1)
+    n_phase = int(x.shape[0])
+    # the fewest degrees of freedom; equal ones (never seen) go to the larger α, as ordered
+    return min(candidates, key=lambda a: edf_cached(int(a), m, n_phase))
+
+
 def _identify_all(x: np.ndarray, ms: np.ndarray) -> np.ndarray:
-    """α at each m; where too few points remain, the α of the nearest τ that had enough
-    (the longest shorter τ, as the short records run out at long τ), else white rate noise."""
-    found: dict[int, int] = {}
-    for k, m in enumerate(ms):
-        segs = _phase_segments(x, int(m))
-        if segs is not None:
-            found[k] = _alpha_from_phase_segments(segs, int(m))[0]
-    alphas = np.empty(len(ms), dtype=np.int64)
-    for k in range(len(ms)):
-        if k in found:
-            alphas[k] = found[k]
-        elif found:
-            nearest = min(found, key=lambda j: (abs(j - k), -j))
-            alphas[k] = found[nearest]
-        else:
-            alphas[k] = _ID_FALLBACK_ALPHA
-    return alphas
+    """α at each m, each decided from the record at and around that m alone (module notes)."""
+    octaves: dict[int, float | None] = {}  # octave AVAR values, shared only as a cache
+    return np.array([_alpha_at(x, int(m), octaves) for m in ms], dtype=np.int64)
 
 
 def noise_alpha(y: npt.ArrayLike, m: int) -> tuple[int, float]:
