@@ -74,6 +74,11 @@ _SLOPE_OCTAVES = (2, 1)
 #: max(1, m // 16) samples: differences that close overlap strongly, so little precision is
 #: lost, and the slope's cost stays far below one pass over the record.
 _SLOPE_STEP_DIVISOR = 16
+#: Most second differences per octave point of the slope grid (spread evenly over the record):
+#: the slope's cost stays bounded on long records, where its error is far below the half step
+#: of the candidate band anyway. Only octaves with m < 16 n / 2^18 are thinned by it, never
+#: those of the τ with fewer than 100 decimated points.
+_SLOPE_MAX_DIFFERENCES = 1 << 18
 #: White and flicker angle noise: the same Allan-variance slope (μ = −2).
 _ANGLE_PAIR = (2, 1)
 #: μ of the Allan variance for each power law α of the rate PSD.
@@ -188,15 +193,15 @@ def _phase_segments(
 
 
 def _octave_avar(x: np.ndarray, j: int) -> float | None:
-    """Allan variance (up to the factor 1/τ0², which a slope ignores) at m = 2^j from second
-    differences taken every max(1, m // 16) samples (summed in pieces of at most 65 536, so
-    the scratch memory is bounded); None where the record has fewer than two (the least any
-    τ of a curve has)."""
+    """Allan variance (up to the factor 1/τ0², which a slope ignores) at m = 2^j from the
+    ``count`` second differences of the record taken every max(1, m // 16, count // 2^18)
+    samples (summed in pieces of at most 65 536, so the scratch memory is bounded); None where
+    the record has fewer than two (the least any τ of a curve has)."""
     m = 1 << j
     count = x.shape[0] - 2 * m
     if count < 2:
         return None
-    step = max(1, m // _SLOPE_STEP_DIVISOR)
+    step = max(1, m // _SLOPE_STEP_DIVISOR, count // _SLOPE_MAX_DIFFERENCES)
     total = 0.0
     used = 0
     # in pieces of at most _ID_MAX_POINTS differences: bounded scratch memory on long records
