@@ -501,6 +501,34 @@ def test_noise_type_where_points_run_out_is_decided_at_each_tau():
         allan.noise_alpha(y, 8)
 
 
+def test_lag1_answer_the_local_slope_excludes_takes_the_fewer_degrees_of_freedom():
+    # A seeded 2^23-sample white rate noise record (N = 1 per √s, so ADEV = 1/√τ): at
+    # m = 65 536 (129 decimated points) the lag-1 method (Riley & Greenhall 2004) says flicker
+    # angle noise (estimate 0.57) while the local Allan-variance slope on the octave grid is
+    # −1.11 ± 0.06 (white rate noise, μ = −α − 1). Taken alone, the lag-1 answer gave ~3500
+    # degrees of freedom and a 68 % interval of ±1.2 % that missed the true deviation by 6 %.
+    # Undecided, the type with the fewest degrees of freedom among the candidates is taken.
+    n, m = 1 << 23, 65536
+    y = np.random.default_rng(1).normal(0.0, 1.0, n)
+    tau = [float(m)]
+    n_phase = n + 1
+    c = allan.overlapping(y, 1.0, taus=tau)
+    assert c.noise_alpha[0] == 0 or c.edf[0] <= confidence.edf(0, m, n_phase)
+    assert c.edf[0] < 0.1 * confidence.edf(1, m, n_phase)
+    white = allan.overlapping(y, 1.0, taus=tau, noise_type=0)
+    assert c.ci_low[0] <= white.ci_low[0] and c.ci_high[0] >= white.ci_high[0]
+    # the estimate sits 1.4 standard deviations below the truth on this record, so its 95 %
+    # interval covers the true deviation, where the one of the lag-1 answer alone does not
+    truth = 1.0 / math.sqrt(m)
+    wide = allan.overlapping(y, 1.0, taus=tau, confidence=0.95)
+    assert wide.ci_low[0] <= truth <= wide.ci_high[0]
+    lag1_alone = allan.overlapping(y, 1.0, taus=tau, confidence=0.95, noise_type=1)
+    assert not lag1_alone.ci_low[0] <= truth <= lag1_alone.ci_high[0]
+    # where the slope agrees with the lag-1 answer (every shorter octave τ), it is kept
+    short = allan.overlapping(y, 1.0, taus=[16.0, 1024.0, 16384.0])
+    np.testing.assert_array_equal(short.noise_alpha, [0, 0, 0])
+
+
 def test_white_and_flicker_angle_noise_undecided_take_the_fewer_degrees_of_freedom():
     # The Allan variance falls as τ^-2 for white and for flicker angle noise alike (Barnes et
     # al. 1971; NIST SP 1065), so with fewer than 30 decimated points (too few for the lag-1

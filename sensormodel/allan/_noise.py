@@ -7,21 +7,26 @@ requested:
 
 * **Lag-1 autocorrelation** (W. J. Riley and C. A. Greenhall, "Power law noise identification
   using the lag 1 autocorrelation", Proc. 18th EFTF (2004)) where the phase decimated by m
-  keeps at least ``_ID_MIN_POINTS`` (100) points: its answer is taken as it is.
-* **Local slope of the Allan variance** where fewer remain. AVAR ∝ τ^μ with μ = −α − 1 for
-  −2 ≤ α ≤ 0 and μ ≈ −2 for both white (α = 2) and flicker (α = 1) angle noise (J. A. Barnes
-  et al., "Characterization of frequency stability", IEEE Trans. Instrum. Meas. IM-20 (1971);
-  NIST SP 1065, W. J. Riley, "Handbook of Frequency Stability Analysis", 2008; IEEE Std
-  952-1997 Annex C). μ is the least-squares slope of ln AVAR over ln τ on a FIXED octave
-  grid of the record (m_j = 2^j, the octaves from m/4 to 2m that fit in the record), so it is
-  the same whatever grid was requested. Every α whose μ lies within half a step plus one
-  standard error of the estimate is a candidate (the slope cannot separate white from
-  flicker angle noise at all). Between ``_ID_LOW_POINTS`` (30, about the least Riley &
-  Greenhall suggest for the lag-1 method) and 100 points the lag-1 answer decides between white
-  and flicker angle noise when both are candidates (white or flicker phase: δ = r1/(1 + r1) of
-  the undifferenced phase near 0 against near 1/2, told apart well from 30 points, where white
-  against flicker rate noise is not yet); a lag-1 answer the slope excludes joins the
-  candidates.
+  keeps at least ``_ID_MIN_POINTS`` (100) points: its answer is taken where the local slope
+  (below) admits it; where the slope excludes it (its μ = −α − 1 further than half a step plus
+  one standard error from the slope's), the type is undecided: the lag-1 answer and the
+  slope's candidates go to the conservative choice. The lag-1 estimate can go astray where
+  the slope cannot (a seeded 2^23-sample white rate noise record: flicker angle noise, estimate
+  0.57, at m = 65 536 with 129 points, where the slope is −1.11 ± 0.06).
+* **Local slope of the Allan variance** at every τ; alone where fewer than 100 points remain.
+  AVAR ∝ τ^μ with μ = −α − 1 for −2 ≤ α ≤ 0 and μ ≈ −2 for both white (α = 2) and flicker
+  (α = 1) angle noise (J. A. Barnes et al., "Characterization of frequency stability",
+  IEEE Trans. Instrum. Meas. IM-20 (1971); NIST SP 1065, W. J. Riley, "Handbook of Frequency
+  Stability Analysis", 2008; IEEE Std 952-1997 Annex C). μ is the least-squares slope of ln AVAR
+  over ln τ on a FIXED octave grid of the record (m_j = 2^j, the octaves from m/4 to 2m that fit
+  in the record), so it is the same whatever grid was requested. Every α whose μ lies within
+  half a step plus one standard error of the estimate is a candidate (the slope cannot separate
+  white from flicker angle noise at all). Between ``_ID_LOW_POINTS`` (30, about the least Riley
+  & Greenhall suggest for the lag-1 method) and 100 points the lag-1 answer decides between
+  white and flicker angle noise when both are candidates (white or flicker phase:
+  δ = r1/(1 + r1) of the undifferenced phase near 0 against near 1/2, told apart well from 30
+  points, where white against flicker rate noise is not yet); a lag-1 answer the slope excludes
+  joins the candidates.
 * **The conservative choice** where the candidates remain undecided: the α with the fewest
   degrees of freedom at that τ (:func:`sensormodel.confidence.edf_cached`), i.e. the widest
   interval. A record too short for any slope takes the fewest over all five types.
@@ -69,6 +74,11 @@ _SLOPE_OCTAVES = (2, 1)
 #: max(1, m // 16) samples: differences that close overlap strongly, so little precision is
 #: lost, and the slope's cost stays far below one pass over the record.
 _SLOPE_STEP_DIVISOR = 16
+#: Most second differences per octave point of the slope grid (spread evenly over the record):
+#: the slope's cost stays bounded on long records, where its error is far below the half step
+#: of the candidate band anyway. Only octaves with m < 16 n / 2^18 are thinned by it, never
+#: those of the τ with fewer than 100 decimated points.
+_SLOPE_MAX_DIFFERENCES = 1 << 18
 #: White and flicker angle noise: the same Allan-variance slope (μ = −2).
 _ANGLE_PAIR = (2, 1)
 #: μ of the Allan variance for each power law α of the rate PSD.
@@ -183,17 +193,26 @@ def _phase_segments(
 
 
 def _octave_avar(x: np.ndarray, j: int) -> float | None:
-    """Allan variance (up to the factor 1/τ0², which a slope ignores) at m = 2^j from second
-    differences taken every max(1, m // 16) samples; None where the record has fewer than two
-    (the least any τ of a curve has)."""
+    """Allan variance (up to the factor 1/τ0², which a slope ignores) at m = 2^j from the
+    ``count`` second differences of the record taken every max(1, m // 16, count // 2^18)
+    samples (summed in pieces of at most 65 536, so the scratch memory is bounded); None where
+    the record has fewer than two (the least any τ of a curve has)."""
     m = 1 << j
     count = x.shape[0] - 2 * m
     if count < 2:
         return None
-    step = max(1, m // _SLOPE_STEP_DIVISOR)
-    d = x[2 * m : 2 * m + count : step] - 2.0 * x[m : m + count : step]
-    d += x[0:count:step]
-    return float(np.einsum("i,i->", d, d)) / (2.0 * m * m * d.shape[0])
+    step = max(1, m // _SLOPE_STEP_DIVISOR, count // _SLOPE_MAX_DIFFERENCES)
+    total = 0.0
+    used = 0
+    # in pieces of at most _ID_MAX_POINTS differences: bounded scratch memory on long records
+    span = step * _ID_MAX_POINTS
+    for start in range(0, count, span):
+        stop = min(count, start + span)
+        d = x[2 * m + start : 2 * m + stop : step] - 2.0 * x[m + start : m + stop : step]
+        d += x[start:stop:step]
+        total += float(np.einsum("i,i->", d, d))
+        used += d.shape[0]
+    return total / (2.0 * m * m * used)
 
 
 def _local_slope(
@@ -241,15 +260,19 @@ def _slope_candidates(slope: tuple[float, float] | None) -> tuple[int, ...]:
 
 
 def _alpha_at(x: np.ndarray, m: int, octaves: dict[int, float | None]) -> int:
-    """The noise type at m (module notes): lag-1 with ≥ 100 points; else the fewest EDF among
-    the local slope's candidates, where a lag-1 answer from ≥ 30 points decides between white
-    and flicker angle noise, and joins the candidates when the slope excludes it."""
+    """The noise type at m (module notes): with ≥ 100 points the lag-1 answer where the local
+    slope admits it; else the fewest EDF among the slope's candidates, which a lag-1 answer
+    the slope excludes joins; from 30 to 99 points the lag-1 answer also decides between white
+    and flicker angle noise where the slope admits both."""
     segs = _phase_segments(x, m, minimum=_ID_LOW_POINTS)
     lag1 = _alpha_from_phase_segments(segs, m)[0] if segs is not None else None
-    if lag1 is not None and (x.shape[0] - 1) // m + 1 >= _ID_MIN_POINTS:
-        return lag1
     candidates = _slope_candidates(_local_slope(x, m, octaves))
-    if lag1 is not None:
+    if lag1 is not None and (x.shape[0] - 1) // m + 1 >= _ID_MIN_POINTS:
+        if lag1 in candidates:
+            return lag1
+        # the slope excludes the lag-1 answer: undecided, both kinds of answer are candidates
+        candidates = tuple(a for a in NOISE_ALPHAS if a in candidates or a == lag1)
+    elif lag1 is not None:
         if lag1 in _ANGLE_PAIR and set(_ANGLE_PAIR) <= set(candidates):
             # the one pair the slope cannot separate: the lag-1 answer decides it
             candidates = tuple(a for a in candidates if a == lag1 or a not in _ANGLE_PAIR)
