@@ -23,6 +23,7 @@ from ..errors import AnalysisError
 from ._bootstrap import ProgressCallback, _bootstrap, _Progress
 from ._checks import _check_curve, _check_n_boot, _check_terms, _check_white_filter, _Curve
 from ._design import (
+    _GM_PEAK_RATIO,
     _chi2,
     _Design,
     _design,
@@ -31,6 +32,7 @@ from ._design import (
     _params,
     _phi,
     _RefitState,
+    _time_constant_edge,
     _wls_matrix,
 )
 from ._names import DEFAULT_CONFIDENCE, DEFAULT_TERMS, PARAMETERS
@@ -326,9 +328,25 @@ def _fitted_terms(
         pct = np.sqrt(np.maximum(boot[:, j], 0.0))
         details["percentile_low"] = _quantile(pct, alpha)
         details["percentile_high"] = _quantile(pct, 1.0 - alpha)
+        reasons: tuple[tuple[str, dict[str, Any]], ...] = ()
         if nm == "gauss_markov":
             supported = bool(est.supported[j])
             details.update(_time_constant_details(c, full, est, supported, boot_t, alpha))
+            # the time constant reported: the estimate's, or the full fit's for a term the
+            # data do not support (with every requested term in the fit)
+            t_rep, mask = (
+                (est.time_constant, sel.in_fit)
+                if supported
+                else (
+                    full.time_constant,
+                    np.ones(len(names), dtype=bool),
+                )
+            )
+            if t_rep is not None:
+                edge = _time_constant_edge(c.avar, full.design, mask, t_rep)
+                reasons = _edge_reasons(c, full.design, edge, t_rep, estimate if supported else 0.0)
+                if edge == "upper" and supported:
+                    details["time_constant_high"] = math.inf
         fitted.append(
             FittedTerm(
                 term=nm,
@@ -343,9 +361,47 @@ def _fitted_terms(
                 tau_range=tau_range,
                 method=method,
                 details=details,
+                reasons=reasons,
             )
         )
     return tuple(fitted)
+
+
+def _edge_reasons(
+    c: _Curve, d: _Design, edge: str | None, time_constant: float, sigma: float
+) -> tuple[tuple[str, dict[str, Any]], ...]:
+    """The reason codes of a Gauss-Markov time constant [s] at an ``edge`` of its search range
+    (:func:`._design._time_constant_edge`) with their numbers, σ [u] the term's estimate.
+
+    ``estimate_at_search_edge`` (term, parameter, edge, value, the range) and what it means:
+    ``time_constant_not_resolved`` at the upper end (T ≥ the bound; the record shows only the
+    rising side of the term's Allan deviation, so σ is a lower bound: σ²/T is what the curve
+    fixes; ``sigma`` 0 for a term the data do not support) or
+    ``time_constant_at_lower_edge`` (T ≤ the bound; the term is white noise to the curve).
+    """
+    if edge is None:
+        return ()
+    assert d.gm_grid is not None
+    low, high = float(d.gm_grid[0]), float(d.gm_grid[-1])
+    at_edge = {
+        "term": "gauss_markov",
+        "parameter": "time_constant",
+        "edge": edge,
+        "value": time_constant,
+        "low": low,
+        "high": high,
+    }
+    if edge == "upper":
+        meaning = {
+            "bound": time_constant,
+            "resolvable": high,
+            "tau": high * _GM_PEAK_RATIO,
+            "sigma": sigma,
+            "unit": c.unit,
+        }
+        return (("estimate_at_search_edge", at_edge), ("time_constant_not_resolved", meaning))
+    meaning = {"bound": time_constant, "shortest_tau": float(c.tau[0])}
+    return (("estimate_at_search_edge", at_edge), ("time_constant_at_lower_edge", meaning))
 
 
 def _interval(
@@ -396,7 +452,8 @@ def _time_constant_details(
     alpha: float,
 ) -> dict[str, float]:
     """The Gauss-Markov time constant [s] and its ratio-pivot interval from the refits' time
-    constants; the whole search range of the profile where the term is not supported."""
+    constants; the whole search range of the profile (the design's grid: from a quarter of the
+    shortest τ to what the record resolves) where the term is not supported."""
     t_gm = est.time_constant
     t_est = t_gm if (selected and t_gm is not None) else full.time_constant
     out = {"time_constant": float(t_est) if t_est is not None else math.nan}
@@ -406,6 +463,7 @@ def _time_constant_details(
         out["time_constant_low"] = float(t_gm / _quantile(ratio_t, 1.0 - alpha))
         out["time_constant_high"] = float(t_gm / _quantile(ratio_t, alpha))
     else:
-        out["time_constant_low"] = float(c.tau[0] / 4.0)
-        out["time_constant_high"] = float(c.tau[-1] * 2.0)
+        assert full.design.gm_grid is not None
+        out["time_constant_low"] = float(full.design.gm_grid[0])
+        out["time_constant_high"] = float(full.design.gm_grid[-1])
     return out
