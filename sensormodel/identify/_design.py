@@ -124,8 +124,9 @@ def _resolvable_time_constant(tau: npt.ArrayLike, edf: npt.ArrayLike) -> float:
     (the curve's own EDF, NIST SP 1065 section 5.3; at ν = 4 the 68 % chi-square interval of
     the deviation is already −22 %/+68 %, and beyond it a point cannot place a peak).
     That τ is found on the log-log line between the two curve points whose EDF straddle 4,
-    so it does not depend on the τ grid; for a long record of a random-walk-like term it is
-    about a quarter of the record length, and the bound about an eighth of it.
+    so it follows the EDF rather than the spacing of the τ grid; for a long record of a
+    random-walk-like term it is about a quarter of the record length, and the bound about an
+    eighth of it.
 
     Parameters
     ----------
@@ -273,7 +274,9 @@ def _profile_time_constant(
     """The Gauss-Markov time constant of least χ²: the best point of ``grid`` [s], refined in
     log T between its neighbours (bounded golden-section search on a unimodal bracket) and kept
     only if no worse. ``fit_grid(k)`` and ``fit_at(T)`` return (coefficients, χ²) at grid
-    point k and at any T. Returns (T, coefficients, χ²)."""
+    point k and at any T. Returns (T, coefficients, χ²). The grid ends at what the record
+    resolves (:func:`_time_constant_grid`), so T never leaves that range; whether it sits at an
+    end is :func:`_time_constant_edge`'s question."""
     from scipy.optimize import minimize_scalar
 
     results = [fit_grid(k) for k in range(grid.size)]

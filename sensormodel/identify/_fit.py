@@ -330,23 +330,10 @@ def _fitted_terms(
         details["percentile_high"] = _quantile(pct, 1.0 - alpha)
         reasons: tuple[tuple[str, dict[str, Any]], ...] = ()
         if nm == "gauss_markov":
-            supported = bool(est.supported[j])
-            details.update(_time_constant_details(c, full, est, supported, boot_t, alpha))
-            # the time constant reported: the estimate's, or the full fit's for a term the
-            # data do not support (with every requested term in the fit)
-            t_rep, mask = (
-                (est.time_constant, sel.in_fit)
-                if supported
-                else (
-                    full.time_constant,
-                    np.ones(len(names), dtype=bool),
-                )
+            tc_details, reasons = _time_constant_result(
+                c, full, sel, est, bool(est.supported[j]), boot_t, alpha, estimate
             )
-            if t_rep is not None:
-                edge = _time_constant_edge(c.avar, full.design, mask, t_rep)
-                reasons = _edge_reasons(c, full.design, edge, t_rep, estimate if supported else 0.0)
-                if edge == "upper" and supported:
-                    details["time_constant_high"] = math.inf
+            details.update(tc_details)
         fitted.append(
             FittedTerm(
                 term=nm,
@@ -367,17 +354,56 @@ def _fitted_terms(
     return tuple(fitted)
 
 
+def _time_constant_result(
+    c: _Curve,
+    full: _FullFit,
+    sel: _Selection,
+    est: _Estimate,
+    supported: bool,
+    boot_t: _FloatArray,
+    alpha: float,
+    sigma: float,
+) -> tuple[dict[str, float], tuple[tuple[str, dict[str, Any]], ...]]:
+    """The Gauss-Markov time constant's details (:func:`_time_constant_details`) and the
+    reason codes of a time constant the record does not resolve, σ [u] the term's estimate.
+
+    The time constant reported is the estimate's, or the full fit's (every requested term in
+    the fit) for a term the data do not support. Its upper end is unbounded (``inf``) where
+    the estimate sits at the upper edge of its search (:func:`._design._time_constant_edge`) or
+    where the interval of a supported term reaches beyond the end of the search: T beyond
+    what the record resolves is then not excluded, and the result is a lower bound only.
+    """
+    d = full.design
+    assert d.gm_grid is not None
+    details = _time_constant_details(c, full, est, supported, boot_t, alpha)
+    t_rep, mask = (est.time_constant, sel.in_fit) if supported else (full.time_constant, None)
+    if t_rep is None:
+        return details, ()
+    if mask is None:
+        mask = np.ones(len(d.names), dtype=bool)
+    edge = _time_constant_edge(c.avar, d, mask, t_rep)
+    if edge is None and supported and details["time_constant_high"] > d.gm_grid[-1]:
+        edge = "interval"
+    if edge in ("upper", "interval") and supported:
+        details["time_constant_high"] = math.inf
+    bound = details["time_constant_low"] if edge == "interval" else t_rep
+    return details, _edge_reasons(c, d, edge, t_rep, bound, sigma if supported else 0.0)
+
+
 def _edge_reasons(
-    c: _Curve, d: _Design, edge: str | None, time_constant: float, sigma: float
+    c: _Curve, d: _Design, edge: str | None, time_constant: float, bound: float, sigma: float
 ) -> tuple[tuple[str, dict[str, Any]], ...]:
     """The reason codes of a Gauss-Markov time constant [s] at an ``edge`` of its search range
-    (:func:`._design._time_constant_edge`) with their numbers, σ [u] the term's estimate.
+    with their numbers, σ [u] the term's estimate.
 
-    ``estimate_at_search_edge`` (term, parameter, edge, value, the range) and what it means:
-    ``time_constant_not_resolved`` at the upper end (T ≥ the bound; the record shows only the
-    rising side of the term's Allan deviation, so σ is a lower bound: σ²/T is what the curve
-    fixes; ``sigma`` 0 for a term the data do not support) or
-    ``time_constant_at_lower_edge`` (T ≤ the bound; the term is white noise to the curve).
+    ``edge`` ``"upper"`` or ``"lower"``: the estimate at that end
+    (:func:`._design._time_constant_edge`): ``estimate_at_search_edge`` (term, parameter, edge,
+    value, the range) and what it means: ``time_constant_not_resolved`` at the upper end
+    (T ≥ ``bound``; the record shows only the rising side of the term's Allan deviation, so σ
+    is a lower bound: σ²/T is what the curve fixes; ``sigma`` 0 for a term the data do not
+    support) or ``time_constant_at_lower_edge`` (T ≤ ``bound``; the term is white noise to the
+    curve). ``"interval"``: only the interval reaches the upper end;
+    ``time_constant_not_resolved`` alone, ``bound`` the interval's lower end.
     """
     if edge is None:
         return ()
@@ -391,17 +417,19 @@ def _edge_reasons(
         "low": low,
         "high": high,
     }
-    if edge == "upper":
-        meaning = {
-            "bound": time_constant,
-            "resolvable": high,
-            "tau": high * _GM_PEAK_RATIO,
-            "sigma": sigma,
-            "unit": c.unit,
-        }
-        return (("estimate_at_search_edge", at_edge), ("time_constant_not_resolved", meaning))
-    meaning = {"bound": time_constant, "shortest_tau": float(c.tau[0])}
-    return (("estimate_at_search_edge", at_edge), ("time_constant_at_lower_edge", meaning))
+    if edge == "lower":
+        meaning = {"bound": bound, "shortest_tau": float(c.tau[0])}
+        return (("estimate_at_search_edge", at_edge), ("time_constant_at_lower_edge", meaning))
+    why = {
+        "bound": bound,
+        "resolvable": high,
+        "tau": high * _GM_PEAK_RATIO,
+        "sigma": sigma,
+        "unit": c.unit,
+    }
+    if edge == "interval":
+        return (("time_constant_not_resolved", why),)
+    return (("estimate_at_search_edge", at_edge), ("time_constant_not_resolved", why))
 
 
 def _interval(

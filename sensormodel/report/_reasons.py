@@ -37,8 +37,8 @@ def _time_constant_not_resolved(values: Mapping[str, Any]) -> str:
     ).format(**values)
     if float(values.get("sigma", 0.0)) > 0.0:
         return head + (
-            "; the curve shows only the rising side, so σ ≥ {sigma:.4g} {unit} "
-            "(σ²/T is what it fixes)"
+            "; a longer T is not excluded, and with it a larger σ: σ ≥ {sigma:.4g} {unit} "
+            "(the rising side of the curve fixes σ²/T)"
         ).format(**values)
     return head + "; the term is not told from zero"
 
