@@ -313,6 +313,7 @@ def _fitted_terms(
             lin_high=float(sel.lin_high[j]),
             alpha=alpha,
             details=details,
+            cut=nm == "gauss_markov" and _refits_cut(full.design, boot_t, alpha),
         )
         disagrees = False
         if nm in points:
@@ -370,8 +371,10 @@ def _time_constant_result(
     The time constant reported is the estimate's, or the full fit's (every requested term in
     the fit) for a term the data do not support. Its upper end is unbounded (``inf``) where
     the estimate sits at the upper edge of its search (:func:`._design._time_constant_edge`) or
-    where the interval of a supported term reaches beyond the end of the search: T beyond
-    what the record resolves is then not excluded, and the result is a lower bound only.
+    where the interval of a supported term reaches beyond the end of the search
+    (:func:`_time_constant_details`): T beyond what the record resolves is then not excluded,
+    and the result is a lower bound only, the interval's lower end (or the estimate, for a term
+    the data do not support).
     """
     d = full.design
     assert d.gm_grid is not None
@@ -386,7 +389,7 @@ def _time_constant_result(
         edge = "interval"
     if edge in ("upper", "interval") and supported:
         details["time_constant_high"] = math.inf
-    bound = details["time_constant_low"] if edge == "interval" else t_rep
+    bound = min(t_rep, details["time_constant_low"]) if supported else t_rep
     return details, _edge_reasons(c, d, edge, t_rep, bound, sigma if supported else 0.0)
 
 
@@ -441,12 +444,16 @@ def _interval(
     lin_high: float,
     alpha: float,
     details: dict[str, float],
+    cut: bool = False,
 ) -> tuple[float, float, float, str]:
     """One term's estimate and interval [SI parameter] and how the interval was formed
     (package notes): from the estimate ``est`` and its ``boot`` refits (variance scale).
 
     Adds the widest values the bootstrap pivot reaches to ``details`` (``bootstrap_low``,
-    ``bootstrap_high``). Returns (estimate, low, high, method).
+    ``bootstrap_high``). ``cut``: the refits' upper tail is cut off (a Gauss-Markov σ whose
+    time constant the refits push against the end of its search, :func:`_refits_cut`); the
+    ratio pivot's lower end, which that tail sets, is then no higher than the reflection of the
+    lower tail, ĉ·q_α(r). Returns (estimate, low, high, method).
     """
     high_lin = max(lin_high, est, 0.0)
     q_lo = q_hi = 0.0
@@ -460,6 +467,8 @@ def _interval(
             details["bootstrap_high"] = math.sqrt(est / float(np.min(r)))
     if selected and q_lo > 0:
         low_v, high_v, method = est / q_hi, est / q_lo, "ratio"
+        if cut:  # the refits' upper tail is cut off (:func:`_refits_cut`): its reflection
+            low_v = min(low_v, est * q_lo)
     elif selected:  # dropped by more than a fraction α of the refits
         low_v, high_v, method = est / q_hi if q_hi > 0 else 0.0, high_lin, "ratio-linear"
     else:  # not distinguishable from zero: an upper limit
@@ -469,6 +478,16 @@ def _interval(
     low = min(math.sqrt(max(low_v, 0.0)), estimate)
     high = max(math.sqrt(max(high_v, 0.0)), estimate)
     return estimate, low, high, method
+
+
+def _refits_cut(d: _Design, boot_t: _FloatArray, alpha: float) -> bool:
+    """Whether more than a fraction α of the refits' time constants [s] lie in the last step
+    of the search (the refits cannot go beyond what the record resolves, so the upper tail of
+    their law is cut off there)."""
+    tb = boot_t[np.isfinite(boot_t)]
+    if d.gm_grid is None or tb.size == 0:
+        return False
+    return bool(np.mean(tb > d.gm_grid[-2]) > alpha)
 
 
 def _time_constant_details(
@@ -481,17 +500,28 @@ def _time_constant_details(
 ) -> dict[str, float]:
     """The Gauss-Markov time constant [s] and its ratio-pivot interval from the refits' time
     constants; the whole search range of the profile (the design's grid: from a quarter of the
-    shortest τ to what the record resolves) where the term is not supported."""
+    shortest τ to what the record resolves) where the term is not supported.
+
+    The refits cannot go beyond what the record resolves, so where more than a fraction α of
+    them lie in the last step of the search their upper tail is cut off, and the pivot's lower
+    end T/q_{1−α}(r) (which that tail sets) would come out too high: the lower end is then the
+    smaller of it and the reflection in log T of the uncut lower tail, T·q_α(r). The upper end
+    T/q_α(r) comes from the uncut tail.
+    """
+    grid = full.design.gm_grid
+    assert grid is not None
     t_gm = est.time_constant
     t_est = t_gm if (selected and t_gm is not None) else full.time_constant
     out = {"time_constant": float(t_est) if t_est is not None else math.nan}
     tb = boot_t[np.isfinite(boot_t)]
     if selected and t_gm is not None and tb.size >= 2:
         ratio_t = tb / t_gm
-        out["time_constant_low"] = float(t_gm / _quantile(ratio_t, 1.0 - alpha))
+        low = t_gm / _quantile(ratio_t, 1.0 - alpha)
+        if _refits_cut(full.design, boot_t, alpha):
+            low = min(low, t_gm * _quantile(ratio_t, alpha))
+        out["time_constant_low"] = float(low)
         out["time_constant_high"] = float(t_gm / _quantile(ratio_t, alpha))
     else:
-        assert full.design.gm_grid is not None
-        out["time_constant_low"] = float(full.design.gm_grid[0])
-        out["time_constant_high"] = float(full.design.gm_grid[-1])
+        out["time_constant_low"] = float(grid[0])
+        out["time_constant_high"] = float(grid[-1])
     return out
