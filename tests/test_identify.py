@@ -243,6 +243,26 @@ def test_gauss_markov_time_constant_too_long_for_the_record_is_not_resolved() ->
     assert meta["high"] is None
 
 
+def test_gauss_markov_standing_in_for_white_noise_is_at_the_lower_edge() -> None:
+    # white noise and a random walk (1 h at 2 Hz) fitted as Gauss-Markov + random walk: the
+    # Gauss-Markov term takes the white noise with T at the short end of its search (a quarter
+    # of the shortest τ), and says so
+    rate, n = 2.0, 7200
+    rng = np.random.default_rng(33)
+    y = white(rng, n, rate, 7e-4) + random_walk(rng, n, rate, 2e-5)
+    result = identify.fit(_curve(y, rate), terms="gauss_markov,random_walk", seed=6, n_boot=40)
+    gm = result.term("gauss_markov")
+    codes = dict(gm.reasons)
+    assert set(codes) == {"estimate_at_search_edge", "time_constant_at_lower_edge"}
+    edge = codes["estimate_at_search_edge"]
+    assert edge["edge"] == "lower" and edge["low"] == pytest.approx(0.25 / rate)
+    assert edge["value"] == gm.details["time_constant"] < edge["low"] * 1.5
+    why = codes["time_constant_at_lower_edge"]
+    # T ≤ the bound: the interval's upper end, inside the first octave of τ
+    assert gm.details["time_constant"] <= why["bound"] == gm.details["time_constant_high"]
+    assert why["bound"] < why["shortest_tau"] == 1.0 / rate
+
+
 # ---------------------------------------------------------------------------------------------
 # the coverage study
 # ---------------------------------------------------------------------------------------------

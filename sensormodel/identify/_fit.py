@@ -374,7 +374,7 @@ def _time_constant_result(
     where the interval of a supported term reaches beyond the end of the search
     (:func:`_time_constant_details`): T beyond what the record resolves is then not excluded,
     and the result is a lower bound only, the interval's lower end (or the estimate, for a term
-    the data do not support).
+    the data do not support); at the lower edge an upper bound, the interval's upper end.
     """
     d = full.design
     assert d.gm_grid is not None
@@ -389,7 +389,12 @@ def _time_constant_result(
         edge = "interval"
     if edge in ("upper", "interval") and supported:
         details["time_constant_high"] = math.inf
-    bound = min(t_rep, details["time_constant_low"]) if supported else t_rep
+    # T ≥ bound at the upper end, T ≤ bound at the lower: for a supported term the interval's
+    # lower or upper end (where further out than the estimate), else the estimate
+    bound = t_rep
+    if supported:
+        low, high = details["time_constant_low"], details["time_constant_high"]
+        bound = max(t_rep, high) if edge == "lower" else min(t_rep, low)
     return details, _edge_reasons(c, d, edge, t_rep, bound, sigma if supported else 0.0)
 
 
