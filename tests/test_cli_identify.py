@@ -234,3 +234,38 @@ def test_identify_gaps_split_fits_the_longest_segment(runner, tmp_path) -> None:
     for a, b in zip(written.terms, expected.terms, strict=True):
         for key, value in b.parameters().items():
             assert a.parameters()[key] == pytest.approx(value, rel=1e-9)
+
+
+def test_identify_prints_the_time_constant_and_says_when_it_is_not_resolved(tmp_path) -> None:
+    # a first-order Gauss-Markov bias (σ = 0.01 deg/s, T = 3000 s, exact AR(1) steps) in
+    # 20 minutes at 2 Hz, with a little white noise: far too short to resolve T
+    from click.testing import CliRunner
+    from scipy.signal import lfilter
+
+    rate, n, tc = 2.0, 2400, 3000.0
+    rng = np.random.default_rng(12)
+    phi = math.exp(-1.0 / (rate * tc))
+    drive = rng.standard_normal(n) * 0.01 * math.sqrt(1.0 - phi**2)
+    drive[0] = rng.standard_normal() * 0.01
+    y = lfilter([1.0], [1.0, -phi], drive) + rng.standard_normal(n) * 0.001 * math.sqrt(rate)
+    rec = tmp_path / "bias.csv"
+    with open(rec, "w", encoding="utf-8") as fh:
+        fh.write("time [s],rate_z [deg/s]\n")
+        fh.writelines(f"{i / rate!r},{float(v)!r}\n" for i, v in enumerate(y))
+    out = tmp_path / "bias.json"
+    result = CliRunner().invoke(
+        cli,
+        ["identify", str(rec), "-o", str(out), "--terms", "white,gauss_markov", *ARGS],
+    )
+    assert result.exit_code == 0, result.output
+    t_rows = [line for line in result.output.splitlines() if "time constant T" in line]
+    assert len(t_rows) == 1 and "not resolved" in t_rows[0] and "≥" in t_rows[0]
+    notes = [line for line in result.output.splitlines() if line.startswith("  note: ")]
+    assert any("time constant not resolved (T ≥" in line for line in notes), result.output
+    # the bound is a lower end below the true T (3000 s)
+    bound = [line for line in notes if "not resolved (T ≥" in line][0]
+    assert float(bound.split("T ≥ ")[1].split(" s")[0]) < tc
+    doc = json.loads(out.read_text(encoding="utf-8"))
+    (gm,) = [t for t in doc["channels"][0]["terms"] if t["type"] == "gauss_markov"]
+    assert gm["time_constant_uncertainty"]["high"] is None
+    assert gm["time_constant"] < 0.25 * n / rate

@@ -185,6 +185,84 @@ def test_gauss_markov_on_request() -> None:
     assert "time_constant_uncertainty" in term.meta
 
 
+def _gauss_markov_record(
+    rng: np.random.Generator, n: int, rate: float, sigma: float, tc: float
+) -> np.ndarray:
+    """A first-order Gauss-Markov record point-sampled by its exact AR(1) step (stationary
+    start): x_k = φ x_{k−1} + N(0, σ²(1 − φ²)), φ = e^(−1/(rate·T))."""
+    from scipy.signal import lfilter
+
+    phi = math.exp(-1.0 / (rate * tc))
+    drive = rng.standard_normal(n) * sigma * math.sqrt(1.0 - phi**2)
+    drive[0] = rng.standard_normal() * sigma
+    return lfilter([1.0], [1.0, -phi], drive)
+
+
+def test_gauss_markov_time_constant_resolved_by_a_long_record() -> None:
+    # T = 300 s in 3 h at 2 Hz (36 T): the Allan-deviation peak (τ ≈ 570 s) lies well inside
+    # what the record resolves; no edge reason, and T's interval is finite and covers 300 s
+    rate, n, sigma, tc = 2.0, 21_600, 2.4e-4, 300.0
+    rng = np.random.default_rng(31)
+    y = _gauss_markov_record(rng, n, rate, sigma, tc) + white(rng, n, rate, 5e-4)
+    result = identify.fit(_curve(y, rate), terms="white,gauss_markov", seed=4, n_boot=60)
+    gm = result.term("gauss_markov")
+    assert gm.supported and gm.reasons == () and result.term_reasons == ()
+    low, high = gm.details["time_constant_low"], gm.details["time_constant_high"]
+    assert math.isfinite(high) and low <= tc <= high, gm.details
+    assert gm.low <= sigma <= gm.high
+    # the search range ends where the record stops resolving T: about an eighth of its length
+    assert 0.05 * n / rate < high <= n / rate / 1.8926
+
+
+def test_gauss_markov_time_constant_too_long_for_the_record_is_not_resolved() -> None:
+    # T = 3000 s in 20 min at 2 Hz: the record sees only the rising side of the term's Allan
+    # deviation; the result says "not resolved (T ≥ …)", never a silent value at a grid end
+    rate, n, sigma, tc = 2.0, 2_400, 2.4e-4, 3000.0
+    rng = np.random.default_rng(32)
+    y = _gauss_markov_record(rng, n, rate, sigma, tc) + white(rng, n, rate, 2e-5)
+    result = identify.fit(_curve(y, rate), terms="white,gauss_markov", seed=5, n_boot=60)
+    gm = result.term("gauss_markov")
+    codes = dict(gm.reasons)
+    assert set(codes) == {"estimate_at_search_edge", "time_constant_not_resolved"}
+    assert result.term_reasons == gm.reasons
+    edge, why = codes["estimate_at_search_edge"], codes["time_constant_not_resolved"]
+    assert edge["term"] == "gauss_markov" and edge["parameter"] == "time_constant"
+    assert edge["edge"] == "upper" and edge["value"] == gm.details["time_constant"]
+    # the estimate is within the last step of the search, below what a 20-minute record
+    # resolves; the bound T ≥ … is the interval's lower end, at most the estimate
+    t_est = gm.details["time_constant"]
+    assert t_est <= why["resolvable"] == edge["high"]
+    assert why["bound"] == gm.details["time_constant_low"] <= t_est
+    assert why["resolvable"] < 0.25 * n / rate < tc
+    assert why["tau"] == pytest.approx(1.8926 * why["resolvable"])
+    # σ read as a lower bound (only σ²/T is fixed by the rising side), and it is one
+    assert gm.supported and why["sigma"] == gm.estimate < sigma
+    assert gm.details["time_constant_high"] == math.inf
+    # the model file keeps the unbounded end as null, not a number at the grid end
+    meta = result.to_channel().term("gauss_markov").meta["time_constant_uncertainty"]
+    assert meta["high"] is None
+
+
+def test_gauss_markov_standing_in_for_white_noise_is_at_the_lower_edge() -> None:
+    # white noise and a random walk (1 h at 2 Hz) fitted as Gauss-Markov + random walk: the
+    # Gauss-Markov term takes the white noise with T at the short end of its search (a quarter
+    # of the shortest τ), and says so
+    rate, n = 2.0, 7200
+    rng = np.random.default_rng(33)
+    y = white(rng, n, rate, 7e-4) + random_walk(rng, n, rate, 2e-5)
+    result = identify.fit(_curve(y, rate), terms="gauss_markov,random_walk", seed=6, n_boot=40)
+    gm = result.term("gauss_markov")
+    codes = dict(gm.reasons)
+    assert set(codes) == {"estimate_at_search_edge", "time_constant_at_lower_edge"}
+    edge = codes["estimate_at_search_edge"]
+    assert edge["edge"] == "lower" and edge["low"] == pytest.approx(0.25 / rate)
+    assert edge["value"] == gm.details["time_constant"] < edge["low"] * 1.5
+    why = codes["time_constant_at_lower_edge"]
+    # T ≤ the bound: the interval's upper end, inside the first octave of τ
+    assert gm.details["time_constant"] <= why["bound"] == gm.details["time_constant_high"]
+    assert why["bound"] < why["shortest_tau"] == 1.0 / rate
+
+
 # ---------------------------------------------------------------------------------------------
 # the coverage study
 # ---------------------------------------------------------------------------------------------

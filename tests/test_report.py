@@ -30,6 +30,10 @@ from sensormodel.report import (
     VERDICT_SCHEMA_ID,
     display_values,
     format_duration,
+    identify_notes,
+    identify_rows,
+    identify_table,
+    reason_text,
     verdict_document,
     verdict_html,
     verdict_text,
@@ -317,6 +321,18 @@ def test_reason_codes_become_the_sentences_of_the_reports():
         "segments": 3,
         "duration": 1234.5678,
         "recording_duration": 4000.0,
+        "term": "gauss_markov",
+        "parameter": "time_constant",
+        "edge": "upper",
+        "value": 300.0,
+        "low": 0.125,
+        "high": 300.0,
+        "bound": 300.0,
+        "resolvable": 300.0,
+        "tau": 567.8,
+        "sigma": 2.0e-4,
+        "unit": "m/s^2",
+        "shortest_tau": 0.5,
     }
     for code in REASONS:
         text = reason_text(code, values)
@@ -330,8 +346,7 @@ def test_reason_codes_become_the_sentences_of_the_reports():
     )
     assert reason_text("channels_missing", values).endswith("not verified: gyro.x, gyro.y")
     assert reason_text("segments_left_out", values) == (
-        "gyro.z: the recording has 3 clean segments; the longest (1234.57 s of 4000 s) was "
-        "analysed"
+        "gyro.z: the recording has 3 clean segments; the longest (1234.57 s of 4000 s) was analysed"
     )
     # the same code as a channel analysis carries it (pipeline numbers are floats)
     assert reason_text("segments_left_out", {"count": 2.0, "samples": 1500.0}) == (
@@ -365,10 +380,84 @@ def test_drift_table_first_row_under_a_second():
     from sensormodel.terms import White
 
     gyro = Channel(
-        id="gyro.x", quantity="angular_rate", unit="rad/s", sample_rate=100.0,
+        id="gyro.x",
+        quantity="angular_rate",
+        unit="rad/s",
+        sample_rate=100.0,
         terms=(White(3e-6),),
     )
     times = table_times(0.5)  # a horizon under a second: the table starts at horizon/10
     text = drift_table(channel_drift(gyro, 0.5, times=times), times, DRIFT_DISPLAY)
     rows = text.splitlines()[2:]
     assert [r.split("  ")[1].strip() for r in rows] == ["50 ms", "0.5 s"]
+
+
+def _gauss_markov_identification(high: float, reasons=()):
+    from sensormodel.identify import FittedTerm, Identification
+
+    gm = FittedTerm(
+        term="gauss_markov",
+        parameter="sigma",
+        estimate=2.0e-4,
+        low=1.5e-4,
+        high=2.6e-4,
+        confidence=0.9,
+        supported=True,
+        details={"time_constant": 300.0, "time_constant_low": 180.0, "time_constant_high": high},
+        reasons=reasons,
+    )
+    return Identification(
+        channel="accelerometer.x",
+        unit="m/s^2",
+        sample_rate=2.0,
+        n_samples=21_600,
+        confidence=0.9,
+        terms=(gm,),
+        slope_readings={},
+    )
+
+
+def test_identify_table_shows_the_time_constant_and_its_interval():
+    rows = identify_rows(_gauss_markov_identification(720.0))
+    assert [r[0] for r in rows] == ["gauss_markov", "  time constant T"]
+    t_row = rows[1]
+    assert t_row[1] == "300 s" and t_row[2] == "5 min"
+    assert t_row[3] == "[180, 720] s" and t_row[4] == "[3 min, 12 min]"
+    assert t_row[7] == ""
+    assert "time constant T" in identify_table(_gauss_markov_identification(720.0))
+
+
+def test_identify_notes_say_an_unresolved_time_constant():
+    reasons = (
+        (
+            "estimate_at_search_edge",
+            {
+                "term": "gauss_markov",
+                "parameter": "time_constant",
+                "edge": "upper",
+                "value": 300.0,
+                "low": 0.125,
+                "high": 300.0,
+            },
+        ),
+        (
+            "time_constant_not_resolved",
+            {"bound": 300.0, "resolvable": 300.0, "tau": 567.8, "sigma": 2.0e-4, "unit": "m/s^2"},
+        ),
+    )
+    ident = _gauss_markov_identification(float("inf"), reasons)
+    t_row = identify_rows(ident)[1]
+    assert t_row[3] == "≥ 180 s" and t_row[4] == "≥ 3 min" and t_row[7] == "not resolved"
+    notes = identify_notes(ident)
+    assert notes[0] == (
+        "gauss_markov: the time_constant estimate 300 is at the upper end of its search range "
+        "(0.125 to 300, SI)"
+    )
+    assert notes[1].startswith("gauss_markov: time constant not resolved (T ≥ 300 s)")
+    assert "σ ≥ 0.0002 m/s^2" in notes[1]
+    # an unsupported term's σ is no bound
+    unsupported = dict(reasons[1][1], sigma=0.0)
+    text = reason_text("time_constant_not_resolved", unsupported)
+    assert "σ ≥" not in text and text.endswith("not told from zero")
+    lower = reason_text("time_constant_at_lower_edge", {"bound": 0.2, "shortest_tau": 0.5})
+    assert lower.startswith("gauss_markov: time constant at the short end") and "T ≤ 0.2 s" in lower

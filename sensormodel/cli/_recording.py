@@ -24,6 +24,7 @@ from ..report import (
     allan_table,
     channel_display,
     identify_heading,
+    identify_notes,
     identify_table,
     reason_text,
     simulate_summary,
@@ -211,7 +212,7 @@ def identify_command(recording_file: str, output: str, terms: str, confidence: f
             click.echo("")
         click.echo(identify_heading(ident))
         click.echo(identify_table(ident))
-        for note in ident.notes:
+        for note in identify_notes(ident):
             click.echo(f"  note: {note}")
     model.save(output, force=force)
     kept = sum(len(c.terms) for c in model.channels)

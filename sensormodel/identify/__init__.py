@@ -75,6 +75,21 @@ unstated filter that rolls off within a few sample periods lowers the first poin
 and is read as less white noise and more flicker); the terms are independent; a flicker term
 has its cut-off at the Nyquist frequency.
 
+Gauss-Markov time constant
+--------------------------
+The time constant T is profiled: the fit is repeated over a grid of T (6 per decade) and refined
+in log T around the least χ² (``_design._profile_time_constant``). The grid runs from a quarter
+of the shortest τ to the longest T the record resolves, whose Allan-deviation peak (τ ≈ 1.89 T)
+lies at the longest τ with at least 4 equivalent degrees of freedom
+(``_design._resolvable_time_constant``; about an eighth of a long record). Beyond it the
+curve shows only the rising side of the term, where σ²/T alone is determined. An estimate at
+an edge of that range is never reported silently: the fitted term carries
+``estimate_at_search_edge`` and ``time_constant_not_resolved`` (T ≥ the bound, σ then a lower
+bound; the interval's upper end is ``inf``) or ``time_constant_at_lower_edge`` (T ≤ the
+bound); an estimate inside the range whose interval reaches beyond it carries
+``time_constant_not_resolved`` with the interval's lower end as the bound
+(:attr:`FittedTerm.reasons`).
+
 Classical slope readings (IEEE Std 952-1997 Annex C) are reported beside the fit: white density
 N = σ(τ)·√τ from the point nearest τ = 1 s (on the −½ line), random walk K = σ(τ)·√(3/τ) from
 the point nearest τ = 3 s (on the +½ line), flicker coefficient B = min σ / 0.6643 (the floor);

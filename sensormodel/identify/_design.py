@@ -23,6 +23,13 @@ _IRLS_MAX = 20
 _IRLS_TOL = 1e-5
 #: Gauss-Markov time-constant grid for the profile: points per decade.
 _GM_PER_DECADE = 6
+#: Where the Allan deviation of a Gauss-Markov term peaks, τ_peak/T
+#: (:func:`sensormodel.terms.gauss_markov_peak`).
+_GM_PEAK_RATIO = 1.8926
+#: The least equivalent degrees of freedom of a curve point that can show that peak.
+_GM_MIN_EDF = 4.0
+#: The shortest time constant of the profile, as a fraction of the shortest τ of the curve.
+_GM_LOWEST = 0.25
 
 
 # ---------------------------------------------------------------------------------------------
@@ -100,11 +107,86 @@ def _design(
             phi[:, j] = _basis(name, c.tau, c.rate, white_filter=white_filter)
     grid = cols = None
     if gm_index is not None:
-        lo = math.log10(c.tau[0] / 4.0)
-        hi = math.log10(c.tau[-1] * 2.0)
-        grid = 10.0 ** np.arange(lo, hi + 1e-9, 1.0 / _GM_PER_DECADE)
+        grid = _time_constant_grid(c.tau, c.edf)
         cols = np.array([_basis("gauss_markov", c.tau, c.rate, t) for t in grid])
     return _Design(names, c.tau, c.rate, c.edf, phi, gm_index, grid, cols, white_filter)
+
+
+def _resolvable_time_constant(tau: npt.ArrayLike, edf: npt.ArrayLike) -> float:
+    """The longest Gauss-Markov time constant an Allan curve can resolve [s].
+
+    A first-order Gauss-Markov term's Allan deviation rises as a random walk's (σ²τ/(3T)) for
+    τ ≪ T and peaks at τ_peak = 1.8926·T (IEEE Std 952-1997 Annex C closed form;
+    :func:`sensormodel.terms.gauss_markov_peak`). Below the peak only σ²/T is determined: a
+    longer T with a larger σ draws the same rising curve, so T and σ are told apart only by
+    the bend into the peak. The rule: T is resolvable up to the T whose peak lies at the
+    longest τ measured with at least :data:`_GM_MIN_EDF` = 4 equivalent degrees of freedom
+    (the curve's own EDF, NIST SP 1065 section 5.3; at ν = 4 the 68 % chi-square interval of
+    the deviation is already −22 %/+68 %, and beyond it a point cannot place a peak).
+    That τ is found on the log-log line between the two curve points whose EDF straddle 4,
+    so it follows the EDF rather than the spacing of the τ grid; for a long record of a
+    random-walk-like term it is about a quarter of the record length, and the bound about an
+    eighth of it.
+
+    Parameters
+    ----------
+    tau : array_like
+        Averaging times of the curve [s], increasing.
+    edf : array_like
+        Their equivalent degrees of freedom.
+
+    Returns
+    -------
+    float
+        τ_res / 1.8926 [s], τ_res the longest τ with EDF ≥ 4 (the shortest τ of the curve
+        when no point has that many, the longest when every point has).
+    """
+    tau = np.asarray(tau, dtype=np.float64)
+    edf = np.asarray(edf, dtype=np.float64)
+    ok = np.flatnonzero(edf >= _GM_MIN_EDF)
+    if ok.size == 0:
+        tau_res = float(tau[0])
+    elif ok[-1] == tau.size - 1:
+        tau_res = float(tau[-1])
+    else:
+        j = int(ok[-1])
+        # log-log interpolation to where the EDF falls to the threshold
+        frac = math.log(edf[j] / _GM_MIN_EDF) / math.log(edf[j] / edf[j + 1])
+        tau_res = float(tau[j] * (tau[j + 1] / tau[j]) ** min(max(frac, 0.0), 1.0))
+    return tau_res / _GM_PEAK_RATIO
+
+
+def _time_constant_grid(tau: _FloatArray, edf: _FloatArray) -> _FloatArray:
+    """The time constants [s] of the profile: :data:`_GM_PER_DECADE` per decade from a quarter
+    of the shortest τ (a term that fast is white noise to the curve) to
+    :func:`_resolvable_time_constant`, both ends included."""
+    lo = _GM_LOWEST * float(tau[0])
+    hi = _resolvable_time_constant(tau, edf)
+    count = max(3, int(math.ceil(math.log10(hi / lo) * _GM_PER_DECADE)) + 1)
+    return np.geomspace(lo, hi, count)
+
+
+def _time_constant_edge(
+    avar: _FloatArray, d: _Design, mask: npt.NDArray[np.bool_], time_constant: float
+) -> str | None:
+    """Whether a profiled time constant [s] (of the fit with the terms where ``mask`` is True)
+    sits at an edge of its search range: ``"upper"`` where it lies within the last step of the
+    grid and the profile is lower at the last grid point than at the one before (its least χ²
+    is at the end of what the record resolves, :func:`_resolvable_time_constant`), ``"lower"``
+    likewise at the first step, else None."""
+    grid = d.gm_grid
+    if grid is None or d.gm_index is None or not mask[d.gm_index]:
+        return None
+    idx = np.flatnonzero(mask)
+
+    def misfit(t: float) -> float:
+        return _irls(avar, d.with_gm(t)[:, idx], d.edf)[1]
+
+    if time_constant > grid[-2] and misfit(grid[-1]) <= misfit(grid[-2]):
+        return "upper"
+    if time_constant < grid[1] and misfit(grid[0]) <= misfit(grid[1]):
+        return "lower"
+    return None
 
 
 def _irls(
@@ -192,7 +274,9 @@ def _profile_time_constant(
     """The Gauss-Markov time constant of least χ²: the best point of ``grid`` [s], refined in
     log T between its neighbours (bounded golden-section search on a unimodal bracket) and kept
     only if no worse. ``fit_grid(k)`` and ``fit_at(T)`` return (coefficients, χ²) at grid
-    point k and at any T. Returns (T, coefficients, χ²)."""
+    point k and at any T. Returns (T, coefficients, χ²). The grid ends at what the record
+    resolves (:func:`_time_constant_grid`), so T never leaves that range; whether it sits at an
+    end is :func:`_time_constant_edge`'s question."""
     from scipy.optimize import minimize_scalar
 
     results = [fit_grid(k) for k in range(grid.size)]

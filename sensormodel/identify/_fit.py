@@ -23,6 +23,7 @@ from ..errors import AnalysisError
 from ._bootstrap import ProgressCallback, _bootstrap, _Progress
 from ._checks import _check_curve, _check_n_boot, _check_terms, _check_white_filter, _Curve
 from ._design import (
+    _GM_PEAK_RATIO,
     _chi2,
     _Design,
     _design,
@@ -31,6 +32,7 @@ from ._design import (
     _params,
     _phi,
     _RefitState,
+    _time_constant_edge,
     _wls_matrix,
 )
 from ._names import DEFAULT_CONFIDENCE, DEFAULT_TERMS, PARAMETERS
@@ -311,6 +313,7 @@ def _fitted_terms(
             lin_high=float(sel.lin_high[j]),
             alpha=alpha,
             details=details,
+            cut=nm == "gauss_markov" and _refits_cut(full.design, boot_t, alpha),
         )
         disagrees = False
         if nm in points:
@@ -326,9 +329,12 @@ def _fitted_terms(
         pct = np.sqrt(np.maximum(boot[:, j], 0.0))
         details["percentile_low"] = _quantile(pct, alpha)
         details["percentile_high"] = _quantile(pct, 1.0 - alpha)
+        reasons: tuple[tuple[str, dict[str, Any]], ...] = ()
         if nm == "gauss_markov":
-            supported = bool(est.supported[j])
-            details.update(_time_constant_details(c, full, est, supported, boot_t, alpha))
+            tc_details, reasons = _time_constant_result(
+                c, full, sel, est, bool(est.supported[j]), boot_t, alpha, estimate
+            )
+            details.update(tc_details)
         fitted.append(
             FittedTerm(
                 term=nm,
@@ -343,9 +349,95 @@ def _fitted_terms(
                 tau_range=tau_range,
                 method=method,
                 details=details,
+                reasons=reasons,
             )
         )
     return tuple(fitted)
+
+
+def _time_constant_result(
+    c: _Curve,
+    full: _FullFit,
+    sel: _Selection,
+    est: _Estimate,
+    supported: bool,
+    boot_t: _FloatArray,
+    alpha: float,
+    sigma: float,
+) -> tuple[dict[str, float], tuple[tuple[str, dict[str, Any]], ...]]:
+    """The Gauss-Markov time constant's details (:func:`_time_constant_details`) and the
+    reason codes of a time constant the record does not resolve, σ [u] the term's estimate.
+
+    The time constant reported is the estimate's, or the full fit's (every requested term in
+    the fit) for a term the data do not support. Its upper end is unbounded (``inf``) where
+    the estimate sits at the upper edge of its search (:func:`._design._time_constant_edge`) or
+    where the interval of a supported term reaches beyond the end of the search
+    (:func:`_time_constant_details`): T beyond what the record resolves is then not excluded,
+    and the result is a lower bound only, the interval's lower end (or the estimate, for a term
+    the data do not support); at the lower edge an upper bound, the interval's upper end.
+    """
+    d = full.design
+    assert d.gm_grid is not None
+    details = _time_constant_details(c, full, est, supported, boot_t, alpha)
+    t_rep, mask = (est.time_constant, sel.in_fit) if supported else (full.time_constant, None)
+    if t_rep is None:
+        return details, ()
+    if mask is None:
+        mask = np.ones(len(d.names), dtype=bool)
+    edge = _time_constant_edge(c.avar, d, mask, t_rep)
+    if edge is None and supported and details["time_constant_high"] > d.gm_grid[-1]:
+        edge = "interval"
+    if edge in ("upper", "interval") and supported:
+        details["time_constant_high"] = math.inf
+    # T ≥ bound at the upper end, T ≤ bound at the lower: for a supported term the interval's
+    # lower or upper end (where further out than the estimate), else the estimate
+    bound = t_rep
+    if supported:
+        low, high = details["time_constant_low"], details["time_constant_high"]
+        bound = max(t_rep, high) if edge == "lower" else min(t_rep, low)
+    return details, _edge_reasons(c, d, edge, t_rep, bound, sigma if supported else 0.0)
+
+
+def _edge_reasons(
+    c: _Curve, d: _Design, edge: str | None, time_constant: float, bound: float, sigma: float
+) -> tuple[tuple[str, dict[str, Any]], ...]:
+    """The reason codes of a Gauss-Markov time constant [s] at an ``edge`` of its search range
+    with their numbers, σ [u] the term's estimate.
+
+    ``edge`` ``"upper"`` or ``"lower"``: the estimate at that end
+    (:func:`._design._time_constant_edge`): ``estimate_at_search_edge`` (term, parameter, edge,
+    value, the range) and what it means: ``time_constant_not_resolved`` at the upper end
+    (T ≥ ``bound``; the record shows only the rising side of the term's Allan deviation, so σ
+    is a lower bound: σ²/T is what the curve fixes; ``sigma`` 0 for a term the data do not
+    support) or ``time_constant_at_lower_edge`` (T ≤ ``bound``; the term is white noise to the
+    curve). ``"interval"``: only the interval reaches the upper end;
+    ``time_constant_not_resolved`` alone, ``bound`` the interval's lower end.
+    """
+    if edge is None:
+        return ()
+    assert d.gm_grid is not None
+    low, high = float(d.gm_grid[0]), float(d.gm_grid[-1])
+    at_edge = {
+        "term": "gauss_markov",
+        "parameter": "time_constant",
+        "edge": edge,
+        "value": time_constant,
+        "low": low,
+        "high": high,
+    }
+    if edge == "lower":
+        meaning = {"bound": bound, "shortest_tau": float(c.tau[0])}
+        return (("estimate_at_search_edge", at_edge), ("time_constant_at_lower_edge", meaning))
+    why = {
+        "bound": bound,
+        "resolvable": high,
+        "tau": high * _GM_PEAK_RATIO,
+        "sigma": sigma,
+        "unit": c.unit,
+    }
+    if edge == "interval":
+        return (("time_constant_not_resolved", why),)
+    return (("estimate_at_search_edge", at_edge), ("time_constant_not_resolved", why))
 
 
 def _interval(
@@ -357,12 +449,16 @@ def _interval(
     lin_high: float,
     alpha: float,
     details: dict[str, float],
+    cut: bool = False,
 ) -> tuple[float, float, float, str]:
     """One term's estimate and interval [SI parameter] and how the interval was formed
     (package notes): from the estimate ``est`` and its ``boot`` refits (variance scale).
 
     Adds the widest values the bootstrap pivot reaches to ``details`` (``bootstrap_low``,
-    ``bootstrap_high``). Returns (estimate, low, high, method).
+    ``bootstrap_high``). ``cut``: the refits' upper tail is cut off (a Gauss-Markov σ whose
+    time constant the refits push against the end of its search, :func:`_refits_cut`); the
+    ratio pivot's lower end, which that tail sets, is then no higher than the reflection of the
+    lower tail, ĉ·q_α(r). Returns (estimate, low, high, method).
     """
     high_lin = max(lin_high, est, 0.0)
     q_lo = q_hi = 0.0
@@ -376,6 +472,8 @@ def _interval(
             details["bootstrap_high"] = math.sqrt(est / float(np.min(r)))
     if selected and q_lo > 0:
         low_v, high_v, method = est / q_hi, est / q_lo, "ratio"
+        if cut:  # the refits' upper tail is cut off (:func:`_refits_cut`): its reflection
+            low_v = min(low_v, est * q_lo)
     elif selected:  # dropped by more than a fraction α of the refits
         low_v, high_v, method = est / q_hi if q_hi > 0 else 0.0, high_lin, "ratio-linear"
     else:  # not distinguishable from zero: an upper limit
@@ -387,6 +485,16 @@ def _interval(
     return estimate, low, high, method
 
 
+def _refits_cut(d: _Design, boot_t: _FloatArray, alpha: float) -> bool:
+    """Whether more than a fraction α of the refits' time constants [s] lie in the last step
+    of the search (the refits cannot go beyond what the record resolves, so the upper tail of
+    their law is cut off there)."""
+    tb = boot_t[np.isfinite(boot_t)]
+    if d.gm_grid is None or tb.size == 0:
+        return False
+    return bool(np.mean(tb > d.gm_grid[-2]) > alpha)
+
+
 def _time_constant_details(
     c: _Curve,
     full: _FullFit,
@@ -396,16 +504,29 @@ def _time_constant_details(
     alpha: float,
 ) -> dict[str, float]:
     """The Gauss-Markov time constant [s] and its ratio-pivot interval from the refits' time
-    constants; the whole search range of the profile where the term is not supported."""
+    constants; the whole search range of the profile (the design's grid: from a quarter of the
+    shortest τ to what the record resolves) where the term is not supported.
+
+    The refits cannot go beyond what the record resolves, so where more than a fraction α of
+    them lie in the last step of the search their upper tail is cut off, and the pivot's lower
+    end T/q_{1−α}(r) (which that tail sets) would come out too high: the lower end is then the
+    smaller of it and the reflection in log T of the uncut lower tail, T·q_α(r). The upper end
+    T/q_α(r) comes from the uncut tail.
+    """
+    grid = full.design.gm_grid
+    assert grid is not None
     t_gm = est.time_constant
     t_est = t_gm if (selected and t_gm is not None) else full.time_constant
     out = {"time_constant": float(t_est) if t_est is not None else math.nan}
     tb = boot_t[np.isfinite(boot_t)]
     if selected and t_gm is not None and tb.size >= 2:
         ratio_t = tb / t_gm
-        out["time_constant_low"] = float(t_gm / _quantile(ratio_t, 1.0 - alpha))
+        low = t_gm / _quantile(ratio_t, 1.0 - alpha)
+        if _refits_cut(full.design, boot_t, alpha):
+            low = min(low, t_gm * _quantile(ratio_t, alpha))
+        out["time_constant_low"] = float(low)
         out["time_constant_high"] = float(t_gm / _quantile(ratio_t, alpha))
     else:
-        out["time_constant_low"] = float(c.tau[0] / 4.0)
-        out["time_constant_high"] = float(c.tau[-1] * 2.0)
+        out["time_constant_low"] = float(grid[0])
+        out["time_constant_high"] = float(grid[-1])
     return out

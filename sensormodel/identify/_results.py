@@ -6,6 +6,7 @@ Results carry numbers and reason codes; :mod:`sensormodel.report` turns them int
 
 from __future__ import annotations
 
+import math
 from collections.abc import Mapping, Sequence
 from dataclasses import dataclass, field
 from typing import Any
@@ -64,7 +65,17 @@ class FittedTerm:
     details : dict
         More results: for ``gauss_markov`` the ``time_constant`` [s] and its interval
         (``time_constant_low``, ``time_constant_high``); ``kept_fraction``, the fraction of
-        bootstrap refits that kept the term.
+        bootstrap refits that kept the term. ``time_constant_high`` is ``inf`` where the time
+        constant is not resolved (reason ``time_constant_not_resolved``).
+    reasons : tuple of (str, dict)
+        Reason codes with their numbers (sentences in :data:`sensormodel.report.REASONS`):
+        ``estimate_at_search_edge`` (``term``, ``parameter``, ``edge`` ``"upper"`` or
+        ``"lower"``, ``value`` and the searched range ``low``, ``high``, SI) for an estimate at
+        an edge of its search range, with what it means for a Gauss-Markov time constant:
+        ``time_constant_not_resolved`` (``bound`` [s]: T ≥ bound; ``resolvable`` [s], the
+        longest T the record resolves, whose Allan-deviation peak is at ``tau`` [s];
+        ``sigma`` [u], then a lower bound of σ; ``unit``) or ``time_constant_at_lower_edge``
+        (``bound`` [s]: T ≤ bound; ``shortest_tau`` [s] of the curve).
     """
 
     term: str
@@ -79,6 +90,7 @@ class FittedTerm:
     tau_range: tuple[float, float] | None = None
     method: str = "ratio"
     details: Mapping[str, float] = field(default_factory=dict, compare=False)
+    reasons: tuple[tuple[str, Mapping[str, Any]], ...] = field(default=(), compare=False)
 
 
 @dataclass(frozen=True)
@@ -142,6 +154,11 @@ class Identification:
     white_filter: tuple[float, int] | None = None
     refit_state: Any = field(default=None, repr=False, compare=False)
 
+    @property
+    def term_reasons(self) -> tuple[tuple[str, Mapping[str, Any]], ...]:
+        """The reason codes of every fitted term (:attr:`FittedTerm.reasons`), in order."""
+        return tuple(r for t in self.terms for r in t.reasons)
+
     def term(self, name: str) -> FittedTerm | None:
         """The fitted term of this type, or None.
 
@@ -182,9 +199,10 @@ class Identification:
                 out.append(Ramp(slope=ft.estimate, meta=meta))
             elif ft.term == "gauss_markov":
                 tc = float(ft.details["time_constant"])
+                high = float(ft.details["time_constant_high"])
                 meta["time_constant_uncertainty"] = {
                     "low": float(ft.details["time_constant_low"]),
-                    "high": float(ft.details["time_constant_high"]),
+                    "high": high if math.isfinite(high) else None,  # None: not resolved
                     "confidence": ft.confidence,
                 }
                 out.append(GaussMarkov(sigma=ft.estimate, time_constant=tc, meta=meta))

@@ -27,6 +27,22 @@ def _segments_left_out(values: Mapping[str, Any]) -> str:
     )
 
 
+def _time_constant_not_resolved(values: Mapping[str, Any]) -> str:
+    """A Gauss-Markov time constant at the longest the record resolves; σ a lower bound where
+    the term is supported (``sigma`` > 0)."""
+    head = (
+        "gauss_markov: time constant not resolved (T ≥ {bound:.4g} s): this record resolves T "
+        "up to {resolvable:.4g} s (Allan-deviation peak at τ = {tau:.4g} s, the longest τ with "
+        "4 degrees of freedom)"
+    ).format(**values)
+    if float(values.get("sigma", 0.0)) > 0.0:
+        return head + (
+            "; a longer T is not excluded, and with it a larger σ: σ ≥ {sigma:.4g} {unit} "
+            "(the rising side of the curve fixes σ²/T)"
+        ).format(**values)
+    return head + "; the term is not told from zero"
+
+
 #: The sentence of each reason code: a ``str.format`` template over the reason's values (a
 #: tuple of names is written as a comma-separated list) or a function of the values.
 REASONS: dict[str, str | Callable[[Mapping[str, Any]], str]] = {
@@ -55,6 +71,16 @@ REASONS: dict[str, str | Callable[[Mapping[str, Any]], str]] = {
     # the report (VerdictReport.notes)
     "channels_missing": "not in the recording, not verified: {channels}",
     "channels_extra": "in the recording but not on the datasheet, ignored: {channels}",
+    # a fitted term (identify.FittedTerm.reasons; printed as notes by the identify command)
+    "estimate_at_search_edge": (
+        "{term}: the {parameter} estimate {value:.4g} is at the {edge} end of its search range "
+        "({low:.4g} to {high:.4g}, SI)"
+    ),
+    "time_constant_not_resolved": _time_constant_not_resolved,
+    "time_constant_at_lower_edge": (
+        "gauss_markov: time constant at the short end of its search range (T ≤ {bound:.4g} s, "
+        "shortest τ {shortest_tau:.4g} s): the term is white noise to this curve"
+    ),
     # a channel's analysis (pipeline.ChannelAnalysis.reasons; a verdict report's notes)
     "segments_left_out": _segments_left_out,
     "note": "{text}",

@@ -6,6 +6,7 @@ Plain functions from results to strings (no click, no I/O); units are chosen wit
 
 from __future__ import annotations
 
+import math
 from dataclasses import dataclass
 from typing import Any
 
@@ -19,6 +20,7 @@ from ..quantities import (
     split_value,
 )
 from ..terms import FLICKER_FLOOR_FACTOR, TERM_TYPES
+from ._reasons import reason_text
 from ._units import format_duration, parameter_kind, sample_std_display, si_label
 
 __all__ = [
@@ -28,6 +30,7 @@ __all__ = [
     "drift_table",
     "export_summary",
     "identify_heading",
+    "identify_notes",
     "identify_rows",
     "identify_table",
     "inspect_text",
@@ -240,7 +243,8 @@ def allan_table(curve: Any, heading: str, display: tuple[str, float]) -> str:
 
 
 def identify_rows(ident: Any) -> list[list[str]]:
-    """Table rows of one identified channel: SI value, readable value, interval, reading."""
+    """Table rows of one identified channel: SI value, readable value, interval, reading; a
+    Gauss-Markov term is followed by a row of its time constant (s, and min/h readable)."""
     rows = []
     for ft in ident.terms:
         rel = TERM_TYPES[ft.term].units[ft.parameter]
@@ -269,7 +273,41 @@ def identify_rows(ident: Any) -> list[list[str]]:
                 "disagrees" if ft.disagrees else "",
             ]
         )
+        if "time_constant" in ft.details:
+            rows.append(_time_constant_row(ft))
     return rows
+
+
+def _time_constant_row(ft: Any) -> list[str]:
+    """The row of a Gauss-Markov time constant T: value and interval in s and readable; an
+    unresolved T (an infinite upper end) is shown as a lower bound."""
+    t = float(ft.details["time_constant"])
+    lo = float(ft.details.get("time_constant_low", math.nan))
+    hi = float(ft.details.get("time_constant_high", math.nan))
+    resolved = math.isfinite(hi)
+    si = f"[{format_value(lo)}, {format_value(hi)}] s" if resolved else f"≥ {format_value(lo)} s"
+    shown = (
+        f"[{format_duration(lo)}, {format_duration(hi)}]"
+        if resolved
+        else f"≥ {format_duration(lo)}"
+    )
+    flag = "" if resolved else "not resolved"
+    return [
+        "  time constant T",
+        f"{format_value(t)} s",
+        format_duration(t),
+        si,
+        shown,
+        "",
+        "",
+        flag,
+    ]
+
+
+def identify_notes(ident: Any) -> list[str]:
+    """The notes of one identified channel: how the slope readings were taken, then the
+    sentences of its fitted terms' reason codes (:data:`REASONS`)."""
+    return [*ident.notes, *(reason_text(code, values) for code, values in ident.term_reasons)]
 
 
 def _columns(head: list[str], rows: list[list[str]], indent: str = "  ") -> list[str]:
