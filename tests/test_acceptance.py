@@ -666,3 +666,41 @@ def test_verify_recording_notes_as_reason_codes(write_datasheet, tmp_path) -> No
     assert "note: not in the recording, not verified: gyro.y" in text
     assert "note: in the recording but not on the datasheet, ignored: gyro.x" in text
     assert "gyro.z: the recording has 2 clean segments; the longest (600 s of" in text
+
+
+_GM_LONG_SHEET = """
+[sensor]
+name = "slow-bias unit"
+sample_rate = "2 Hz"
+axes = ["z"]
+[accelerometer]
+velocity_random_walk = { typ = "0.02 m/s/rt-h" }
+bias_instability = { typ = "10 ug", max = "20 ug" }
+correlation_time = "3000 s"
+"""
+
+
+def test_unresolved_time_constant_is_never_a_pass(write_datasheet) -> None:
+    # A Gauss-Markov bias with T = 3000 s recorded for 20 min (T is 2.5 × the record): the
+    # curve shows only the rising side of the bias, which fixes σ²/T, not σ; σ's upper end is
+    # then no bound, so a pass cannot be called whatever the interval says (a verdict is never
+    # better than what was checked; common practice). The unit is at its typical values
+    # (floor 10 µg against a max of 20 µg).
+    from sensormodel.allan import overlapping
+    from sensormodel.convert import build_model
+    from sensormodel.simulate import simulate
+
+    sheet = load_datasheet(write_datasheet(_GM_LONG_SHEET))
+    ax = sheet.channels()[0]
+    y = simulate(build_model(sheet), 2400, 2.0, seed=5)[:, 0]
+    curve = overlapping(y, 2.0, confidence=0.9, unit="m/s^2", channel=ax.channel_id)
+    cv = acc.verify_curve(curve, ax, duration=1200.0, n_boot=_N_BOOT, seed=3)
+    bias = next(t for t in cv.terms if t.spec.key == "bias_instability")
+    ft = next(t for t in cv.identification.terms if t.term == "gauss_markov")
+    assert "time_constant_not_resolved" in dict(ft.reasons)
+    assert bias.verdict == "inconclusive", (bias.verdict, bias.low, bias.high)
+    codes = dict(bias.reasons)
+    assert "time_constant_not_resolved" in codes
+    assert bias.low <= bias.spec.limit <= bias.high
+    assert bias.required_duration is None and "length_unknown" in codes
+    assert "time constant not resolved" in report.term_note(bias)

@@ -139,6 +139,14 @@ def verify_curve(
     )
 
 
+def _unresolved(ft: Any) -> dict[str, Any] | None:
+    """The numbers of a fitted term's ``time_constant_not_resolved`` reason, or None."""
+    for code, values in getattr(ft, "reasons", ()):
+        if code == "time_constant_not_resolved":
+            return dict(values)
+    return None
+
+
 def _fitted(identification: Any, term: str, parameter: str) -> Any | None:
     for ft in identification.terms:
         if ft.term == term and ft.parameter == parameter:
@@ -172,6 +180,12 @@ def _term_verdict(
     req: float | None = None
     reasons: Reasons = []
     test: dict[str, Any] | None = None
+    unresolved = _unresolved(ft)
+    if verdict == "pass" and unresolved is not None:
+        # the rising side of the curve fixes σ²/T only: σ's upper end is no bound, so a pass
+        # was not checked (a fail stands: σ's lower end is one)
+        verdict, high = "inconclusive", max(high, math.nextafter(spec.limit, math.inf))
+        reasons.append(("time_constant_not_resolved", unresolved))
     if verdict != "inconclusive":
         verdict, low, high, test, reasons = _confirm_at_limit(
             identification, ft, name, spec.limit, factor, verdict, low, high, seed=seed
@@ -187,7 +201,7 @@ def _term_verdict(
             confidence=confidence,
             power=power,
         )
-        if (
+        if unresolved is not None or (
             test is not None
             and test.get("confirmed") is False
             and (req is None or req <= duration * (1.0 + 1e-9))

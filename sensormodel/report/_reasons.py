@@ -38,7 +38,7 @@ def _time_constant_not_resolved(values: Mapping[str, Any]) -> str:
     if float(values.get("sigma", 0.0)) > 0.0:
         return head + (
             "; a longer T is not excluded, and with it a larger σ: σ ≥ {sigma:.4g} {unit} "
-            "(the rising side of the curve fixes σ²/T)"
+            "(the rising side of the curve fixes σ²/T), so σ has no upper bound from this record"
         ).format(**values)
     return head + "; the term is not told from zero"
 

@@ -211,7 +211,7 @@ def _verdict_row_note(t) -> str:
     if t.required_duration is None and why:
         return f"{why}a longer record is needed"
     if t.required_duration is None:
-        return f"{why}no record length decides it: {term_note(t)}"
+        return f"{why}{term_note(t)}"  # its reasons say why no length is given
     return f"{why}needs a record of ≈ {format_duration(t.required_duration)}{where}"
 
 
