@@ -153,13 +153,11 @@ def reading_tau(
     dominant = np.argmax(parts, axis=0)
     own = usable & (dominant == index)
     if own.any():
-        best: Reading | None = None
-        for i in np.flatnonzero(own):
-            r = _reading_at(float(tau[i]), float(share[i]), float(slope[i]), rate, dof)
-            if best is None or r.duration < best.duration:
-                best = r
-        assert best is not None
-        return best
+        found = [
+            _reading_at(float(tau[i]), float(share[i]), float(slope[i]), rate, dof)
+            for i in np.flatnonzero(own)
+        ]
+        return min(found, key=lambda r: r.duration)
     # masked: no τ where the term is the largest; read where its share is largest
     i = int(np.flatnonzero(usable)[np.argmax(share[usable])])
     r = _reading_at(float(tau[i]), float(share[i]), float(slope[i]), rate, dof)
