@@ -333,6 +333,9 @@ def test_reason_codes_become_the_sentences_of_the_reports():
         "sigma": 2.0e-4,
         "unit": "m/s^2",
         "shortest_tau": 0.5,
+        "masked_by": "white",
+        "share": 0.24,
+        "min_share": 0.1,
     }
     for code in REASONS:
         text = reason_text(code, values)

@@ -5,7 +5,7 @@ from __future__ import annotations
 
 import math
 from collections.abc import Sequence
-from dataclasses import dataclass, field
+from dataclasses import dataclass, field, replace
 from typing import Any
 
 import numpy as np
@@ -26,6 +26,12 @@ _MIN_RECORD_OVER_TAU = 8.0
 #: A plan reads no term below this many sample periods (common practice: the first points of
 #: an Allan curve carry the output filter and aliasing, not the noise terms alone).
 _MIN_TAU_SAMPLES = 10.0
+#: τ grid points per decade (:func:`_term_curves`).
+_PER_DECADE = 12
+#: Below this share of the Allan variance at its best τ, a masked term has no planned length:
+#: its variance would be the difference of numbers at least ten times its own, so the model of
+#: the other terms would have to be exact to better than a tenth of the term.
+MIN_MASKED_SHARE = 0.1
 
 
 def _alpha_at(slope: float) -> int:
@@ -39,15 +45,38 @@ def _alpha_at(slope: float) -> int:
 def _term_curves(
     terms: Sequence[Any], *, rate: float, tau_min: float, tau_max: float
 ) -> tuple[npt.NDArray[np.float64], npt.NDArray[np.float64]]:
-    """A log τ grid (12 points per decade) and each term's Allan variance on it [u²]."""
-    n = max(12, int(math.ceil(12 * math.log10(tau_max / tau_min))) + 1)
-    tau = np.geomspace(tau_min, tau_max, n)
+    """A log τ grid and each term's Allan variance on it [u²].
+
+    The grid is the points 10^(k/12) (12 per decade, k whole) from ``tau_min`` to ``tau_max``,
+    whatever the sample rate, so a term read on it is read at the same τ at every rate."""
+    k0 = math.ceil(_PER_DECADE * math.log10(tau_min) - 1e-9)
+    k1 = math.floor(_PER_DECADE * math.log10(tau_max) + 1e-9)
+    tau = 10.0 ** (np.arange(k0, max(k1, k0 + 11) + 1) / _PER_DECADE)
     return tau, np.array([t.allan_variance(tau, sample_rate=rate) for t in terms])
 
 
 @dataclass(frozen=True)
 class Reading:
-    """Where a term is read on the Allan curve and what that takes (see :func:`reading_tau`)."""
+    """Where a term is read on the Allan curve and what that takes (see :func:`reading_tau`).
+
+    Attributes
+    ----------
+    tau : float
+        τ [s] the term is read at.
+    share : float
+        Its share of the Allan variance there.
+    alpha : int
+        Power-law noise type α at ``tau`` (for the EDF).
+    dof : float
+        Effective degrees of freedom wanted for the term.
+    edf : float
+        Allan-variance EDF needed at ``tau`` (dof/share²).
+    duration : float
+        Record length needed [s]; infinite when no length suffices (a masked term).
+    masked_by : str or None
+        The type of the term that dominates where a masked term is read; None where the term
+        dominates somewhere.
+    """
 
     tau: float
     share: float
@@ -55,6 +84,7 @@ class Reading:
     dof: float
     edf: float
     duration: float
+    masked_by: str | None = None
 
 
 def reading_tau(
@@ -73,7 +103,18 @@ def reading_tau(
     estimate σ̂² − Σ_others has the relative scatter of σ̂², so its effective degrees of freedom
     are edf(τ)·s(τ)². For each τ the record length T(τ) with edf(τ, T)·s² = ``dof`` follows
     from :func:`sensormodel.confidence.allan_edf` (noise type from the local slope), at least
-    8 τ; the reading τ is the one with the shortest T.
+    8 τ; the reading τ is the one with the shortest T among the τ where the term dominates
+    the curve (its share is the largest of all terms'). Elsewhere the term's variance is the
+    difference of larger numbers: its estimate then rests on the model of the other terms
+    being exact to a fraction of the term, which neither a datasheet nor a fit warrants, and
+    the short τ of huge EDF would otherwise win with a share near zero. A Gauss-Markov term is
+    read at or past its Allan-deviation peak (τ ≥ 1.89 T, IEEE Std 952-1997 Annex C): below
+    it the curve rises as a random walk's and fixes only σ²/T, not the floor. The grid is
+    rate-independent (:func:`_term_curves`), so the reading τ does not move with the rate.
+
+    Where no τ has the term dominate, it is *masked*: it is read where its share is largest,
+    :attr:`Reading.masked_by` names the term that dominates there, and when that share is
+    below :data:`MIN_MASKED_SHARE` no length suffices (``duration`` is infinite).
 
     Parameters
     ----------
@@ -97,23 +138,42 @@ def reading_tau(
     total = parts.sum(axis=0)
     share = np.divide(parts[index], total, out=np.zeros_like(total), where=total > 0)
     slope = np.gradient(np.log(np.maximum(total, 1e-300)), np.log(tau))
-    best: Reading | None = None
-    for i, t in enumerate(tau):
-        s = float(share[i])
-        if s < 1e-6:
-            continue
-        alpha = _alpha_at(float(slope[i]))
-        edf = dof / s**2
-        dur = max(duration_for_edf(alpha, float(t), edf, rate), _MIN_RECORD_OVER_TAU * t)
-        if best is None or dur < best.duration:
-            best = Reading(float(t), s, alpha, dof, edf, dur)
-    if best is None:
+    usable = share >= 1e-6
+    if not usable.any():
         raise AnalysisError(
             f"the {terms[index].type} term contributes nothing to the Allan variance",
             "a term with a non-zero value",
             field=terms[index].type,
         )
-    return best
+    term = terms[index]
+    if term.type == "gauss_markov":
+        # below its peak a Gauss-Markov curve fixes only σ²/T; its floor needs the peak
+        past_peak = usable & (tau >= term.peak()[0] * (1.0 - 1e-9))
+        usable = past_peak if past_peak.any() else usable
+    dominant = np.argmax(parts, axis=0)
+    own = usable & (dominant == index)
+    if own.any():
+        found = [
+            _reading_at(float(tau[i]), float(share[i]), float(slope[i]), rate, dof)
+            for i in np.flatnonzero(own)
+        ]
+        return min(found, key=lambda r: r.duration)
+    # masked: no τ where the term is the largest; read where its share is largest
+    i = int(np.flatnonzero(usable)[np.argmax(share[usable])])
+    r = _reading_at(float(tau[i]), float(share[i]), float(slope[i]), rate, dof)
+    return replace(
+        r,
+        masked_by=str(terms[int(dominant[i])].type),
+        duration=r.duration if r.share >= MIN_MASKED_SHARE else math.inf,
+    )
+
+
+def _reading_at(tau: float, share: float, slope: float, rate: float, dof: float) -> Reading:
+    """The reading of a term of this ``share`` at ``tau`` (noise type from the ``slope``)."""
+    alpha = _alpha_at(slope)
+    edf = dof / share**2
+    dur = max(duration_for_edf(alpha, tau, edf, rate), _MIN_RECORD_OVER_TAU * tau)
+    return Reading(tau, share, alpha, dof, edf, dur)
 
 
 @dataclass(frozen=True)
@@ -139,6 +199,11 @@ class PlanRow:
     verified : bool
         False for a term printed without the verified column (shown for information, at the
         value printed).
+    reasons : tuple of (str, dict)
+        Reason codes and their numbers (:mod:`sensormodel.report` writes them):
+        ``term_masked`` where no τ has the term dominate the curve (``masked_by``, ``share``,
+        ``tau``, ``min_share``; ``duration`` is then infinite when ``share`` is below
+        :data:`MIN_MASKED_SHARE`).
     """
 
     spec: SpecLimit
@@ -149,6 +214,7 @@ class PlanRow:
     edf: float
     duration: float
     verified: bool = True
+    reasons: tuple[tuple[str, dict[str, Any]], ...] = ()
 
 
 @dataclass(frozen=True)
@@ -165,13 +231,21 @@ class Plan:
     @property
     def duration(self) -> float:
         """The longest length needed by a verified term: a record this long verifies every
-        term that has a limit [s]."""
-        return max((r.duration for r in self.rows if r.verified), default=0.0)
+        term that has a limit and a finite length [s] (see :attr:`PlanRow.reasons` for a term
+        that no length verifies)."""
+        return max(
+            (r.duration for r in self.rows if r.verified and math.isfinite(r.duration)),
+            default=0.0,
+        )
 
     @property
     def driver(self) -> PlanRow | None:
-        """The verified row that needs the longest record."""
-        return max((r for r in self.rows if r.verified), key=lambda r: r.duration, default=None)
+        """The verified row that needs the longest finite record."""
+        return max(
+            (r for r in self.rows if r.verified and math.isfinite(r.duration)),
+            key=lambda r: r.duration,
+            default=None,
+        )
 
 
 def plan(
@@ -248,6 +322,16 @@ def _plan_channel(
             if t.type == spec.type and t.meta.get("datasheet", {}).get("field") == spec.field
         )
         r = reading_tau(terms, idx, rate=rate, dof=dof, curves=curves)
+        reasons: tuple[tuple[str, dict[str, Any]], ...] = ()
+        if r.masked_by is not None:
+            why = {
+                "term": spec.key,
+                "masked_by": r.masked_by,
+                "share": r.share,
+                "tau": r.tau,
+                "min_share": MIN_MASKED_SHARE,
+            }
+            reasons = (("term_masked", why),)
         rows.append(
             PlanRow(
                 spec=spec,
@@ -258,6 +342,7 @@ def _plan_channel(
                 edf=r.edf,
                 duration=r.duration,
                 verified=spec.column == against,
+                reasons=reasons,
             )
         )
     return rows

@@ -43,6 +43,20 @@ def _time_constant_not_resolved(values: Mapping[str, Any]) -> str:
     return head + "; the term is not told from zero"
 
 
+def _term_masked(values: Mapping[str, Any]) -> str:
+    """A planned term that dominates the datasheet's curve at no τ; no length below a share."""
+    head = (
+        "{term} is masked by {masked_by}: it is the largest term of the Allan variance at no τ "
+        "(at most {pct:.0f} % of it, at τ = {tau:.3g} s)"
+    ).format(pct=100.0 * float(values["share"]), **values)
+    if float(values["share"]) < float(values["min_share"]):
+        return head + (
+            "; below {pct:.0f} % no record length verifies it: its estimate would rest on the "
+            "model of the other terms being exact"
+        ).format(pct=100.0 * float(values["min_share"]))
+    return head + "; planned there, where its estimate rests on the model of the other terms"
+
+
 #: The sentence of each reason code: a ``str.format`` template over the reason's values (a
 #: tuple of names is written as a comma-separated list) or a function of the values.
 REASONS: dict[str, str | Callable[[Mapping[str, Any]], str]] = {
@@ -81,6 +95,8 @@ REASONS: dict[str, str | Callable[[Mapping[str, Any]], str]] = {
         "gauss_markov: time constant at the short end of its search range (T ≤ {bound:.4g} s, "
         "shortest τ {shortest_tau:.4g} s): the term is white noise to this curve"
     ),
+    # a planned term (acceptance.PlanRow.reasons)
+    "term_masked": _term_masked,
     # a channel's analysis (pipeline.ChannelAnalysis.reasons; a verdict report's notes)
     "segments_left_out": _segments_left_out,
     "note": "{text}",

@@ -7,6 +7,7 @@ people (sentences from :mod:`._reasons`, values in the datasheet's units from :m
 from __future__ import annotations
 
 import datetime
+import math
 
 from .. import __version__
 from .._io import write_json
@@ -303,7 +304,7 @@ def plan_text(plan) -> str:
                 f"{100 * r.share:.0f} %",
                 NOISE_NAMES[r.noise_alpha].split(" (")[0],
                 f"{r.edf:.3g}",
-                format_duration(r.duration),
+                format_duration(r.duration) if math.isfinite(r.duration) else "none suffices",
             )
         )
     widths = [max(len(x[i]) for x in rows) for i in range(len(rows[0]))]
@@ -314,20 +315,29 @@ def plan_text(plan) -> str:
             "  * printed without a max value: not verified; shown at its typical value "
             "for information"
         )
+    masked = [r for r in plan.rows if r.reasons]
+    if masked:
+        lines.append("")
+        lines.extend(
+            f"masked: {r.spec.channel}: " + "; ".join(reason_text(c, v) for c, v in r.reasons)
+            for r in masked
+        )
     if plan.unverified:
         lines.append("")
         seen = {(u.key, _unverified_reason(u)): None for u in plan.unverified}
         lines.extend(f"not verified: {key}: {why}" for key, why in seen)
     lines.append("")
     lines.append(
-        f"why: a term is read at the τ where a record reaches ±{100 * plan.precision:.0f} % "
-        f"soonest; that takes {plan.rows[0].dof if plan.rows else 0:.3g} effective degrees of "
-        "freedom, i.e. an Allan-variance EDF of that divided by the term's share² at τ. The "
+        f"why: a term is read where it dominates the Allan curve (its share the largest), at "
+        f"the τ where a record reaches ±{100 * plan.precision:.0f} % soonest; that takes "
+        f"{plan.rows[0].dof if plan.rows else 0:.3g} effective degrees of freedom, i.e. "
+        "an Allan-variance EDF of that divided by the term's share² at τ. The "
         "overlapping Allan variance gains roughly (record length)/τ of EDF (Greenhall & Riley "
         "2003), so a term read at τ needs a record of about EDF × τ: white noise, read at "
         "short τ, needs seconds to minutes; bias instability, read where it rises above the "
-        "white noise (τ of tens to hundreds of seconds), needs hours; a random walk, read "
-        "where it rises above the bias-instability floor, needs the longest records."
+        "white noise (τ of tens to thousands of seconds; a Gauss-Markov bias at or past its "
+        "peak, τ ≥ 1.89 T), needs hours; a random walk, read where it rises above the "
+        "bias-instability floor, needs the longest records."
     )
     driver = plan.driver
     if driver is not None:
