@@ -439,10 +439,14 @@ def test_required_length_decides_in_stated_fraction(write_datasheet) -> None:
     truth = 1.05 * limit
     n0 = 400
     ref_terms = _white_trials(ax, truth, n0, 7, seed=900)
-    assert sum(t.verdict == "inconclusive" for t in ref_terms) >= 4
+    assert any(t.verdict == "inconclusive" for t in ref_terms)
     # the present interval's width (median of 7 references), rescaled to the true value
     ratio = float(np.median([t.high / t.low for t in ref_terms]))
     low, high = truth / math.sqrt(ratio), truth * math.sqrt(ratio)
+    # the present record decides such a unit with less than the wanted power (0.8): the
+    # probability from the chi-square interval of the same width
+    nu0 = confidence.dof_from_interval(low, high, 0.9)
+    assert confidence.decision_probability(truth, limit, nu0, 0.9) < 0.8
     t_req, _, _ = confidence.required_duration(
         truth, limit, low=low, high=high, duration=float(n0), confidence=0.9, power=0.8
     )
