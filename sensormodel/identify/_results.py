@@ -108,7 +108,7 @@ class Identification:
     reasons : tuple of SlopeNote
         The same as reason codes with their numbers (:class:`SlopeNote`), one per note.
     tau : ndarray
-        The τ of the curve that was fitted [s].
+        The τ of the whole curve [s] (the fit used ``fit_range`` of them).
     adev : ndarray
         The measured Allan deviation at ``tau`` [u].
     chi2 : float
