@@ -336,6 +336,7 @@ def test_reason_codes_become_the_sentences_of_the_reports():
         "masked_by": "white",
         "share": 0.24,
         "min_share": 0.1,
+        "departure": 0.62,
     }
     for code in REASONS:
         text = reason_text(code, values)
@@ -348,6 +349,10 @@ def test_reason_codes_become_the_sentences_of_the_reports():
         "confirm it (p = 0.123 > 0.05, 59 records): interval widened to the limit"
     )
     assert reason_text("channels_missing", values).endswith("not verified: gyro.x, gyro.y")
+    assert reason_text("fit_range_short_tau_departs_model", values).startswith(
+        "fitted over τ 0.125 s to 300 s: at shorter τ the record departs from the terms (by up "
+        "to 62% of the Allan variance"
+    )
     assert reason_text("segments_left_out", values) == (
         "gyro.z: the recording has 3 clean segments; the longest (1234.57 s of 4000 s) was analysed"
     )

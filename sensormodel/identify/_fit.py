@@ -28,10 +28,12 @@ from ._design import (
     _Design,
     _design,
     _fit_one,
+    _fit_range,
     _fit_subset,
     _params,
     _phi,
     _RefitState,
+    _restrict,
     _time_constant_edge,
     _wls_matrix,
 )
@@ -107,7 +109,9 @@ def fit(
     confidence = validate.probability(confidence, "confidence")
     n_boot = _check_n_boot(n_boot, confidence)
     seed = validate.seed(seed, "seed")
-    c = _check_curve(curve, len(names))
+    whole = _check_curve(curve, len(names))
+    fit_range = _fit_range(whole, names, white_filter)
+    c = _restrict(whole, fit_range.start)
     alpha = 0.5 * (1.0 - confidence)
     n_pilot = max(int(math.ceil(2.0 / alpha - 1e-9)), n_boot // 2)
     total = n_pilot + n_boot
@@ -128,7 +132,7 @@ def fit(
     )
     boot, boot_t = _refits(av, full.design, sel, est.model)
     fitted = _fitted_terms(c, full, sel, est, boot, boot_t, confidence)
-    readings, notes = slope_readings(c.tau, c.adev)
+    readings, notes = slope_readings(whole.tau, whole.adev)
     return Identification(
         channel=c.channel,
         unit=c.unit,
@@ -138,9 +142,9 @@ def fit(
         terms=fitted,
         slope_readings=readings,
         notes=notes,
-        reasons=_notes(c.tau, _reading_points(c.tau, c.adev)),
-        tau=c.tau,
-        adev=c.adev,
+        reasons=_notes(whole.tau, _reading_points(whole.tau, whole.adev)),
+        tau=whole.tau,
+        adev=whole.adev,
         chi2=_chi2(c.avar, est.model, c.edf),
         n_boot=n_boot,
         seed=seed,
@@ -152,6 +156,9 @@ def fit(
             coef=est.coef.copy(),
             time_constant=est.time_constant,
         ),
+        fit_range=(float(c.tau[0]), float(c.tau[-1])),
+        fit_range_reason=fit_range.reason,
+        fit_range_departure=fit_range.departure,
     )
 
 

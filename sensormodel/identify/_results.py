@@ -120,7 +120,7 @@ class Identification:
     reasons : tuple of SlopeNote
         The same as reason codes with their numbers (:class:`SlopeNote`), one per note.
     tau : ndarray
-        The τ of the curve that was fitted [s].
+        The τ of the whole curve [s] (the fit used ``fit_range`` of them).
     adev : ndarray
         The measured Allan deviation at ``tau`` [u].
     chi2 : float
@@ -135,6 +135,15 @@ class Identification:
     refit_state : object or None
         What :func:`limit_test` needs to repeat the fit on new records (the checked curve, the
         design, the terms in the estimate); None for an identification not made by :func:`fit`.
+    fit_range : (float, float) or None
+        The τ [s] the terms were fitted over (first, last); the shortest τ where the record
+        departs from the model are left out (package notes, ``_design._fit_range``).
+    fit_range_reason : str
+        Why that range: ``fit_range_full`` (the whole curve), ``fit_range_short_tau_departs_model``
+        (shorter τ depart from the fitted model beyond their interval and the model's stated
+        precision), ``fit_range_model_departs`` (no range passes the test: the whole curve).
+    fit_range_departure : float
+        The largest relative departure |AVAR̂/AVAR_fit − 1| of a left-out τ (0 if none).
     """
 
     channel: str
@@ -153,6 +162,9 @@ class Identification:
     seed: int | None = None
     white_filter: tuple[float, int] | None = None
     refit_state: Any = field(default=None, repr=False, compare=False)
+    fit_range: tuple[float, float] | None = None
+    fit_range_reason: str = "fit_range_full"
+    fit_range_departure: float = 0.0
 
     @property
     def term_reasons(self) -> tuple[tuple[str, Mapping[str, Any]], ...]:

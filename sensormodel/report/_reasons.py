@@ -97,6 +97,18 @@ REASONS: dict[str, str | Callable[[Mapping[str, Any]], str]] = {
     ),
     # a planned term (acceptance.PlanRow.reasons)
     "term_masked": _term_masked,
+    # the τ range an identification fitted (identify.Identification.fit_range_reason)
+    "fit_range_full": "fitted over the whole curve, τ {low:.4g} s to {high:.4g} s",
+    "fit_range_short_tau_departs_model": (
+        "fitted over τ {low:.4g} s to {high:.4g} s: at shorter τ the record departs from the "
+        "terms (by up to {departure:.0%} of the Allan variance; an output filter, quantization "
+        "of counts or a spectral line), so those τ were left out"
+    ),
+    "fit_range_model_departs": (
+        "fitted over the whole curve, τ {low:.4g} s to {high:.4g} s, although no range of it "
+        "fits the terms within its intervals (worst departure {departure:.0%} of the Allan "
+        "variance): read the estimates with care"
+    ),
     # a channel's analysis (pipeline.ChannelAnalysis.reasons; a verdict report's notes)
     "segments_left_out": _segments_left_out,
     "note": "{text}",

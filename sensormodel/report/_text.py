@@ -305,9 +305,17 @@ def _time_constant_row(ft: Any) -> list[str]:
 
 
 def identify_notes(ident: Any) -> list[str]:
-    """The notes of one identified channel: how the slope readings were taken, then the
-    sentences of its fitted terms' reason codes (:data:`REASONS`)."""
-    return [*ident.notes, *(reason_text(code, values) for code, values in ident.term_reasons)]
+    """The notes of one identified channel: the τ range fitted where it is not the whole curve,
+    how the slope readings were taken, then the sentences of its fitted terms' reason codes
+    (:data:`REASONS`)."""
+    fitted = []
+    reason = getattr(ident, "fit_range_reason", "fit_range_full")
+    if reason != "fit_range_full" and ident.fit_range is not None:
+        low, high = ident.fit_range
+        values = {"low": low, "high": high, "departure": ident.fit_range_departure}
+        fitted.append(reason_text(reason, values))
+    terms = (reason_text(code, values) for code, values in ident.term_reasons)
+    return [*fitted, *ident.notes, *terms]
 
 
 def _columns(head: list[str], rows: list[list[str]], indent: str = "  ") -> list[str]:
