@@ -125,15 +125,14 @@ def analysed_segment(recording: Any, channel: str) -> Any:
     AnalysisError
         When the channel has no clean segment.
     """
-    segments = recording.segments.get(channel, ())
-    if not segments:
+    if not recording.segments.get(channel):
         raise AnalysisError(
             f"channel {channel} has no clean segment",
             "a clean, uniformly sampled stretch of at least a few samples",
             source=getattr(recording, "source", None),
             field=channel,
         )
-    return max(segments, key=lambda s: s.n)
+    return recording.longest_segment(channel)
 
 
 def _selected(recording: Any, channels: Sequence[str] | None) -> list[str]:
@@ -186,7 +185,7 @@ def analyse(
     """
     ids = _selected(recording, channels)
     segments = [analysed_segment(recording, cid) for cid in ids]
-    samples = [recording.data[cid][s.start : s.stop] for cid, s in zip(ids, segments, strict=True)]
+    samples = [recording.samples(cid, s) for cid, s in zip(ids, segments, strict=True)]
     curves = allan.overlapping_many(
         samples,
         recording.rate,

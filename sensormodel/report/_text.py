@@ -309,11 +309,10 @@ def identify_notes(ident: Any) -> list[str]:
     how the slope readings were taken, then the sentences of its fitted terms' reason codes
     (:data:`REASONS`)."""
     fitted = []
-    reason = getattr(ident, "fit_range_reason", "fit_range_full")
-    if reason != "fit_range_full" and ident.fit_range is not None:
+    if ident.fit_range_reason != "fit_range_full" and ident.fit_range is not None:
         low, high = ident.fit_range
         values = {"low": low, "high": high, "departure": ident.fit_range_departure}
-        fitted.append(reason_text(reason, values))
+        fitted.append(reason_text(ident.fit_range_reason, values))
     terms = (reason_text(code, values) for code, values in ident.term_reasons)
     return [*fitted, *ident.notes, *terms]
 
