@@ -444,10 +444,13 @@ def _column_units(
     return units, notes
 
 
-def to_si(x: np.ndarray, plan: ColumnPlan, rate: float) -> np.ndarray:
-    """A column's values in SI (float64; ``x`` itself when nothing changes)."""
+def to_si(x: np.ndarray, plan: ColumnPlan, rate: float, *, in_place: bool = False) -> np.ndarray:
+    """A column's values in SI (float64; ``x`` itself when nothing changes; scaled in place
+    when ``in_place`` and ``x`` is float64)."""
     factor = plan.factor * (rate if plan.per_sample else 1.0)
     if factor != 1.0:
+        if in_place and x.dtype == np.float64:
+            return np.multiply(x, factor, out=x)
         return np.multiply(x, factor, dtype=np.float64)
     if x.dtype != np.float64:
         return x.astype(np.float64)

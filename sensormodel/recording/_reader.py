@@ -189,10 +189,7 @@ def _clock(source: Source, plan: UnitPlan, raw: Sequence[np.ndarray]) -> _Clock:
     n = len(raw[0])
     if plan.time_index is None:
         return _Clock(None, None, np.zeros(n, dtype=bool), np.zeros(n, dtype=bool), [])
-    traw = raw[-1]
-    t = traw if traw.dtype == np.float64 else traw.astype(np.float64)
-    if plan.time_factor != 1.0:
-        t = t * plan.time_factor
+    t = seconds(raw[-1], plan.time_factor)
     findings, rate, brk = time_base(t, source.where)
     if rate is None:
         raise RecordingError(
@@ -223,7 +220,8 @@ def _channels(
 ) -> _Channels:
     """Check each data column (in file units) and convert it to SI at ``rate`` [Hz]."""
     out = _Channels()
-    for pl, x in zip(plan.columns, raw, strict=False):
+    for pl, x0 in zip(plan.columns, raw, strict=False):
+        x = as_float(x0, pl.name, source.src)
         found, out.bad[pl.channel] = data_findings(
             x,
             pl.name,
@@ -233,7 +231,8 @@ def _channels(
             saturation_run=saturation_run,
         )
         out.findings += found
-        out.data[pl.channel] = _readonly(to_si(x, pl, rate))
+        fresh = x is not x0 and x.flags.writeable  # our own float copy: scale it in place
+        out.data[pl.channel] = _readonly(to_si(x, pl, rate, in_place=fresh))
     return out
 
 
@@ -298,6 +297,43 @@ class _Checked:
             segments=MappingProxyType(segments),
             time=None if time is None else _readonly(time),
         )
+
+
+#: Integers up to this magnitude are exact in float64 (53-bit significand, IEEE 754).
+EXACT_INTEGER = 2**53
+
+
+def as_float(x: np.ndarray, name: str, src: str) -> np.ndarray:
+    """A raw column as float64: integer counts of any width converted exactly.
+
+    Every integer of magnitude ≤ 2**53 is a float64 (IEEE 754 binary64, 53-bit significand);
+    a column with larger counts is refused rather than rounded.
+    """
+    if x.dtype == np.float64:
+        return x
+    if x.dtype.kind in "iu" and x.dtype.itemsize == 8 and len(x):
+        big = np.max(x) > EXACT_INTEGER or (x.dtype.kind == "i" and np.min(x) < -EXACT_INTEGER)
+        if big:
+            raise RecordingError(
+                f"column '{name}' holds {x.dtype} counts beyond ±2**53",
+                "counts that float64 holds exactly (|count| ≤ 2**53)",
+                source=src,
+            )
+    return x.astype(np.float64)
+
+
+def seconds(traw: np.ndarray, factor: float) -> np.ndarray:
+    """A time column in seconds (float64). Integer stamps (epoch nanoseconds need 61 bits) are
+    taken relative to the first in integer arithmetic, so their steps are exact."""
+    if traw.dtype.kind in "iu" and len(traw):
+        first = traw[0]
+        rel = (traw - first).astype(np.float64) if traw.dtype.kind == "i" else (
+            traw.astype(np.int64) - np.int64(first)).astype(np.float64)
+        rel *= factor
+        rel += float(first) * factor
+        return rel
+    t = traw if traw.dtype == np.float64 else traw.astype(np.float64)
+    return t * factor if factor != 1.0 else t
 
 
 def _readonly(x: np.ndarray) -> np.ndarray:
