@@ -189,8 +189,9 @@ def _clock(source: Source, plan: UnitPlan, raw: Sequence[np.ndarray]) -> _Clock:
     n = len(raw[0])
     if plan.time_index is None:
         return _Clock(None, None, np.zeros(n, dtype=bool), np.zeros(n, dtype=bool), [])
-    t = seconds(raw[-1], plan.time_factor)
-    findings, rate, brk = time_base(t, source.where)
+    rel, t0 = seconds(raw[-1], plan.time_factor)
+    findings, rate, brk = time_base(rel, source.where, offset=t0)
+    t = rel + t0 if t0 else rel
     if rate is None:
         raise RecordingError(
             f"the time column '{source.names[plan.time_index]}' never increases",
@@ -322,18 +323,25 @@ def as_float(x: np.ndarray, name: str, src: str) -> np.ndarray:
     return x.astype(np.float64)
 
 
-def seconds(traw: np.ndarray, factor: float) -> np.ndarray:
-    """A time column in seconds (float64). Integer stamps (epoch nanoseconds need 61 bits) are
-    taken relative to the first in integer arithmetic, so their steps are exact."""
+def seconds(traw: np.ndarray, factor: float) -> tuple[np.ndarray, float]:
+    """A time column in seconds relative to its first finite stamp (float64), and that stamp.
+
+    The steps of large stamps (epoch seconds, epoch nanoseconds, which need 61 bits) stay exact:
+    integer stamps are subtracted in integer arithmetic before the conversion.
+    """
     if traw.dtype.kind in "iu" and len(traw):
-        first = traw[0]
-        rel = (traw - first).astype(np.float64) if traw.dtype.kind == "i" else (
-            traw.astype(np.int64) - np.int64(first)).astype(np.float64)
+        first = int(traw[0])
+        rel = (traw.astype(np.int64) - np.int64(first)).astype(np.float64)
         rel *= factor
-        rel += float(first) * factor
-        return rel
+        return rel, first * factor
     t = traw if traw.dtype == np.float64 else traw.astype(np.float64)
-    return t * factor if factor != 1.0 else t
+    if factor != 1.0:
+        t = t * factor
+    fin = np.flatnonzero(np.isfinite(t[: min(len(t), 1024)]))
+    if not len(fin) or abs(float(t[fin[0]])) < 1e6:  # small stamps: as they are
+        return t, 0.0
+    t0 = float(t[fin[0]])
+    return t - t0, t0
 
 
 def _readonly(x: np.ndarray) -> np.ndarray:
