@@ -10,18 +10,20 @@ from __future__ import annotations
 import os
 import pathlib
 from collections.abc import Callable, Mapping, Sequence
-from dataclasses import dataclass, field
+from dataclasses import dataclass, field, replace
 from types import MappingProxyType
+from typing import Any
 
 import numpy as np
 
 from .. import validate
 from ..errors import RecordingError
-from ._columns import UnitPlan, plan_columns, to_si
+from ._columns import ColumnPlan, UnitPlan, plan_columns, to_si
 from ._csv import TextSource
-from ._formats import FORMATS_TEXT, format_of
+from ._formats import FORMATS_TEXT, fmt, format_of
 from ._results import Finding, Recording, Segment
 from ._sources import Hdf5Source, NpySource, NpzSource, Source
+from ._stamps import first_row, is_number, iso_nanoseconds, looks_iso
 from ._timebase import data_findings, fail_or_split, resolve_rate, sort_findings, time_base
 
 __all__ = ["read_recording", "open_source"]
@@ -43,6 +45,9 @@ def read_recording(
     increments: bool | None = None,
     columns: str | Sequence[str] | None = None,
     channel_map: Mapping[str, str] | None = None,
+    auxiliary: str | Sequence[str] | None = None,
+    time: str | bool | None = None,
+    time_unit: str | None = None,
     gaps: str = "fail",
     progress: Callable[[int, int], None] | None = None,
     cache: bool | str | os.PathLike[str] | None = None,
@@ -67,10 +72,22 @@ def read_recording(
         Samples are increments per sample period (angle, velocity); they are returned as mean
         rates over the period. Default: as the file states, else False.
     columns : str or sequence of str, optional
-        Column names or globs (``"gyro*"``, comma-separated in one string) to read; default all
-        but the time column. Columns named in ``channel_map`` are always read.
+        Column names or globs (``"gyro*"``, comma-separated in one string) to analyse; the
+        other columns but time are auxiliary. Default: the columns whose name maps to a channel
+        id, or, when none does, every column that is not auxiliary by its name or unit. Columns
+        named in ``channel_map`` are always analysed.
     channel_map : mapping, optional
         ``{"COLUMN": "gyro.x"}``: the channel id of columns whose name is not one.
+    auxiliary : str or sequence of str, optional
+        Column names or globs kept as auxiliary (never analysed or checked) whatever their
+        name; temperature (by name or unit), status and counter columns are auxiliary anyway.
+    time : str or False, optional
+        The time column's name (default: the one column named like one: ``time``, ``t``,
+        ``ts_ms``, ``time_us``, ``timestamp_ns`` …); False: no time column (the rate from the
+        file or ``rate``; time-named columns are then auxiliary).
+    time_unit : str, optional
+        The time column's unit when neither the file nor its name gives one: ``s``, ``ms``,
+        ``us``, ``ns``, a tick (``"25 us"``), ``epoch`` (seconds) or ``iso8601`` (text).
     gaps : {"fail", "split"}
         ``"fail"``: raise on the first problem; ``"split"``: return the clean segments.
     progress : callable, optional
@@ -103,15 +120,15 @@ def read_recording(
     min_segment = _check_options(gaps, min_segment, constant_run, saturation_run)
     option_rate = None if rate is None else validate.rate(rate, "--rate")
     source = open_source(pathlib.Path(path), src)
-    plan = plan_columns(
-        source.names,
-        source.units,
+    plan = _plan(
+        source,
         unit=unit,
         increments=increments,
-        file_increments=source.increments,
         columns=columns,
         channel_map=channel_map,
-        src=src,
+        auxiliary=auxiliary,
+        time=time,
+        time_unit=time_unit,
     )
     raw = _load(source, plan, cache=cache, progress=progress)
     clock = _clock(source, plan, raw)
@@ -121,7 +138,13 @@ def read_recording(
         source, plan, raw, final_rate, constant_run=constant_run, saturation_run=saturation_run
     )
     checked = _Checked(
-        source, plan, clock, channels, final_rate, clock.start_time(source.start_time)
+        source,
+        plan,
+        clock,
+        channels,
+        final_rate,
+        clock.start_time(source.start_time),
+        _auxiliary(plan, raw, src),
     )
     findings, segments = checked.segments(gaps=gaps, min_segment=min_segment)
     return checked.recording(findings, segments)
@@ -135,6 +158,25 @@ def open_source(path: pathlib.Path, src: str) -> Source:
     if path.is_dir():
         raise RecordingError("is a folder", f"a recording file ({FORMATS_TEXT})", source=src)
     return _SOURCES[fmt_name](path, src)
+
+
+def _plan(source: Source, **options: Any) -> UnitPlan:
+    """The unit plan of a source: ISO-8601 time and text columns found in a text file's first
+    row (an auxiliary text column, e.g. a status word, is left unread, noted)."""
+    row = first_row(source)
+    texts = {i for i, f in enumerate(row) if i < len(source.names) and not is_number(f)}
+    plan = plan_columns(source.names, source.units, file_increments=source.increments,
+                        src=source.src, **options)
+    t = plan.time_index
+    if t is not None and t in texts and plan.time_unit != "iso8601" and looks_iso(row[t]):
+        plan = replace(plan, time_unit="iso8601", time_factor=1.0)
+    left = [a for a in plan.auxiliary if a.index in texts]
+    if left:
+        notes = [Finding("note", a.name, 0, f"column '{a.name}' holds text ('{row[a.index]}'); "
+                         "not read") for a in left]
+        plan = replace(plan, auxiliary=tuple(a for a in plan.auxiliary if a not in left),
+                       notes=(*plan.notes, *notes))
+    return plan
 
 
 def _check_options(gaps: str, min_segment: int, constant_run: int, saturation_run: int) -> int:
@@ -155,6 +197,8 @@ def _load(
 ) -> list[np.ndarray]:
     """The raw columns of the plan (data columns, then time), at least two samples each."""
     raw = source.load(plan.wanted, cache=cache, progress=progress)
+    if plan.time_iso and plan.time_index is not None:
+        raw = [*raw, iso_nanoseconds(source, plan.time_index)]
     if len(raw[0]) < 2:
         row_word = "data row" if source.text else "sample"
         raise RecordingError(
@@ -189,7 +233,7 @@ def _clock(source: Source, plan: UnitPlan, raw: Sequence[np.ndarray]) -> _Clock:
     n = len(raw[0])
     if plan.time_index is None:
         return _Clock(None, None, np.zeros(n, dtype=bool), np.zeros(n, dtype=bool), [])
-    rel, t0 = seconds(raw[-1], plan.time_factor)
+    rel, t0 = seconds(raw[-1], 1e-9 if plan.time_iso else plan.time_factor)
     findings, rate, brk = time_base(rel, source.where, offset=t0)
     t = rel + t0 if t0 else rel
     if rate is None:
@@ -232,9 +276,39 @@ def _channels(
             saturation_run=saturation_run,
         )
         out.findings += found
+        if x0.dtype.kind in "iu" and pl.unit is not None:
+            out.findings.append(_count_note(pl, x0.dtype))
         fresh = x is not x0 and x.flags.writeable  # our own float copy: scale it in place
         out.data[pl.channel] = _readonly(to_si(x, pl, rate, in_place=fresh))
     return out
+
+
+def _count_note(pl: ColumnPlan, dtype: np.dtype) -> Finding:
+    """The note of an integer column: its count step in SI."""
+    si = pl.si_unit if pl.si_quantity != "as_recorded" else (pl.unit or "1")
+    return Finding(
+        "note",
+        pl.channel,
+        0,
+        f"column '{pl.name}' holds {dtype} counts; one count is {fmt(pl.factor)} {si}"
+        f" ([{pl.unit}])",
+    )
+
+
+def _auxiliary(
+    plan: UnitPlan, raw: Sequence[np.ndarray], src: str
+) -> tuple[dict[str, np.ndarray], dict[str, str | None]]:
+    """The auxiliary columns (after the analysed ones in ``raw``) × their scale, read-only."""
+    first = len(plan.columns)
+    data: dict[str, np.ndarray] = {}
+    units: dict[str, str | None] = {}
+    for a, x0 in zip(plan.auxiliary, raw[first : first + len(plan.auxiliary)], strict=True):
+        x = as_float(x0, a.name, src)
+        if a.scale != 1.0:
+            x = np.multiply(x, a.scale, out=x) if x is not x0 else x * a.scale
+        data[a.name] = _readonly(x)
+        units[a.name] = a.unit
+    return data, units
 
 
 @dataclass(frozen=True)
@@ -247,6 +321,7 @@ class _Checked:
     channels: _Channels
     rate: float
     start_time: float
+    auxiliary: tuple[dict[str, np.ndarray], dict[str, str | None]] = ({}, {})
 
     def segments(
         self, *, gaps: str, min_segment: int
@@ -283,6 +358,7 @@ class _Checked:
         """The :class:`Recording` (read-only mappings and arrays)."""
         cols = self.plan.columns
         time = self.clock.time
+        ti = self.plan.time_index
         return Recording(
             source=self.source.src,
             format=self.source.fmt,
@@ -297,6 +373,11 @@ class _Checked:
             findings=tuple(findings),
             segments=MappingProxyType(segments),
             time=None if time is None else _readonly(time),
+            auxiliary=MappingProxyType(self.auxiliary[0]),
+            auxiliary_units=MappingProxyType(self.auxiliary[1]),
+            column_units=MappingProxyType({c.channel: c.unit for c in cols}),
+            time_column=None if ti is None else self.source.names[ti],
+            time_unit=self.plan.time_unit,
         )
 
 
