@@ -113,16 +113,22 @@ def _guessed(rec: Recording, mapped: dict[str, str]) -> str:
 
 def layout_lines(rec: Recording) -> list[str]:
     """How a recording was read, for people: time base, rate, channels, auxiliary columns."""
-    lines = [f"{rec.source} ({rec.format}): {rec.n_samples} samples at {rec.rate:.10g} Hz "
-             f"({rec.duration:.6g} s)" + (", increments per sample" if rec.increments else "")]
+    lines = [
+        f"{rec.source} ({rec.format}): {rec.n_samples} samples at {rec.rate:.10g} Hz "
+        f"({rec.duration:.6g} s)" + (", increments per sample" if rec.increments else "")
+    ]
     if rec.time_column is not None:
-        lines.append(f"  time        {_column_text(rec.time_column, rec.time_unit)}, first "
-                     f"stamp {rec.start_time:.10g} s")
+        lines.append(
+            f"  time        {_column_text(rec.time_column, rec.time_unit)}, first "
+            f"stamp {rec.start_time:.10g} s"
+        )
     else:
         lines.append("  time        none (the rate from the file or --rate)")
     for cid in rec.channels:
-        lines.append(f"  {cid:<11} {_column_text(rec.columns[cid], rec.column_units.get(cid))}"
-                     f" → {rec.units[cid]} ({rec.quantities[cid].replace('_', ' ')})")
+        lines.append(
+            f"  {cid:<11} {_column_text(rec.columns[cid], rec.column_units.get(cid))}"
+            f" → {rec.units[cid]} ({rec.quantities[cid].replace('_', ' ')})"
+        )
     for name in rec.auxiliary:
         lines.append(f"  auxiliary   {_column_text(name, rec.auxiliary_units.get(name))}")
     for f in rec.findings:
@@ -152,8 +158,9 @@ def _time(ctx: click.Context, param: click.Parameter, value: str | None) -> Any:
     column, sep, unit = value.partition("=")
     if not column.strip() or (sep and not unit.strip()):
         raise OptionError(
-            str(RecordingError(f"--time {value}", "COLUMN, COLUMN=UNIT (e.g. --time ts=ms) or "
-                               "none")),
+            str(
+                RecordingError(f"--time {value}", "COLUMN, COLUMN=UNIT (e.g. --time ts=ms) or none")
+            ),
             ctx=ctx,
             param=param,
         )
@@ -242,13 +249,20 @@ _OPTIONS = (
     ),
 )
 
-_FIELDS = ("rate", "unit", "increments", "channel_map", "columns", "auxiliary", "time", "layout",
-           "gaps")
+_FIELDS = (
+    "rate",
+    "unit",
+    "increments",
+    "channel_map",
+    "columns",
+    "auxiliary",
+    "time",
+    "layout",
+    "gaps",
+)
 
 
-def recording_options(
-    func: Callable[..., Any] | None = None, *, skip: Sequence[str] = ()
-) -> Any:
+def recording_options(func: Callable[..., Any] | None = None, *, skip: Sequence[str] = ()) -> Any:
     """Add the recording options to a command; it receives them as ``reading``.
 
     ``@recording_options`` adds them all; ``@recording_options(skip=("rate", "channel_map"))``

@@ -13,7 +13,7 @@ import contextlib
 import fnmatch
 import math
 import re
-from collections.abc import Mapping, Sequence
+from collections.abc import Collection, Mapping, Sequence
 from dataclasses import dataclass
 
 import numpy as np
@@ -320,8 +320,9 @@ def _time_column(
     return hits[0], time_name_unit(names[hits[0]].rsplit("/", 1)[-1])[1]
 
 
-def _globs(patterns: str | Sequence[str], names: Sequence[str], among: Sequence[int],
-           option: str, src: str) -> set[int]:
+def _globs(
+    patterns: str | Sequence[str], names: Sequence[str], among: Sequence[int], option: str, src: str
+) -> set[int]:
     """The column indices (of ``among``) that names or globs match; each must match one."""
     if isinstance(patterns, str):
         patterns = [p.strip() for p in patterns.split(",") if p.strip()]
@@ -518,6 +519,7 @@ def plan_columns(
     auxiliary: str | Sequence[str] | None = None,
     time: str | bool | None = None,
     time_unit: str | None = None,
+    text_stamps: Collection[int] = (),
 ) -> UnitPlan:
     """Find the time column, map and select the data columns, and plan their units.
 
@@ -529,6 +531,9 @@ def plan_columns(
         The reader's options (:func:`read_recording`).
     file_increments : bool or None
         What the file states about increments, None when it says nothing.
+    text_stamps : collection of int
+        The columns whose first value is an ISO-8601 stamp (a time column among them without a
+        unit is read as ISO-8601 text).
     src : str
         The file, for messages.
 
@@ -560,6 +565,8 @@ def plan_columns(
     aux_plans = tuple(_aux_plan(i, names[i], units[i], src) for i in aux)
     t_unit, t_factor = None, 1.0
     if time_idx is not None:
+        if time_idx in text_stamps and time_unit is None and no_unit(units[time_idx]):
+            name_unit = "iso8601"
         t_unit = _time_unit(names[time_idx], units[time_idx], time_unit, name_unit, src)
         t_factor = 1.0 if t_unit == "iso8601" else _time_factor(names[time_idx], t_unit, src)
     return UnitPlan(plans, time_idx, t_factor, inc, tuple(notes), aux_plans, t_unit)
@@ -664,6 +671,10 @@ _SCALE = re.compile(
 )
 
 
+class _ScaleError(RecordingError):
+    """A unit's scale (the value of one count) that cannot be used."""
+
+
 def split_scale(text: str) -> tuple[float | None, str, bool]:
     """A unit that may carry a scale → (the number or None, the unit, whether it ends per count).
 
@@ -693,14 +704,14 @@ def unit_factor(text: str, kind: str, *, field: str | None = None, src: str | No
     """
     number, unit, per_count = split_scale(text)
     if number is None and per_count:
-        raise RecordingError(
+        raise _ScaleError(
             f"the unit '{text}' gives no value of one count",
             f"the value of one count with its unit, e.g. '0.00875 {unit or 'deg/s'}/LSB'",
             source=src,
             field=field,
         )
     if number is not None and not (math.isfinite(number) and number != 0.0):
-        raise RecordingError(
+        raise _ScaleError(
             f"the scale in '{text}' is {number:g}",
             "a finite, non-zero value of one count, e.g. '8.75 mdps'",
             source=src,
@@ -743,6 +754,10 @@ def _plan_column(
         kind = _INCREMENT_OF[rate_kind] if increments else rate_kind
         try:
             factor = unit_factor(unit, kind, field=field, src=src)
+        except _ScaleError as exc:
+            raise RecordingError(
+                exc.problem, f"{exc.expected} for channel {channel}", source=src, field=field
+            ) from None
         except RecordingError as exc:
             expected = f"{_KIND_WHAT[kind]} for channel {channel}"
             other = rate_kind if increments else _INCREMENT_OF[rate_kind]

@@ -165,17 +165,25 @@ def _plan(source: Source, **options: Any) -> UnitPlan:
     row (an auxiliary text column, e.g. a status word, is left unread, noted)."""
     row = first_row(source)
     texts = {i for i, f in enumerate(row) if i < len(source.names) and not is_number(f)}
-    plan = plan_columns(source.names, source.units, file_increments=source.increments,
-                        src=source.src, **options)
-    t = plan.time_index
-    if t is not None and t in texts and plan.time_unit != "iso8601" and looks_iso(row[t]):
-        plan = replace(plan, time_unit="iso8601", time_factor=1.0)
+    plan = plan_columns(
+        source.names,
+        source.units,
+        file_increments=source.increments,
+        src=source.src,
+        text_stamps={i for i in texts if looks_iso(row[i])},
+        **options,
+    )
     left = [a for a in plan.auxiliary if a.index in texts]
     if left:
-        notes = [Finding("note", a.name, 0, f"column '{a.name}' holds text ('{row[a.index]}'); "
-                         "not read") for a in left]
-        plan = replace(plan, auxiliary=tuple(a for a in plan.auxiliary if a not in left),
-                       notes=(*plan.notes, *notes))
+        notes = [
+            Finding("note", a.name, 0, f"column '{a.name}' holds text ('{row[a.index]}'); not read")
+            for a in left
+        ]
+        plan = replace(
+            plan,
+            auxiliary=tuple(a for a in plan.auxiliary if a not in left),
+            notes=(*plan.notes, *notes),
+        )
     return plan
 
 
