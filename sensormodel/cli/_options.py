@@ -39,9 +39,17 @@ class RecordingOptions:
     channel_map : dict or None
         Column → channel id.
     columns : list of str or None
-        Column names or globs to read (None: all).
+        Column names or globs to analyse (None: the columns named like channels).
+    auxiliary : list of str or None
+        Column names or globs kept as auxiliary (never analysed or checked).
+    time, time_unit : str, False or None
+        The time column (False: none) and its unit, when the file does not say.
+    topic : str or None
+        ROS bags: the sensor_msgs/Imu topic.
     gaps : {"fail", "split"}
         Refuse a record with problems, or keep its clean segments.
+    layout : bool
+        Print how the file is read and stop.
     """
 
     rate: float | None = None
@@ -52,6 +60,7 @@ class RecordingOptions:
     auxiliary: list[str] | None = None
     time: str | bool | None = None
     time_unit: str | None = None
+    topic: str | None = None
     gaps: str = "fail"
     layout: bool = False
     #: Notes on how the file was read, printed when the command ends without an input error.
@@ -233,6 +242,13 @@ _OPTIONS = (
         "time columns (then --rate).",
     ),
     click.option(
+        "--topic",
+        "topic",
+        default=None,
+        metavar="TOPIC",
+        help="ROS bags: the sensor_msgs/Imu topic to read, when there are several.",
+    ),
+    click.option(
         "--layout",
         "layout",
         is_flag=True,
@@ -257,6 +273,7 @@ _FIELDS = (
     "columns",
     "auxiliary",
     "time",
+    "topic",
     "layout",
     "gaps",
 )

@@ -18,6 +18,8 @@ import numpy as np
 
 from .. import validate
 from ..errors import RecordingError
+from ._arrow import ArrowSource, ParquetSource
+from ._bags import BagSource, is_bag_folder
 from ._columns import ColumnPlan, UnitPlan, plan_columns, to_si
 from ._csv import TextSource
 from ._formats import FORMATS_TEXT, fmt, format_of
@@ -34,6 +36,9 @@ _SOURCES: dict[str, type[Source]] = {
     "npy": NpySource,
     "npz": NpzSource,
     "hdf5": Hdf5Source,
+    "parquet": ParquetSource,
+    "arrow": ArrowSource,
+    "bag": BagSource,
 }
 
 
@@ -48,6 +53,7 @@ def read_recording(
     auxiliary: str | Sequence[str] | None = None,
     time: str | bool | None = None,
     time_unit: str | None = None,
+    topic: str | None = None,
     gaps: str = "fail",
     progress: Callable[[int, int], None] | None = None,
     cache: bool | str | os.PathLike[str] | None = None,
@@ -88,6 +94,8 @@ def read_recording(
     time_unit : str, optional
         The time column's unit when neither the file nor its name gives one: ``s``, ``ms``,
         ``us``, ``ns``, a tick (``"25 us"``), ``epoch`` (seconds) or ``iso8601`` (text).
+    topic : str, optional
+        ROS bags: the ``sensor_msgs/Imu`` topic to read (needed when there are several).
     gaps : {"fail", "split"}
         ``"fail"``: raise on the first problem; ``"split"``: return the clean segments.
     progress : callable, optional
@@ -119,7 +127,7 @@ def read_recording(
     src = str(path)
     min_segment = _check_options(gaps, min_segment, constant_run, saturation_run)
     option_rate = None if rate is None else validate.rate(rate, "--rate")
-    source = open_source(pathlib.Path(path), src)
+    source = open_source(pathlib.Path(path), src, topic=topic)
     plan = _plan(
         source,
         unit=unit,
@@ -150,13 +158,22 @@ def read_recording(
     return checked.recording(findings, segments)
 
 
-def open_source(path: pathlib.Path, src: str) -> Source:
-    """The source of a recording file, by its name ending (format), after its header."""
-    fmt_name = format_of(path, src)
+def open_source(path: pathlib.Path, src: str, *, topic: str | None = None) -> Source:
+    """The source of a recording file, by its name ending (format), after its header; a ROS 2
+    bag folder (with ``metadata.yaml``) is a bag."""
+    fmt_name = "bag" if is_bag_folder(path) else format_of(path, src)
     if not path.exists():
         raise RecordingError("no such file", f"an existing recording ({FORMATS_TEXT})", source=src)
-    if path.is_dir():
+    if path.is_dir() and fmt_name != "bag":
         raise RecordingError("is a folder", f"a recording file ({FORMATS_TEXT})", source=src)
+    if fmt_name == "bag":
+        return BagSource(path, src, topic)
+    if topic is not None:
+        raise RecordingError(
+            f"--topic {topic} given for a .{fmt_name} file",
+            "--topic with ROS bags only",
+            source=src,
+        )
     return _SOURCES[fmt_name](path, src)
 
 
