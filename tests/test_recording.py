@@ -28,7 +28,7 @@ from sensormodel.recording import open_writer, read_recording
 # Round trips: every writer format reads back without options
 # ---------------------------------------------------------------------------------------------
 
-FORMATS = ["csv", "tsv", "txt", "npy", "npz", "h5", "hdf5"]
+FORMATS = ["csv", "tsv", "txt", "npy", "npz", "h5", "hdf5", "parquet", "feather"]
 
 
 @pytest.mark.parametrize("ext", FORMATS)
@@ -320,12 +320,14 @@ def test_bad_input_messages(
 def test_missing_and_unknown_files(tmp_path: pathlib.Path) -> None:
     assert read_error(tmp_path / "none.csv") == (
         f"{tmp_path / 'none.csv'}: no such file; expected an existing recording (a .csv, .tsv, "
-        ".txt, .npy, .npz, .h5 or .hdf5 file)"
+        ".txt, .npy, .npz, .h5, .hdf5, .parquet, .feather, .arrow file, or a ROS bag (.bag, "
+        ".mcap, .db3, or a ROS 2 bag folder))"
     )
     p = write_file(tmp_path, "rec.dat", "x")
     assert read_error(p) == (
-        f"{p}: unknown recording format '.dat'; expected a .csv, .tsv, .txt, .npy, .npz, .h5 or "
-        ".hdf5 file"
+        f"{p}: unknown recording format '.dat'; expected a .csv, .tsv, .txt, .npy, .npz, .h5, "
+        ".hdf5, .parquet, .feather, .arrow file, or a ROS bag (.bag, .mcap, .db3, or a ROS 2 bag "
+        "folder)"
     )
     p = write_file(tmp_path, "bad.npy", "not numpy")
     assert read_error(p).startswith(f"{p}: not a readable .npy file (")

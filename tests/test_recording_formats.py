@@ -233,3 +233,27 @@ def test_bag_refusals(tmp_path: pathlib.Path) -> None:
     assert read_error(csv, topic="/imu") == (
         f"{csv}: --topic /imu given for a .csv file; expected --topic with ROS bags only"
     )
+
+
+def test_writers_of_columnar_formats_and_no_bag_writer(tmp_path: pathlib.Path) -> None:
+    from sensormodel.errors import RecordingError
+    from sensormodel.recording import open_writer
+
+    x = np.random.default_rng(2).normal(0, 1e-3, (500, 2))
+    for name in ("w.parquet", "w.feather"):
+        with open_writer(
+            tmp_path / name, ["gyro.x", "accelerometer.z"], ["deg/s", "mg"], 50.0
+        ) as w:
+            w.write(x[:200])
+            w.write(x[200:])
+        r = read_recording(tmp_path / name)
+        assert r.rate == 50.0 and r.column_units["gyro.x"] == "deg/s"
+        np.testing.assert_allclose(r.data["gyro.x"], x[:, 0], rtol=1e-13)
+        np.testing.assert_allclose(r.data["accelerometer.z"], x[:, 1], rtol=1e-13)
+    with pytest.raises(RecordingError) as info:
+        open_writer(tmp_path / "w.bag", ["gyro.x"], None, 50.0)
+    assert str(info.value) == (
+        f"{tmp_path / 'w.bag'}: sensormodel does not write .bag recordings; expected a .csv, "
+        ".tsv, .txt, .npy, .npz, .h5, .hdf5, .parquet, .feather or .arrow file name"
+    )
+    assert not list(tmp_path.glob("w.bag*"))

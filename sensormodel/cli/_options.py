@@ -9,6 +9,7 @@
 from __future__ import annotations
 
 import functools
+import inspect
 from collections.abc import Callable, Sequence
 from dataclasses import dataclass, field, fields
 from typing import Any
@@ -279,6 +280,32 @@ _FIELDS = (
 )
 
 
+#: How a recording must look, appended to the help of every command that reads one.
+RECORDINGS_HELP = """
+
+Recordings (REC): CSV/TSV, NPY (+ .npy.json sidecar), NPZ, HDF5, Parquet, Feather/Arrow, or a
+ROS 1 / ROS 2 bag of sensor_msgs/Imu (pip install sensormodel[bags]). One column per channel,
+one row per sample, e.g. a rig log of raw counts:
+
+\b
+  ts_ms,gx [8.75 mdps],gy [8.75 mdps],gz [8.75 mdps],accel_x [0.061 mg],...,temp [degC],counter
+  0,12,-3,5,-21,8,16390,25.1,1
+  2.5,10,-1,4,-19,11,16395,25.1,2
+
+\b
+  - channels by name: gyro_x, gx, GyroX, wx, rate_x -> gyro.x; accel_x, acc_x, ax ->
+    accelerometer.x (any other name: --channel COLUMN=gyro.x);
+  - units in [brackets] or (parentheses), or --unit COLUMN=U; a unit may be the value of one
+    count: '8.75 mdps', '0.061 mg', '0.00875 deg/s/LSB';
+  - time: a column time, t, timestamp, ts_ms, time_us, timestamp_ns ... in s, ms, us, ns,
+    epoch seconds or ISO-8601 text (--time COLUMN=UNIT when the header does not say), else
+    --rate HZ;
+  - temperature, status and counter columns are kept as auxiliary, never analysed (--aux,
+    --columns choose); delta-angle / delta-velocity logs: --increments;
+  - --layout shows how a file is read. The README's "Recordings" section lists the layouts.
+"""
+
+
 def recording_options(func: Callable[..., Any] | None = None, *, skip: Sequence[str] = ()) -> Any:
     """Add the recording options to a command; it receives them as ``reading``.
 
@@ -305,6 +332,7 @@ def recording_options(func: Callable[..., Any] | None = None, *, skip: Sequence[
             reading.flush()
             return result
 
+        wrapper.__doc__ = inspect.cleandoc(f.__doc__ or "") + RECORDINGS_HELP
         for option, name in reversed(list(zip(_OPTIONS, _FIELDS, strict=True))):
             if name in names:
                 wrapper = option(wrapper)
