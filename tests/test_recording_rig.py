@@ -132,6 +132,12 @@ def test_rig_csv_counts_with_scales(tmp_path: pathlib.Path) -> None:
     assert r.rate == pytest.approx(400.0, rel=1e-12)
     assert (r.time_column, r.time_unit) == ("ts_ms", "ms")
     assert r.column_units["gyro.x"] == "8.75 mdps"
+    # whole numbers under a unit with a scale: counts, their step reported
+    notes = [f.detail for f in r.findings if f.kind == "note"]
+    assert notes[0] == (
+        f"column 'gx_raw' holds whole-number counts; one count is {GYRO_COUNT:.10g} rad/s "
+        "([8.75 mdps])"
+    )
 
 
 def test_rig_npy_int16_counts_with_a_scale(tmp_path: pathlib.Path) -> None:

@@ -18,9 +18,10 @@ import numpy as np
 
 from .. import validate
 from ..errors import RecordingError
+from ..quantities import SI_LABEL
 from ._arrow import ArrowSource, ParquetSource
 from ._bags import BagSource, is_bag_folder
-from ._columns import ColumnPlan, UnitPlan, plan_columns, to_si
+from ._columns import ColumnPlan, UnitPlan, plan_columns, split_scale, to_si
 from ._csv import TextSource
 from ._formats import FORMATS_TEXT, fmt, format_of
 from ._results import Finding, Recording, Segment
@@ -301,22 +302,34 @@ def _channels(
             saturation_run=saturation_run,
         )
         out.findings += found
-        if x0.dtype.kind in "iu" and pl.unit is not None:
+        if pl.unit is not None and _counts(x0, pl):
             out.findings.append(_count_note(pl, x0.dtype))
         fresh = x is not x0 and x.flags.writeable  # our own float copy: scale it in place
         out.data[pl.channel] = _readonly(to_si(x, pl, rate, in_place=fresh))
     return out
 
 
+def _counts(x: np.ndarray, pl: ColumnPlan) -> bool:
+    """Whether a column holds counts: an integer array, or whole numbers (judged on the first
+    65 536 samples) under a unit that carries a scale ('8.75 mdps')."""
+    if x.dtype.kind in "iu":
+        return True
+    if pl.unit is None or split_scale(pl.unit)[0] is None:
+        return False
+    head = x[:65536]
+    head = head[np.isfinite(head)]
+    return bool(len(head)) and bool(np.all(head == np.rint(head)))
+
+
 def _count_note(pl: ColumnPlan, dtype: np.dtype) -> Finding:
-    """The note of an integer column: its count step in SI."""
-    si = pl.si_unit if pl.si_quantity != "as_recorded" else (pl.unit or "1")
+    """The note of a column of counts: its count step in SI."""
+    si = SI_LABEL.get(pl.quantity, pl.unit or "1")  # of the file's kind (rad for increments)
+    what = f"{dtype} counts" if dtype.kind in "iu" else "whole-number counts"
     return Finding(
         "note",
         pl.channel,
         0,
-        f"column '{pl.name}' holds {dtype} counts; one count is {fmt(pl.factor)} {si}"
-        f" ([{pl.unit}])",
+        f"column '{pl.name}' holds {what}; one count is {fmt(pl.factor)} {si} ([{pl.unit}])",
     )
 
 
