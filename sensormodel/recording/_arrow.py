@@ -36,6 +36,8 @@ class _ArrowTable(Source):
     """A pyarrow-readable file: schema → names, units, stated settings; loader of columns."""
 
     what = ""
+    #: Writable arrays from ``load`` are the reader's to scale in place (nothing else holds them).
+    hands_over = True
 
     def __init__(self, path: pathlib.Path, src: str) -> None:
         super().__init__(path, src)
@@ -114,15 +116,14 @@ def _numpy(column: Any, pa: Any) -> np.ndarray:
     """A chunked column as a NumPy array: timestamps as int64 ns, missing values as NaN."""
     if pa.types.is_timestamp(column.type):
         column = column.cast(pa.timestamp("ns", tz=column.type.tz)).cast(pa.int64())
-    if column.num_chunks != 1:
-        column = column.combine_chunks()
-    else:
-        column = column.chunk(0)
     if column.null_count:
-        return column.cast(pa.float64()).to_numpy(zero_copy_only=False)
+        column = column.cast(pa.float64())
     if pa.types.is_boolean(column.type):
-        return column.to_numpy(zero_copy_only=False).astype(np.uint8)
-    return column.to_numpy(zero_copy_only=False)
+        return np.asarray(column.to_numpy(), dtype=np.uint8)
+    chunks = [c.to_numpy(zero_copy_only=False) for c in column.chunks]
+    if len(chunks) == 1:
+        return chunks[0]  # a view of pyarrow's memory map where the layout allows
+    return np.concatenate(chunks)  # one copy, ours: the reader may scale it in place
 
 
 class ParquetSource(_ArrowTable):

@@ -304,7 +304,8 @@ def _channels(
         out.findings += found
         if pl.unit is not None and _counts(x0, pl):
             out.findings.append(_count_note(pl, x0.dtype))
-        fresh = x is not x0 and x.flags.writeable  # our own float copy: scale it in place
+        # our own float copy, or a writable array the source hands over: scale it in place
+        fresh = x.flags.writeable and (x is not x0 or getattr(source, "hands_over", False))
         out.data[pl.channel] = _readonly(to_si(x, pl, rate, in_place=fresh))
     return out
 
