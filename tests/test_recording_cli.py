@@ -183,10 +183,10 @@ def test_layout_shows_how_a_file_is_read(runner, sheet, tmp_path) -> None:  # ty
     assert res.exit_code == 0, res.output
     lines = res.stdout.splitlines()
     assert lines[0] == f"{path} (csv): {N} samples at 1 Hz ({N} s)"
-    assert lines[1] == "  time        'ts_ms' [ms], first stamp 0 s"
-    assert "  gyro.z      'gz' [0.01 mdps] → rad/s (angular rate)" in lines
-    assert "  gyro.x      'gx' → 1 (as recorded)" in lines  # no unit given: as recorded
-    assert "  auxiliary   'temp' [degC]" in lines and "  auxiliary   'counter'" in lines
+    assert lines[1] == "  time            'ts_ms' [ms], first stamp 0 s"
+    assert "  gyro.z          'gz' [0.01 mdps] → rad/s (angular rate)" in lines
+    assert "  gyro.x          'gx' → 1 (as recorded)" in lines  # no unit given: as recorded
+    assert "  auxiliary       'temp' [degC]" in lines and "  auxiliary       'counter'" in lines
     assert not (tmp_path / "rig-allan.json").exists()
 
 

@@ -129,20 +129,20 @@ def layout_lines(rec: Recording) -> list[str]:
     ]
     if rec.time_column is not None:
         lines.append(
-            f"  time        {_column_text(rec.time_column, rec.time_unit)}, first "
+            f"  {'time':<15} {_column_text(rec.time_column, rec.time_unit)}, first "
             f"stamp {rec.start_time:.10g} s"
         )
     else:
-        lines.append("  time        none (the rate from the file or --rate)")
+        lines.append("  time            none (the rate from the file or --rate)")
     for cid in rec.channels:
         lines.append(
-            f"  {cid:<11} {_column_text(rec.columns[cid], rec.column_units.get(cid))}"
+            f"  {cid:<15} {_column_text(rec.columns[cid], rec.column_units.get(cid))}"
             f" → {rec.units[cid]} ({rec.quantities[cid].replace('_', ' ')})"
         )
     for name in rec.auxiliary:
-        lines.append(f"  auxiliary   {_column_text(name, rec.auxiliary_units.get(name))}")
+        lines.append(f"  {'auxiliary':<15} {_column_text(name, rec.auxiliary_units.get(name))}")
     for f in rec.findings:
-        lines.append(f"  {f.kind:<11} {f.where + ': ' if f.where else ''}{f.detail}")
+        lines.append(f"  {f.kind:<15} {f.where + ': ' if f.where else ''}{f.detail}")
     return lines
 
 
