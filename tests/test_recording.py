@@ -28,7 +28,7 @@ from sensormodel.recording import open_writer, read_recording
 # Round trips: every writer format reads back without options
 # ---------------------------------------------------------------------------------------------
 
-FORMATS = ["csv", "tsv", "txt", "npy", "npz", "h5", "hdf5"]
+FORMATS = ["csv", "tsv", "txt", "npy", "npz", "h5", "hdf5", "parquet", "feather"]
 
 
 @pytest.mark.parametrize("ext", FORMATS)
@@ -172,10 +172,10 @@ def test_generic_npz_and_hdf5(tmp_path: pathlib.Path) -> None:
         grp.create_dataset("gyro_z", data=g).attrs["unit"] = "deg/h"
         grp.create_dataset("temperature", data=g + 20).attrs["unit"] = "degC"
     r = read_recording(tmp_path / "c.h5")
-    assert r.channels == ("gyro.z", "temperature")
-    assert dict(r.units) == {"gyro.z": "rad/s", "temperature": "degC"}
+    assert r.channels == ("gyro.z",) and dict(r.auxiliary_units) == {"temperature": "degC"}
+    assert dict(r.units) == {"gyro.z": "rad/s"}
     np.testing.assert_allclose(r.data["gyro.z"], g * DEG / HOUR, rtol=1e-15)
-    np.testing.assert_array_equal(r.data["temperature"], g + 20)
+    np.testing.assert_array_equal(r.auxiliary["temperature"], g + 20)
 
 
 def test_hdf5_needs_h5py(tmp_path: pathlib.Path, monkeypatch: pytest.MonkeyPatch) -> None:
@@ -274,8 +274,8 @@ def test_hdf5_needs_h5py(tmp_path: pathlib.Path, monkeypatch: pytest.MonkeyPatch
         (
             csv_text(["0,1", "0.1,2"], "time,gyro_x [deg/s]"),
             {},
-            ": the time column 'time' has no "
-            "unit; expected a unit in the header such as 'time [s]', or --unit time=s",
+            ": the time column 'time' has no unit; expected a unit in the header such as "
+            "'time [ms]', or --time time=UNIT (s, ms, us, ns, iso8601)",
         ),
         (
             csv_text(["0,1", "0.1,2"]),
@@ -287,7 +287,8 @@ def test_hdf5_needs_h5py(tmp_path: pathlib.Path, monkeypatch: pytest.MonkeyPatch
         (
             csv_text(["0,1", "1,2"], "time [s],t [s],gyro_x [deg/s]"),
             {},
-            ": several time columns: 'time', 't'; expected one column named time, t or timestamp",
+            ": several time columns: 'time', 't'; expected one of them named with --time (e.g. "
+            "--time time; the others are kept as auxiliary), or --time none",
         ),
     ],
     ids=[
@@ -319,12 +320,14 @@ def test_bad_input_messages(
 def test_missing_and_unknown_files(tmp_path: pathlib.Path) -> None:
     assert read_error(tmp_path / "none.csv") == (
         f"{tmp_path / 'none.csv'}: no such file; expected an existing recording (a .csv, .tsv, "
-        ".txt, .npy, .npz, .h5 or .hdf5 file)"
+        ".txt, .npy, .npz, .h5, .hdf5, .parquet, .feather, .arrow file, or a ROS bag (.bag, "
+        ".mcap, .db3, or a ROS 2 bag folder))"
     )
     p = write_file(tmp_path, "rec.dat", "x")
     assert read_error(p) == (
-        f"{p}: unknown recording format '.dat'; expected a .csv, .tsv, .txt, .npy, .npz, .h5 or "
-        ".hdf5 file"
+        f"{p}: unknown recording format '.dat'; expected a .csv, .tsv, .txt, .npy, .npz, .h5, "
+        ".hdf5, .parquet, .feather, .arrow file, or a ROS bag (.bag, .mcap, .db3, or a ROS 2 bag "
+        "folder)"
     )
     p = write_file(tmp_path, "bad.npy", "not numpy")
     assert read_error(p).startswith(f"{p}: not a readable .npy file (")

@@ -44,8 +44,6 @@ def test_datasheet_units_in_headers(tmp_path: pathlib.Path) -> None:
         "gyro.z",
         "accelerometer.z",
         "accelerometer.x",
-        "temp",
-        "counter",
     )
     assert r.rate == pytest.approx(100.0, rel=1e-12)  # 10 ms steps
     np.testing.assert_allclose(r.data["gyro.x"], np.array([1, 2, 3]) * DEG, rtol=1e-15)
@@ -58,18 +56,19 @@ def test_datasheet_units_in_headers(tmp_path: pathlib.Path) -> None:
     np.testing.assert_allclose(
         r.data["accelerometer.x"], np.array([1, 6, 6]) * 1e-6 * G_N, rtol=1e-15
     )
-    assert r.units["temp"] == "degC" and r.quantities["temp"] == "as_recorded"
-    assert r.units["counter"] == "1" and r.quantities["counter"] == "as_recorded"
-    np.testing.assert_array_equal(r.data["counter"], [5, 6, 7])
+    # temperature and counter: kept as auxiliary columns, as written, never analysed
+    assert dict(r.auxiliary_units) == {"temp": "degC", "counter": None}
+    np.testing.assert_array_equal(r.auxiliary["temp"], [20, 21, 21])
+    np.testing.assert_array_equal(r.auxiliary["counter"], [5, 6, 7])
     assert dict(r.columns)["accelerometer.z"] == "acc_z"
 
 
 def test_unmapped_column_unit_infers_kind(tmp_path: pathlib.Path) -> None:
-    path = write_file(tmp_path, "u.csv", csv_text(["0,1", "0.5,2"], "time [s],acc_z [mg]"))
+    path = write_file(tmp_path, "u.csv", csv_text(["0,1", "0.5,2"], "time [s],lin_z [mg]"))
     r = read_recording(path)
-    assert r.channels == ("acc_z",)
-    assert r.quantities["acc_z"] == "acceleration" and r.units["acc_z"] == "m/s^2"
-    np.testing.assert_allclose(r.data["acc_z"], [1e-3 * G_N, 2e-3 * G_N], rtol=1e-15)
+    assert r.channels == ("lin_z",)
+    assert r.quantities["lin_z"] == "acceleration" and r.units["lin_z"] == "m/s^2"
+    np.testing.assert_allclose(r.data["lin_z"], [1e-3 * G_N, 2e-3 * G_N], rtol=1e-15)
 
 
 def test_unit_option(tmp_path: pathlib.Path) -> None:
@@ -103,7 +102,11 @@ def test_increments(tmp_path: pathlib.Path) -> None:
     # increment / period = mean rate over the period
     np.testing.assert_allclose(r.data["gyro.x"], np.array([0.01, 0.02]) * DEG * 10.0, rtol=1e-15)
     assert r.units["gyro.x"] == "rad/s" and r.increments
-    assert read_error(path) == (
+    # without the option, angle units can only be increments: read so, noted
+    r = read_recording(path)
+    assert r.increments and r.findings[0].kind == "note" and "increments" in r.findings[0].detail
+    np.testing.assert_allclose(r.data["gyro.x"], np.array([0.01, 0.02]) * DEG * 10.0, rtol=1e-15)
+    assert read_error(path, increments=False) == (
         f"{path}:column 'gyro_x': got 'deg' ([angle]); expected an angular rate such as 'deg/s' "
         "for channel gyro.x (or --increments if the samples are increments per sample)"
     )
@@ -125,7 +128,8 @@ def test_columns_and_channel_map(tmp_path: pathlib.Path) -> None:
     assert r.channels == ("gyro.x", "gyro.y", "accelerometer.x")
     np.testing.assert_allclose(r.data["accelerometer.x"], [3 * G_N, 4 * G_N], rtol=1e-15)
     r = read_recording(path, columns=["temp", "g?"])
-    assert r.channels == ("gx", "temp")
+    assert r.channels == ("gyro.x", "temp")  # selected: analysed, even a temperature
+    assert sorted(r.auxiliary) == ["ax", "gyro_y"]  # the others are kept as auxiliary
     assert read_error(path, columns="acc*") == (
         f"{path}: no column matches 'acc*' in --columns; expected a name or glob matching one "
         "of the columns 'gx', 'gyro_y', 'ax', 'temp'"
@@ -140,16 +144,21 @@ def test_columns_and_channel_map(tmp_path: pathlib.Path) -> None:
     )
     assert read_error(path, channel_map={"gx": "gyro.y"}) == (
         f"{path}: columns 'gx' and 'gyro_y' both map to channel gyro.y; expected one column per "
-        "channel (use --channel or --columns)"
+        "channel (--channel, --columns or --aux to choose)"
     )
 
 
 def test_channel_id_rule() -> None:
-    # DESIGN §10: '.' and '_' interchangeable, case ignored; nothing else guessed
+    # DESIGN §10: '.' and '_' interchangeable, case ignored; and the common spellings of
+    # logger output (common practice): an instrument word, the axis, optionally a unit or raw
     assert rec.channel_id_for("GYRO_X") == "gyro.x"
     assert rec.channel_id_for("Accelerometer.Z") == "accelerometer.z"
-    assert rec.channel_id_for("acc_z") is None
-    assert rec.channel_id_for("gyro_xx") is None
+    for name in ("gx", "GyroX", "wx", "rate_x", "omega_x", "gyr_x", "imu.gyro.x", "gx_raw"):
+        assert rec.channel_id_for(name) == "gyro.x", name
+    for name in ("acc_z", "accel_z", "AccZ", "az", "accelerometer_z", "acc_z_mg", "dv_z"):
+        assert rec.channel_id_for(name) == "accelerometer.z", name
+    for name in ("gyro_xx", "temp", "gyro_temp", "counter", "time", "gyro", "x", "mag_x"):
+        assert rec.channel_id_for(name) is None, name
 
 
 # ---------------------------------------------------------------------------------------------

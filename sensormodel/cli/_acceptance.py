@@ -27,7 +27,7 @@ _ACCEPTANCE_HELP = (
 
 
 @click.command("verify", context_settings=CONTEXT, epilog=_ACCEPTANCE_HELP)
-@click.argument("recording_file", metavar="REC", type=click.Path(dir_okay=False))
+@click.argument("recording_file", metavar="REC", type=click.Path())
 @click.option("--spec", "spec_file", required=True, type=click.Path(dir_okay=False),
               metavar="DATASHEET", help="The datasheet (TOML) the unit is accepted against.")
 @click.option("--against", type=click.Choice(["max", "typ"]), default="max", show_default=True,

@@ -17,7 +17,6 @@ from ..drift import drift, table_times
 from ..errors import AnalysisError
 from ..export import FORMATS, discrete_document, write_discrete
 from ..model import NoiseModel
-from ..recording import read_recording
 from ..report import (
     DRIFT_DISPLAY,
     drift_table,
@@ -29,6 +28,7 @@ from ..report import (
 )
 from ..shaping import DEFAULT_CHANNEL, shape
 from ._app import CONTEXT, force_option, guarded, output_option
+from ._options import RecordingOptions, recording_options
 from ._types import DURATION, RATE, TIME_STEP, FormatList, Orders
 
 __all__ = ["COMMANDS"]
@@ -218,11 +218,12 @@ def drift_command(model_file: str, horizon: float, channels: tuple[str, ...], po
                    "channel, see --channel).")
 @click.option("--add-to", "add_to", type=click.Path(dir_okay=False), default=None,
               help="Add the shaped term to this noise model's channel instead of a new model.")
+@recording_options(skip=("rate", "channel_map"))
 @force_option
 @guarded
 def shape_command(spectrum_file: str, output: str, channel_id: str | None, rate: float | None,
                   orders: tuple[int, int], sided: str, from_recording: bool, add_to: str | None,
-                  force: bool) -> None:
+                  reading: RecordingOptions, force: bool) -> None:
     """Turn a coloured spectrum into a stable shaping filter H(s) and a noise model.
 
     \b
@@ -254,7 +255,7 @@ def shape_command(spectrum_file: str, output: str, channel_id: str | None, rate:
         rate=rate,
         orders=orders,
         sided=sided,
-        recording=read_recording(spectrum_file) if from_recording else None,
+        recording=reading.read(spectrum_file) if from_recording else None,
         add_to=NoiseModel.load(add_to) if add_to else None,
     )
     result.model.save(output, force=force)

@@ -75,7 +75,7 @@ def _allan_provenance(analysis: RecordingAnalysis, gaps: str) -> dict[str, Any]:
 
 
 @click.command("allan", context_settings=CONTEXT)
-@click.argument("recording_file", metavar="REC", type=click.Path(dir_okay=False))
+@click.argument("recording_file", metavar="REC", type=click.Path())
 @recording_options
 @click.option("--taus", type=TauGrid(), default=None, metavar="SPEC",
               help=f"Averaging times: {_TAUS_HELP}.")
@@ -149,7 +149,7 @@ def _fit_channels(analysis: RecordingAnalysis, **options: Any) -> list[Any]:
 
 
 @click.command("identify", context_settings=CONTEXT)
-@click.argument("recording_file", metavar="REC", type=click.Path(dir_okay=False))
+@click.argument("recording_file", metavar="REC", type=click.Path())
 @click.option("-o", "--output", "output", required=True, type=click.Path(dir_okay=False),
               metavar="MODEL.json", help="The noise-model JSON file to write (supported terms, "
               "each with its interval).")

@@ -1,4 +1,5 @@
-"""Recordings: read and write CSV/TSV, NPY, NPZ and HDF5 records; time base, gaps and units.
+"""Recordings: read and write CSV/TSV, NPY, NPZ, HDF5, Parquet and Feather records, read ROS
+bags; time base, gaps and units.
 
 :func:`read_recording` turns a recording file into a :class:`Recording`: one float64 array per
 channel in SI (rad/s, m/s², or the recorded unit when the file gives none), the sample rate, the
@@ -38,12 +39,40 @@ HDF5 (``.h5``, ``.hdf5``; needs the optional ``h5py``: ``pip install sensormodel
     One 1-D dataset per column (nested groups allowed; the last path part is the name), a
     ``unit`` attribute on each, a ``rate`` attribute [Hz] on the file or the datasets.
     Contiguous uncompressed float64 datasets are memory-mapped.
+Parquet (``.parquet``, ``.pq``), Feather / Arrow IPC (``.feather``, ``.arrow``, ``.ipc``)
+    One numeric field per column; its unit in the ``unit`` field metadata or in its name
+    (``gyro_x [deg/s]``); a timestamp field is a time column (epoch nanoseconds); the metadata
+    JSON in the schema metadata key ``sensormodel``, or a ``rate`` key [Hz].
+ROS bags (``.bag`` ROS 1; a ROS 2 bag folder, ``.db3`` or ``.mcap``; needs the optional
+``rosbags``: ``pip install sensormodel[bags]``)
+    One ``sensor_msgs/Imu`` topic (``topic=`` when there are several): ``time`` from the header
+    stamps, ``gyro.x/y/z`` from ``angular_velocity`` [rad/s], ``accelerometer.x/y/z`` from
+    ``linear_acceleration`` [m/s²]. Messages are named by their index (``message 17``).
 
 Channels and units (DESIGN §10)
 -------------------------------
 A column whose name equals a channel id (``gyro.x``, ``gyro_x``, ``GYRO_X``: ``.`` and ``_``
-alike, case ignored) is that channel; ``channel_map={"COLUMN": "gyro.x"}`` maps any other
-(:func:`parse_channel_map` reads it from ``COLUMN=CHANNEL_ID`` option values).
+alike, case ignored) or is one of the common spellings of logger output (an instrument word,
+the axis, optionally a unit or ``raw``: ``gx``, ``GyroX``, ``wx``, ``rate_x``, ``omega_x``,
+``delta_angle_x``; ``accel_x``, ``acc_x``, ``ax``, ``dv_x``; ``gx_raw``, ``acc_z_mg``) is that
+channel; ``channel_map={"COLUMN": "gyro.x"}`` maps any other (:func:`parse_channel_map` reads
+it from ``COLUMN=CHANNEL_ID`` option values).
+
+Analysed columns: those ``columns`` selects and those ``channel_map`` names; by default the
+columns that map to a channel id, or, when none does (``ch0``, ``ch1`` … of a bare array),
+every column that is not auxiliary by its name or unit. Every other column but time is
+**auxiliary**: temperature (``temp``, ``temperature``, a unit ``degC``), status, flags,
+counters, sequence numbers, and whatever ``auxiliary`` names. Auxiliary columns are read and
+kept in ``Recording.auxiliary`` (values × the scale their unit carries, in that unit), never
+checked for problems and never cut by ``gaps``; a text column (a status word) is left unread.
+
+A header field gives its unit in brackets, parentheses or braces (``gyro_x [deg/s]``,
+``GyroX(dps)``), a name may end in one (``acc_z_mg``), ``unit`` gives one for all analysed
+columns without one, or one per column (overriding the file, noted). A unit may carry the
+value of one count: ``8.75 mdps``, ``0.00875 deg/s``, ``0.00875 deg/s/LSB``, ``3.33 mg``,
+``0.1 degC``; integer counts of any width are read exactly (float64 holds every integer up
+to 2**53) and a note gives one count's SI value. When every instrument column's unit is an
+angle or a velocity, the samples are increments (noted).
 Columns that map to no channel keep their name as id. A gyro column's unit must be an angular
 rate (an angle with ``increments``), an accelerometer column's an acceleration (a velocity with
 ``increments``); there ``g``, ``mg``, ``µg`` are standard gravity. An unmapped column's kind is
@@ -53,9 +82,15 @@ label as written (``1`` when there is none), so results stay in that unit.
 
 Time base and problems
 ----------------------
-The rate comes from a time column (``time``, ``t`` or ``timestamp``, with a unit), from the file
-(sidecar, attribute, comment setting) or from ``rate``; two sources must agree within a relative
-1e-6. From a time column the rate is the number of regular steps over their total duration.
+The rate comes from a time column, from the file (sidecar, attribute, comment setting) or from
+``rate``; two sources must agree within a relative 1e-6. The time column is the one column named
+like one (``time``, ``t``, ``ts``, ``timestamp``, ``stamp``, ``epoch`` …, optionally ending in
+its unit: ``time_s``, ``ts_ms``, ``time_us``, ``timestamp_ns``), or the one ``time`` names
+(``time=False``: none). Its unit: the header's, else ``time_unit``, else its name's; ``s``,
+``ms``, ``us``, ``ns``, a tick (``25 us``), ``epoch`` (seconds) or ``iso8601`` (text such as
+``2024-05-01T12:00:00.125Z``, also found from the first row). Integer and epoch stamps are
+taken relative to the first, so their steps stay exact. From a time column the rate is the
+number of regular steps over their total duration.
 Problems are found and reported with their position, never filled or dropped silently:
 
 * ``gap``: a time step larger than 1.5 × the median step;
@@ -100,7 +135,9 @@ Modules
 -------
 Everything but the names below is private to the package: ``_formats`` (the format table,
 stated-rate check), ``_sources`` (NPY, NPZ, HDF5) and ``_csv`` (text layout, the three
-engines) with ``_cache``; ``_columns`` (channel ids, time column, selection, unit plans);
+engines) with ``_cache``; ``_arrow`` (Parquet, Feather); ``_bags`` (ROS bags); ``_stamps``
+(ISO-8601 stamps, text columns); ``_columns`` (channel names, time column, auxiliary columns,
+selection, units with a scale, unit plans);
 ``_timebase`` (time base, findings, fail or split); ``_results`` (:class:`Recording`,
 :class:`Finding`, :class:`Segment`); ``_reader`` (:func:`read_recording`, step by step);
 ``_writers`` (:func:`open_writer`).

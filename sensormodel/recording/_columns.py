@@ -11,8 +11,9 @@ from __future__ import annotations
 
 import contextlib
 import fnmatch
+import math
 import re
-from collections.abc import Mapping, Sequence
+from collections.abc import Collection, Mapping, Sequence
 from dataclasses import dataclass
 
 import numpy as np
@@ -66,13 +67,145 @@ _CHANNEL_MAP_EXAMPLE = "rate_z=gyro.z"
 # ---------------------------------------------------------------------------------------------
 
 
-def channel_id_for(name: str) -> str | None:
-    """The channel id a column name maps to by the naming rule (DESIGN §10), or None.
+def _normal(name: str) -> str:
+    """A column name for the naming rules: lower case, separators (``. - space``) as ``_``."""
+    return re.sub(r"[\s.\-/]+", "_", name.strip().lower()).strip("_")
 
-    ``gyro.x``, ``gyro_x`` and ``GYRO_X`` all give ``gyro.x``; ``acc_z`` gives None.
+
+_AXIS = r"_?(?P<axis>[xyz])"
+# The spellings of each instrument in real logs (common practice), an axis letter after them.
+_GYRO_WORDS = (
+    "gyro|gyr|gyroscope|gyroscopes|g|w|omega|rate|ang_?rate|angular_?rate|angular_?velocity|"
+    "ang_?vel|gyro_?rate|delta_?angle|delta_?theta|dtheta|d_?ang|del_?ang|dangle|theta"
+)
+_ACCEL_WORDS = (
+    "accelerometer|accelerometers|accel|acc|accl|acceleration|a|xl|lin_?acc|"
+    "linear_?acceleration|specific_?force|delta_?velocity|delta_?vel|d_?vel|del_?vel|dv"
+)
+# Name endings after the axis: the unit they state, or None (raw counts, no unit stated).
+_SUFFIX_UNITS: dict[str, str | None] = {
+    "raw": None,
+    "lsb": None,
+    "counts": None,
+    "cnt": None,
+    "adc": None,
+    "dps": "deg/s",
+    "mdps": "mdps",
+    "degs": "deg/s",
+    "deg_s": "deg/s",
+    "rads": "rad/s",
+    "rad_s": "rad/s",
+    "radps": "rad/s",
+    "mg": "mg",
+    "g": "g",
+    "ug": "ug",
+    "mps2": "m/s^2",
+    "ms2": "m/s^2",
+    "m_s2": "m/s^2",
+}
+_SUFFIX = "(?:_(?P<suffix>" + "|".join(sorted(_SUFFIX_UNITS, key=len, reverse=True)) + "))?"
+_PREFIX = r"(?:imu_?)?"
+_ALIAS = {
+    "gyro": re.compile(rf"^{_PREFIX}(?:{_GYRO_WORDS}){_AXIS}{_SUFFIX}$"),
+    "accelerometer": re.compile(rf"^{_PREFIX}(?:{_ACCEL_WORDS}){_AXIS}{_SUFFIX}$"),
+}
+
+
+def channel_alias(name: str) -> tuple[str, str | None] | None:
+    """The channel id a column name maps to by the naming rules, and the unit its name ends in.
+
+    The rules (common practice in logger output): an instrument word, then the axis, then
+    optionally a unit or ``raw``: ``gyro_x``, ``GyroX``, ``gx``, ``wx``, ``rate_x``,
+    ``omega_x``, ``delta_angle_x`` (gyro), ``accel_x``, ``acc_x``, ``ax``, ``dv_x``
+    (accelerometer), ``gx_raw``, ``gyro_x_dps``, ``acc_z_mg``. Returns None for any other name.
+
+    Examples
+    --------
+    >>> channel_alias("GyroX")
+    ('gyro.x', None)
+    >>> channel_alias("acc_z_mg")
+    ('accelerometer.z', 'mg')
     """
-    n = name.strip().lower().replace("_", ".")
-    return n if n in CHANNEL_IDS else None
+    n = _normal(name)
+    for instrument, pattern in _ALIAS.items():
+        m = pattern.match(n)
+        if m is not None:
+            suffix = m.group("suffix")
+            unit = None if suffix is None else _SUFFIX_UNITS[suffix]
+            return f"{instrument}.{m.group('axis')}", unit
+    return None
+
+
+def channel_id_for(name: str) -> str | None:
+    """The channel id a column name maps to by the naming rules (DESIGN §10), or None.
+
+    ``gyro.x``, ``gyro_x``, ``GYRO_X``, ``GyroX``, ``gx``, ``wx`` all give ``gyro.x``;
+    ``accel_x [g]``'s name ``accel_x``, ``acc_x`` and ``ax`` give ``accelerometer.x``
+    (:func:`channel_alias`); ``temp`` gives None.
+    """
+    hit = channel_alias(name)
+    return None if hit is None else hit[0]
+
+
+# Time columns: a time word, optionally after a qualifier and before a unit (common practice).
+_TIME_WORDS = "time|t|ts|timestamp|time_?stamp|stamp|datetime|date_?time|epoch|utc|clock"
+_TIME_UNITS = {
+    "s": "s",
+    "sec": "s",
+    "secs": "s",
+    "seconds": "s",
+    "ms": "ms",
+    "msec": "ms",
+    "millis": "ms",
+    "us": "us",
+    "usec": "us",
+    "micros": "us",
+    "µs": "us",
+    "ns": "ns",
+    "nsec": "ns",
+    "nanos": "ns",
+}
+_TIME_NAME = re.compile(
+    r"^(?:(?:sensor|imu|sample|gps|unix|posix|header|rx|log)_?)?"
+    rf"(?:{_TIME_WORDS})"
+    "(?:_?(?P<unit>" + "|".join(sorted(_TIME_UNITS, key=len, reverse=True)) + "))?$"
+)
+#: Time-unit words meaning ISO-8601 text stamps.
+ISO_UNITS = ("iso", "iso8601", "iso-8601", "datetime", "text")
+
+
+def time_name_unit(name: str) -> tuple[bool, str | None]:
+    """Whether a column name is a time column's, and the unit its name ends in (or None).
+
+    ``time``, ``t``, ``timestamp``, ``ts`` (no unit); ``time_s``, ``ts_ms``, ``time_us``,
+    ``timestamp_ns``, ``t_ms`` (with one).
+    """
+    m = _TIME_NAME.match(_normal(name))
+    if m is None:
+        return False, None
+    u = m.group("unit")
+    return True, None if u is None else _TIME_UNITS[u]
+
+
+# Names of columns kept as auxiliary (common practice): temperature, status, counters.
+_AUX_NAME = re.compile(
+    r"^(?:\w*_)?(?:temp|temperature|tmp|die_?temp|status|stat|flags?|errors?|err|counter|"
+    r"count|cnt|seq|sequence|seq_?no|frame|frame_?id|index|idx|sample|sample_?(?:no|num|"
+    r"count|index|counter)|crc|checksum|valid|mode|sync|pps|voltage|vdd|vcc|supply|id)"
+    r"(?:_\w*)?$"
+)
+# Units of auxiliary quantities: temperature, electric (as written, lower case, no spaces).
+_AUX_UNITS = {"degc", "°c", "c", "celsius", "k", "kelvin", "degf", "°f", "v", "mv", "a", "ma"}
+
+
+def auxiliary_by_rule(name: str, unit: str | None) -> bool:
+    """Whether a column is auxiliary by its name or unit (temperature, status, counter)."""
+    if unit is not None and re.sub(r"\s+", "", unit).lower() in _AUX_UNITS:
+        return True
+    n = _normal(name)
+    if channel_alias(name) is not None or time_name_unit(name)[0]:
+        return False
+    return _AUX_NAME.match(n) is not None or "temp" in n.split("_")
 
 
 def parse_channel_map(pairs: Sequence[str], *, option: str = "--channel") -> dict[str, str]:
@@ -119,13 +252,22 @@ def no_unit(unit: str | None) -> bool:
     return unit is None or unit.strip() in ("", "1", "-")
 
 
+_HEADER_UNIT = re.compile(
+    r"^(?P<name>.*?)\s*(?:\[(?P<b>[^\[\]]*)\]|\((?P<p>[^()]*)\)|\{(?P<c>[^{}]*)\})\s*$"
+)
+
+
 def split_header(text: str) -> tuple[str, str | None]:
-    """``'gyro_x [deg/s]'`` → ``('gyro_x', 'deg/s')``; ``'gyro_x'`` → ``('gyro_x', None)``."""
+    """A header field → (name, unit): the unit in brackets, parentheses or braces at its end.
+
+    ``'gyro_x [deg/s]'``, ``'GyroX(dps)'`` and ``'gyro_x {deg/s}'`` give the name and the
+    unit; ``'gyro_x'`` gives ``('gyro_x', None)``; ``'(deg/s)'`` alone is a name.
+    """
     s = text.strip()
-    m = re.match(r"^(?P<name>.*?)\s*\[(?P<unit>[^\[\]]*)\]\s*$", s)
-    if m is None:
+    m = _HEADER_UNIT.match(s)
+    if m is None or not m.group("name").strip():
         return s, None
-    unit = m.group("unit").strip()
+    unit = next(g for g in (m.group("b"), m.group("p"), m.group("c")) if g is not None).strip()
     return m.group("name").strip(), (None if no_unit(unit) else unit)
 
 
@@ -154,16 +296,55 @@ def _find_column(key: str, names: Sequence[str], what: str, src: str) -> int:
     )
 
 
-def _time_column(names: Sequence[str], src: str) -> int | None:
-    """Index of the time column (by :data:`TIME_COLUMN_NAMES`), None without one."""
-    hits = [i for i, n in enumerate(names) if n.rsplit("/", 1)[-1].lower() in TIME_COLUMN_NAMES]
+def _time_column(
+    names: Sequence[str], time: str | bool | None, src: str
+) -> tuple[int | None, str | None]:
+    """Index of the time column and the unit its name ends in: the column ``time`` names, none
+    (``time=False``), or the one column named like a time column (:func:`time_name_unit`)."""
+    if time is False:
+        return None, None
+    if isinstance(time, str):
+        i = _find_column(time, names, "--time", src)
+        return i, time_name_unit(names[i])[1]
+    hits = [i for i, n in enumerate(names) if time_name_unit(n.rsplit("/", 1)[-1])[0]]
     if len(hits) > 1:
+        listed = ", ".join(f"'{names[i]}'" for i in hits)
         raise RecordingError(
-            "several time columns: " + ", ".join(f"'{names[i]}'" for i in hits),
-            "one column named time, t or timestamp",
+            f"several time columns: {listed}",
+            f"one of them named with --time (e.g. --time {names[hits[0]]}; the others are "
+            "kept as auxiliary), or --time none",
             source=src,
         )
-    return hits[0] if hits else None
+    if not hits:
+        return None, None
+    return hits[0], time_name_unit(names[hits[0]].rsplit("/", 1)[-1])[1]
+
+
+def _globs(
+    patterns: str | Sequence[str], names: Sequence[str], among: Sequence[int], option: str, src: str
+) -> set[int]:
+    """The column indices (of ``among``) that names or globs match; each must match one."""
+    if isinstance(patterns, str):
+        patterns = [p.strip() for p in patterns.split(",") if p.strip()]
+    hit: set[int] = set()
+    for pat in patterns:
+        hits = [
+            i
+            for i in among
+            if fnmatch.fnmatchcase(names[i].lower(), pat.lower())
+            or fnmatch.fnmatchcase(
+                names[i].lower().replace("_", "."), pat.lower().replace("_", ".")
+            )
+        ]
+        if not hits:
+            raise RecordingError(
+                f"no column matches '{pat}' in {option}",
+                "a name or glob matching one of the columns "
+                + ", ".join(f"'{names[i]}'" for i in among),
+                source=src,
+            )
+        hit.update(hits)
+    return hit
 
 
 def _map_channels(
@@ -193,41 +374,38 @@ def _map_channels(
 
 def _select(
     names: Sequence[str],
+    units: Sequence[str | None],
     time_idx: int | None,
     columns: str | Sequence[str] | None,
+    auxiliary: str | Sequence[str] | None,
     mapped: Sequence[int],
     src: str,
-) -> list[int]:
-    """Indices of the data columns to read: all but time, or those ``columns`` match."""
+) -> tuple[list[int], list[int]]:
+    """The analysed columns and the auxiliary ones (every other column but time).
+
+    Analysed: the columns ``columns`` matches and those ``channel_map`` names; without
+    ``columns``, the columns that map to a channel id (by ``channel_map`` or the naming rules),
+    or, when none does, every column that is not auxiliary by its name or unit. ``auxiliary``
+    marks columns auxiliary whatever their name.
+    """
     data_idx = [i for i in range(len(names)) if i != time_idx]
-    if columns is None:
-        chosen = data_idx
+    marked = set() if auxiliary is None else _globs(auxiliary, names, data_idx, "--aux", src)
+    if columns is not None:
+        chosen = _globs(columns, names, data_idx, "--columns", src) | set(mapped)
     else:
-        patterns = (
-            [p.strip() for p in columns.split(",")] if isinstance(columns, str) else list(columns)
-        )
-        hit: set[int] = set(mapped)
-        for pat in patterns:
-            hits = [
-                i
-                for i in data_idx
-                if fnmatch.fnmatchcase(names[i].lower(), pat.lower())
-                or fnmatch.fnmatchcase(
-                    names[i].lower().replace("_", "."), pat.lower().replace("_", ".")
-                )
-            ]
-            if not hits:
-                raise RecordingError(
-                    f"no column matches '{pat}' in --columns",
-                    "a name or glob matching one of the columns "
-                    + ", ".join(f"'{names[i]}'" for i in data_idx),
-                    source=src,
-                )
-            hit.update(hits)
-        chosen = sorted(hit)
+        free = [i for i in data_idx if i not in marked]
+        named = {i for i in free if channel_id_for(names[i]) is not None}
+        if mapped or named:
+            chosen = set(mapped) | named
+        else:
+            chosen = {i for i in free if not auxiliary_by_rule(names[i], units[i])}
     if not chosen:
-        raise RecordingError("no data columns", "at least one column besides time", source=src)
-    return chosen
+        raise RecordingError(
+            "no column to analyse",
+            "a column named like a channel (gyro_x, ax …), --channel COLUMN=ID or --columns",
+            source=src,
+        )
+    return sorted(chosen), [i for i in data_idx if i not in chosen]
 
 
 # ---------------------------------------------------------------------------------------------
@@ -271,21 +449,39 @@ class ColumnPlan:
 
 
 @dataclass(frozen=True)
+class AuxPlan:
+    """How one auxiliary column is kept: its values × ``scale``, in ``unit`` as written."""
+
+    #: The column's position in the file.
+    index: int
+    #: The column's name in the file.
+    name: str
+    #: The unit of the kept values as written (a scale's number taken out), None without one.
+    unit: str | None
+    #: File value × scale = kept value.
+    scale: float
+
+
+@dataclass(frozen=True)
 class UnitPlan:
     """The columns to read and how: the result of :func:`plan_columns`.
 
     Attributes
     ----------
     columns : tuple of ColumnPlan
-        The data columns, in file order.
+        The analysed columns, in file order.
+    auxiliary : tuple of AuxPlan
+        The other columns but time: read and kept, never checked or analysed.
     time_index : int or None
         The time column's position, None without one.
     time_factor : float
-        Time column value × factor = seconds.
+        Time column value × factor = seconds (1 for ISO-8601 text).
+    time_unit : str or None
+        The time column's unit as written; ``"iso8601"`` for text stamps.
     increments : bool
-        The samples are increments (as the option or the file states).
+        The samples are increments (as the option or the file states, or as the units say).
     notes : tuple of Finding
-        ``note`` findings (a unit option overriding the file's).
+        ``note`` findings (a unit option overriding the file's, increments from the units).
     """
 
     columns: tuple[ColumnPlan, ...]
@@ -293,12 +489,21 @@ class UnitPlan:
     time_factor: float
     increments: bool
     notes: tuple[Finding, ...]
+    auxiliary: tuple[AuxPlan, ...] = ()
+    time_unit: str | None = None
+
+    @property
+    def time_iso(self) -> bool:
+        """The time column holds ISO-8601 text (loaded apart from the numeric columns)."""
+        return self.time_unit == "iso8601"
 
     @property
     def wanted(self) -> list[int]:
-        """The column indices to load: the data columns, then the time column."""
-        idx = [c.index for c in self.columns]
-        return idx if self.time_index is None else [*idx, self.time_index]
+        """The numeric column indices to load: analysed, auxiliary, then the time column."""
+        idx = [c.index for c in self.columns] + [a.index for a in self.auxiliary]
+        if self.time_index is None or self.time_iso:
+            return idx
+        return [*idx, self.time_index]
 
 
 def plan_columns(
@@ -311,6 +516,10 @@ def plan_columns(
     columns: str | Sequence[str] | None,
     channel_map: Mapping[str, str] | None,
     src: str,
+    auxiliary: str | Sequence[str] | None = None,
+    time: str | bool | None = None,
+    time_unit: str | None = None,
+    text_stamps: Collection[int] = (),
 ) -> UnitPlan:
     """Find the time column, map and select the data columns, and plan their units.
 
@@ -318,10 +527,13 @@ def plan_columns(
     ----------
     names, header_units : sequence
         The file's column names and the units it gives (None where it gives none).
-    unit, increments, columns, channel_map
+    unit, increments, columns, channel_map, auxiliary, time, time_unit
         The reader's options (:func:`read_recording`).
     file_increments : bool or None
         What the file states about increments, None when it says nothing.
+    text_stamps : collection of int
+        The columns whose first value is an ISO-8601 stamp (a time column among them without a
+        unit is read as ISO-8601 text).
     src : str
         The file, for messages.
 
@@ -329,25 +541,82 @@ def plan_columns(
     -------
     UnitPlan
     """
-    time_idx = _time_column(names, src)
+    _check_unique(names, src)
+    time_idx, name_unit = _time_column(names, time, src)
     mapping = _map_channels(channel_map, names, time_idx, src)
-    selected = _select(names, time_idx, columns, list(mapping), src)
     units, notes = _column_units(names, header_units, unit, time_idx, src)
+    selected, aux = _select(names, units, time_idx, columns, auxiliary, list(mapping), src)
+    if isinstance(unit, str):  # one unit for the analysed columns that give none
+        units = [unit if i in selected and no_unit(u) else u for i, u in enumerate(units)]
+    cids = _channel_ids(names, selected, mapping, src)
     inc = _increments(increments, file_increments, src)
-    plans: list[ColumnPlan] = []
+    if increments is None and file_increments is None and _units_say_increments(cids, units):
+        inc = True
+        notes.append(
+            Finding(
+                "note",
+                None,
+                0,
+                "the units are angles and velocities: the samples are read as increments per "
+                "sample period",
+            )
+        )
+    plans = tuple(_plan_column(i, names[i], cids[i], units[i], inc, src) for i in selected)
+    aux_plans = tuple(_aux_plan(i, names[i], units[i], src) for i in aux)
+    t_unit, t_factor = None, 1.0
+    if time_idx is not None:
+        if time_idx in text_stamps and time_unit is None and no_unit(units[time_idx]):
+            name_unit = "iso8601"
+        t_unit = _time_unit(names[time_idx], units[time_idx], time_unit, name_unit, src)
+        t_factor = 1.0 if t_unit == "iso8601" else _time_factor(names[time_idx], t_unit, src)
+    return UnitPlan(plans, time_idx, t_factor, inc, tuple(notes), aux_plans, t_unit)
+
+
+def _channel_ids(
+    names: Sequence[str], selected: Sequence[int], mapping: Mapping[int, str], src: str
+) -> dict[int, str]:
+    """The channel id of each analysed column: mapped, by the naming rules, else its name."""
+    cids: dict[int, str] = {}
     seen: dict[str, str] = {}
     for i in selected:
         cid = mapping.get(i) or channel_id_for(names[i]) or names[i]
         if cid in seen:
             raise RecordingError(
                 f"columns '{seen[cid]}' and '{names[i]}' both map to channel {cid}",
-                "one column per channel (use --channel or --columns)",
+                "one column per channel (--channel, --columns or --aux to choose)",
                 source=src,
             )
         seen[cid] = names[i]
-        plans.append(_plan_column(i, names[i], cid, units[i], inc, src))
-    time_factor = 1.0 if time_idx is None else _time_factor(names[time_idx], units[time_idx], src)
-    return UnitPlan(tuple(plans), time_idx, time_factor, inc, tuple(notes))
+        cids[i] = cid
+    return cids
+
+
+def _check_unique(names: Sequence[str], src: str) -> None:
+    """Refuse a file that names a column twice (which one would be meant?)."""
+    seen: set[str] = set()
+    for n in names:
+        if n in seen:
+            raise RecordingError(
+                f"the column name '{n}' appears {list(names).count(n)} times",
+                "unique column names",
+                source=src,
+                field=f"column '{n}'",
+            )
+        seen.add(n)
+
+
+def _units_say_increments(cids: Mapping[int, str], units: Sequence[str | None]) -> bool:
+    """Whether every instrument column has a unit, each an angle (gyro) or a velocity
+    (accelerometer): then the samples can only be increments."""
+    inst = {i: c.split(".", 1)[0] for i, c in cids.items() if c in CHANNEL_IDS}
+    if not inst or any(no_unit(units[i]) for i in inst):
+        return False
+    for i, instrument in inst.items():
+        try:
+            unit_factor(str(units[i]), _INCREMENT_OF[INSTRUMENT_KIND[instrument]])
+        except RecordingError:
+            return False
+    return True
 
 
 def _increments(option: bool | None, stated: bool | None, src: str) -> bool:
@@ -357,24 +626,119 @@ def _increments(option: bool | None, stated: bool | None, src: str) -> bool:
     if stated is not None and bool(option) != stated:
         raise RecordingError(
             f"the file says its samples are {'increments' if stated else 'rates'}",
-            f"{'--increments' if stated else 'no --increments'} as the file states",
+            f"{'--increments' if stated else '--rates'} as the file states",
             source=src,
         )
     return bool(option)
 
 
-def _time_factor(name: str, unit: str | None, src: str) -> float:
-    """The factor from the time column's unit to seconds; the column must have a unit."""
-    if unit is None or no_unit(unit):
-        raise RecordingError(
-            f"the time column '{name}' has no unit",
-            f"a unit in the header such as '{name} [s]', or --unit {name}=s",
+def _time_unit(
+    name: str, column_unit: str | None, option: str | None, name_unit: str | None, src: str
+) -> str:
+    """The time column's unit: the file's (or ``--unit COLUMN=U``), else ``--time``'s, else the
+    one its name ends in; ``iso8601`` for text stamps; epoch words mean seconds."""
+    for u in (column_unit, option, name_unit):
+        if not no_unit(u):
+            text = str(u).strip()
+            if text.lower() in ISO_UNITS:
+                return "iso8601"
+            m = re.match(r"^(?:epoch|unix|posix)[\s_]*(?P<rest>.*)$", text, re.IGNORECASE)
+            if m is not None:
+                return m.group("rest").strip() or "s"
+            return text
+    raise RecordingError(
+        f"the time column '{name}' has no unit",
+        f"a unit in the header such as '{name} [ms]', or --time {name}=UNIT (s, ms, us, ns, "
+        "iso8601)",
+        source=src,
+    )
+
+
+def _time_factor(name: str, unit: str, src: str) -> float:
+    """The factor from the time column's unit (may carry a tick's value: '25 us') to seconds."""
+    return unit_factor(unit, "time", field=f"column '{name}'", src=src)
+
+
+# A per-count ending of a unit ("deg/s/LSB", "mg per count"): the unit is one count's value.
+_PER_COUNT = re.compile(
+    r"\s*(?:/|\bper\s+)\s*(?:lsb|counts?|cnts?|digits?|bits?|codes?)\s*$", re.IGNORECASE
+)
+# Units that say "raw counts, no physical unit".
+_COUNT_WORDS = {"lsb", "count", "counts", "cnt", "digits", "raw", "adc"}
+# A number at the start of a unit (its scale): "8.75 mdps", "0.00875 deg/s", "1e-3 g".
+_SCALE = re.compile(
+    r"^\s*(?P<num>[+-]?(?:\d+(?:\.\d*)?|\.\d+)(?:[eE][+-]?\d+)?)(?=\s*[A-Za-zµ°%(])"
+)
+
+
+class _ScaleError(RecordingError):
+    """A unit's scale (the value of one count) that cannot be used."""
+
+
+def split_scale(text: str) -> tuple[float | None, str, bool]:
+    """A unit that may carry a scale → (the number or None, the unit, whether it ends per count).
+
+    ``"8.75 mdps"`` → ``(8.75, "mdps", False)``; ``"0.00875 deg/s/LSB"`` →
+    ``(0.00875, "deg/s", True)``; ``"deg/s"`` → ``(None, "deg/s", False)``.
+    """
+    t = text.strip()
+    per_count = _PER_COUNT.search(t) is not None
+    t = _PER_COUNT.sub("", t)
+    m = _SCALE.match(t)
+    if m is None:
+        return None, t, per_count
+    return float(m.group("num")), t[m.end() :].strip(), per_count
+
+
+def unit_factor(text: str, kind: str, *, field: str | None = None, src: str | None = None) -> float:
+    """Value in ``text`` × factor = SI value of ``kind``. The unit may carry the value of one
+    count: ``"8.75 mdps"``, ``"0.00875 deg/s/LSB"``, ``"3.33 mg"``, ``"25 us"`` (a tick).
+
+    The unit itself is read by :func:`sensormodel.quantities.parse_unit_factor`.
+
+    Raises
+    ------
+    RecordingError
+        A unit that is not of ``kind``, a scale that is zero or not finite, or a per-count
+        unit without its number, naming ``src`` and ``field``.
+    """
+    number, unit, per_count = split_scale(text)
+    if number is None and per_count:
+        raise _ScaleError(
+            f"the unit '{text}' gives no value of one count",
+            f"the value of one count with its unit, e.g. '0.00875 {unit or 'deg/s'}/LSB'",
             source=src,
+            field=field,
+        )
+    if number is not None and not (math.isfinite(number) and number != 0.0):
+        raise _ScaleError(
+            f"the scale in '{text}' is {number:g}",
+            "a finite, non-zero value of one count, e.g. '8.75 mdps'",
+            source=src,
+            field=field,
         )
     try:
-        return parse_unit_factor(unit, "time", field=f"column '{name}'", source=src)
+        factor = parse_unit_factor(unit, kind, field=field, source=src)
     except UnitError as exc:
-        raise RecordingError(exc.problem, exc.expected, source=src, field=exc.field) from None
+        raise RecordingError(exc.problem, exc.expected, source=src, field=field) from None
+    return factor if number is None else number * factor
+
+
+def _aux_plan(index: int, name: str, unit: str | None, src: str) -> AuxPlan:
+    """An auxiliary column: kept in its unit, times the scale its unit carries."""
+    if no_unit(unit) or str(unit).strip().lower() in _COUNT_WORDS:
+        return AuxPlan(index, name, None if no_unit(unit) else unit, 1.0)
+    number, rest, _ = split_scale(str(unit))
+    if number is None:
+        return AuxPlan(index, name, unit, 1.0)
+    if not math.isfinite(number) or number == 0.0:
+        raise RecordingError(
+            f"the scale in '{unit}' is {number:g}",
+            "a finite, non-zero value of one count, e.g. '0.1 degC'",
+            source=src,
+            field=f"column '{name}'",
+        )
+    return AuxPlan(index, name, rest or None, number)
 
 
 def _plan_column(
@@ -383,20 +747,24 @@ def _plan_column(
     """The plan of one column: a channel's kind from its instrument, else from the unit."""
     field = f"column '{name}'"
     instrument = channel.split(".", 1)[0] if channel in CHANNEL_IDS else None
-    if unit is None or no_unit(unit):
+    if unit is None or no_unit(unit) or unit.strip().lower() in _COUNT_WORDS:
         return ColumnPlan(index, name, channel, None, "as_recorded", 1.0, increments)
     if instrument is not None:
         rate_kind = INSTRUMENT_KIND[instrument]
         kind = _INCREMENT_OF[rate_kind] if increments else rate_kind
         try:
-            factor = parse_unit_factor(unit, kind, field=field, source=src)
-        except UnitError as exc:
+            factor = unit_factor(unit, kind, field=field, src=src)
+        except _ScaleError as exc:
+            raise RecordingError(
+                exc.problem, f"{exc.expected} for channel {channel}", source=src, field=field
+            ) from None
+        except RecordingError as exc:
             expected = f"{_KIND_WHAT[kind]} for channel {channel}"
             other = rate_kind if increments else _INCREMENT_OF[rate_kind]
-            with contextlib.suppress(UnitError):
-                parse_unit_factor(unit, other)
+            with contextlib.suppress(RecordingError):
+                unit_factor(unit, other)
                 expected += (
-                    " (leave out --increments if the samples are rates)"
+                    " (or --rates if the samples are rates)"
                     if increments
                     else " (or --increments if the samples are increments per sample)"
                 )
@@ -404,11 +772,14 @@ def _plan_column(
         return ColumnPlan(index, name, channel, unit, kind, factor, increments)
     for kind in _INFER_KINDS:
         try:
-            factor = parse_unit_factor(unit, kind)
-        except UnitError:
+            factor = unit_factor(unit, kind)
+        except RecordingError:
             continue
         per_sample = increments and kind in _RATE_OF
         return ColumnPlan(index, name, channel, unit, kind, factor, per_sample)
+    number, rest, _ = split_scale(unit)
+    if number is not None and rest:  # a scaled unit of another quantity, e.g. '0.5 V'
+        return ColumnPlan(index, name, channel, rest, "as_recorded", number, False)
     return ColumnPlan(index, name, channel, unit, "as_recorded", 1.0, False)
 
 
@@ -419,15 +790,17 @@ def _column_units(
     time_idx: int | None,
     src: str,
 ) -> tuple[list[str | None], list[Finding]]:
-    """Each column's unit: the file's, filled (one unit) or overridden (per column, noted)."""
+    """Each column's unit: the file's, else the one its name ends in (``acc_z_mg``);
+    overridden per column by ``unit`` (noted). One unit for all is applied by the caller to
+    the analysed columns only."""
     units = list(header_units)
+    for i, n in enumerate(names):
+        if i != time_idx and no_unit(units[i]):
+            alias = channel_alias(n)
+            if alias is not None and alias[1] is not None:
+                units[i] = alias[1]
     notes: list[Finding] = []
-    if unit is None:
-        return units, notes
-    if isinstance(unit, str):
-        for i in range(len(names)):
-            if i != time_idx and no_unit(units[i]):
-                units[i] = unit
+    if unit is None or isinstance(unit, str):
         return units, notes
     for key, u in unit.items():
         i = _find_column(key, names, "--unit", src)
@@ -444,10 +817,13 @@ def _column_units(
     return units, notes
 
 
-def to_si(x: np.ndarray, plan: ColumnPlan, rate: float) -> np.ndarray:
-    """A column's values in SI (float64; ``x`` itself when nothing changes)."""
+def to_si(x: np.ndarray, plan: ColumnPlan, rate: float, *, in_place: bool = False) -> np.ndarray:
+    """A column's values in SI (float64; ``x`` itself when nothing changes; scaled in place
+    when ``in_place`` and ``x`` is float64)."""
     factor = plan.factor * (rate if plan.per_sample else 1.0)
     if factor != 1.0:
+        if in_place and x.dtype == np.float64:
+            return np.multiply(x, factor, out=x)
         return np.multiply(x, factor, dtype=np.float64)
     if x.dtype != np.float64:
         return x.astype(np.float64)

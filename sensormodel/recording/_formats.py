@@ -36,11 +36,22 @@ SUFFIXES = {
     ".npz": "npz",
     ".h5": "hdf5",
     ".hdf5": "hdf5",
+    ".parquet": "parquet",
+    ".pq": "parquet",
+    ".feather": "arrow",
+    ".arrow": "arrow",
+    ".ipc": "arrow",
+    ".bag": "bag",
+    ".mcap": "bag",
+    ".db3": "bag",
 }
 #: The ``schema`` value of sensormodel's recording metadata (sidecar, NPZ entry, HDF5 attribute).
 SCHEMA = "sensormodel/recording/1"
 #: The accepted formats, as error messages name them.
-FORMATS_TEXT = "a .csv, .tsv, .txt, .npy, .npz, .h5 or .hdf5 file"
+FORMATS_TEXT = (
+    "a .csv, .tsv, .txt, .npy, .npz, .h5, .hdf5, .parquet, .feather, .arrow file, or a ROS "
+    "bag (.bag, .mcap, .db3, or a ROS 2 bag folder)"
+)
 #: Relative tolerance within which two rates (time column, file, option) must agree.
 RATE_RTOL = 1e-6
 

@@ -7,7 +7,9 @@ not read files or analyse.
 from __future__ import annotations
 
 from collections.abc import Mapping
-from dataclasses import dataclass
+from dataclasses import dataclass, field
+from types import MappingProxyType
+from typing import Any
 
 import numpy as np
 import numpy.typing as npt
@@ -21,6 +23,10 @@ __all__ = ["Finding", "Segment", "Recording", "FATAL_KINDS", "MAX_FINDINGS"]
 FATAL_KINDS = ("non_finite", "non_monotonic", "duplicate_time", "gap", "saturated", "constant")
 #: Findings listed per kind and channel; one more stands for all the rest.
 MAX_FINDINGS = 1000
+
+
+def _empty() -> Mapping[str, Any]:
+    return MappingProxyType({})
 
 
 @dataclass(frozen=True)
@@ -120,6 +126,19 @@ class Recording:
         recording; with ``gaps="split"`` the stretches between problems.
     time : ndarray or None
         The time column [s], when the file has one.
+    auxiliary : mapping of str to ndarray
+        The columns kept but not analysed (temperature, status, counters …), by column name:
+        float64, read-only, every sample as read, in ``auxiliary_units`` (the file's unit, a
+        scale it carries applied). Never checked, never cut by the gap policy.
+    auxiliary_units : mapping of str to str or None
+        The unit of each auxiliary column as written (None when the file gives none).
+    column_units : mapping of str to str or None
+        Per channel, the unit of its column as written in the file or given as an option
+        (``8.75 mdps``, ``deg/s``), None without one.
+    time_column : str or None
+        The name of the time column, None without one.
+    time_unit : str or None
+        Its unit as read (``s``, ``ms``, ``25 us``, ``iso8601``).
     """
 
     source: str
@@ -135,6 +154,11 @@ class Recording:
     findings: tuple[Finding, ...]
     segments: Mapping[str, tuple[Segment, ...]]
     time: npt.NDArray[np.float64] | None = None
+    auxiliary: Mapping[str, npt.NDArray[np.float64]] = field(default_factory=_empty)
+    auxiliary_units: Mapping[str, str | None] = field(default_factory=_empty)
+    column_units: Mapping[str, str | None] = field(default_factory=_empty)
+    time_column: str | None = None
+    time_unit: str | None = None
 
     @property
     def n_samples(self) -> int:

@@ -96,10 +96,13 @@ def _mask(n: int, starts: np.ndarray, lengths: np.ndarray) -> np.ndarray:
 
 
 def time_base(
-    t: np.ndarray, where: Callable[[int, int], str]
+    t: np.ndarray, where: Callable[[int, int], str], *, offset: float = 0.0
 ) -> tuple[list[Finding], float | None, np.ndarray]:
     """Findings of the time column, the rate from its regular steps, and the break mask
-    (True where a sample does not follow its predecessor by a regular step)."""
+    (True where a sample does not follow its predecessor by a regular step).
+
+    ``t`` is in seconds, relative to ``offset`` [s] (messages show ``t + offset``), so that
+    the steps of epoch stamps are not rounded to the resolution of their size."""
     n = len(t)
     findings: list[Finding] = []
     fin = np.isfinite(t)
@@ -123,11 +126,11 @@ def time_base(
     gap = okdt & (dt > GAP_FACTOR * med)
 
     def backwards(i: int, ln: int) -> str:
-        text = f"time goes backwards, from {fmt(t[i - 1])} s to {fmt(t[i])} s"
+        text = f"time goes backwards, from {fmt(t[i - 1] + offset)} s to {fmt(t[i] + offset)} s"
         return text + (f" (in {ln} consecutive steps)" if ln > 1 else "")
 
     def repeated(i: int, ln: int) -> str:
-        text = f"time {fmt(t[i])} s repeats the previous sample's"
+        text = f"time {fmt(t[i] + offset)} s repeats the previous sample's"
         return text + (f" ({ln + 1} samples share it)" if ln > 1 else "")
 
     def gapped(i: int, ln: int) -> str:

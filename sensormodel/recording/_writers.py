@@ -468,6 +468,64 @@ class _Hdf5Writer(RecordingWriter):
         self._drop()
 
 
+class _ColumnarWriter(RecordingWriter):
+    """Parquet or Feather/Arrow IPC through pyarrow: one float64 field per column with its
+    ``unit`` field metadata, the sensormodel metadata in the schema's ``sensormodel`` key; one
+    row group / record batch per written block."""
+
+    def _schema(self) -> Any:
+        import pyarrow as pa
+
+        meta = self._meta()
+        fields = [
+            pa.field(c["name"], pa.float64(), metadata={"unit": c["unit"]}) for c in meta["columns"]
+        ]
+        return pa.schema(fields, metadata={"sensormodel": json.dumps(meta)})
+
+    def _new(self, tmp: Any, schema: Any) -> Any:
+        raise NotImplementedError
+
+    def _open(self) -> None:
+        self._tmp = self._enter(atomic_path(self.path, force=self.force))
+        with self._removing_on_error():
+            self._schema_ = self._schema()
+            self._out = self._new(self._tmp, self._schema_)
+
+    def _write(self, t: np.ndarray | None, values: np.ndarray) -> None:
+        import pyarrow as pa
+
+        cols = ([t] if t is not None else []) + [np.ascontiguousarray(c) for c in values.T]
+        self._out.write_table(pa.Table.from_arrays(cols, schema=self._schema_))
+
+    def _finish(self) -> None:
+        with self._removing_on_error():
+            self._out.close()
+        self._leave()
+
+    def _discard(self) -> None:
+        with contextlib.suppress(Exception):
+            self._out.close()
+        self._drop()
+
+
+class _ParquetWriter(_ColumnarWriter):
+    format = "parquet"
+
+    def _new(self, tmp: Any, schema: Any) -> Any:
+        import pyarrow.parquet as pq
+
+        return pq.ParquetWriter(str(tmp), schema)
+
+
+class _ArrowWriter(_ColumnarWriter):
+    format = "arrow"
+
+    def _new(self, tmp: Any, schema: Any) -> Any:
+        import pyarrow as pa
+
+        return pa.ipc.new_file(str(tmp), schema)
+
+
 def open_writer(
     path: str | os.PathLike[str],
     channels: Sequence[str],
@@ -486,7 +544,8 @@ def open_writer(
     ----------
     path : path-like
         ``.csv``/``.txt`` (commas), ``.tsv`` (tabs), ``.npy`` (2-D array plus the
-        ``<name>.npy.json`` sidecar), ``.npz`` or ``.h5``/``.hdf5`` (needs h5py).
+        ``<name>.npy.json`` sidecar), ``.npz``, ``.h5``/``.hdf5`` (needs h5py), ``.parquet``
+        / ``.pq`` or ``.feather`` / ``.arrow`` / ``.ipc`` (pyarrow). ROS bags are read only.
     channels : sequence of str
         Channel ids, one per block column (``gyro.x`` … or any name, then as recorded).
     units : str, sequence, mapping or None
@@ -529,7 +588,14 @@ def open_writer(
     0.02,1
     """
     target = pathlib.Path(path)
-    cls = _WRITERS[format_of(target, str(path))]
+    fmt_name = format_of(target, str(path))
+    if fmt_name not in _WRITERS:
+        raise RecordingError(
+            f"sensormodel does not write .{fmt_name} recordings",
+            "a .csv, .tsv, .txt, .npy, .npz, .h5, .hdf5, .parquet, .feather or .arrow file name",
+            source=str(path),
+        )
+    cls = _WRITERS[fmt_name]
     layout = _Layout.build(
         str(path), channels, units, rate, increments, time_column, start_time, n_samples
     )
@@ -541,4 +607,6 @@ _WRITERS: dict[str, type[RecordingWriter]] = {
     "npy": _NpyWriter,
     "npz": _NpzWriter,
     "hdf5": _Hdf5Writer,
+    "parquet": _ParquetWriter,
+    "arrow": _ArrowWriter,
 }
