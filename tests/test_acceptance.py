@@ -9,6 +9,7 @@ the whole chain (simulate -> Allan deviation -> identify -> verdict) by seeded s
 from __future__ import annotations
 
 import math
+from dataclasses import replace
 from types import SimpleNamespace
 
 import numpy as np
@@ -670,6 +671,25 @@ def test_verify_recording_notes_as_reason_codes(write_datasheet, tmp_path) -> No
     assert "note: not in the recording, not verified: gyro.y" in text
     assert "note: in the recording but not on the datasheet, ignored: gyro.x" in text
     assert "gyro.z: the recording has 2 clean segments; the longest (600 s of" in text
+    # the missing channel's limits were not checked: even with every checked term passing, the
+    # overall verdict is inconclusive (exit 3), never pass
+    assert codes["limits_not_checked"] == {
+        "terms": ("gyro.y angle_random_walk", "gyro.y bias_instability")
+    }
+    assert "not checked (channel missing from the recording): gyro.y angle_random_walk" in text
+    passed = replace(
+        rep,
+        channels=tuple(
+            replace(c, terms=tuple(replace(t, verdict="pass") for t in c.terms))
+            for c in rep.channels
+        ),
+    )
+    assert passed.overall == "inconclusive" and passed.exit_code == 3
+    checked = replace(passed, notes=tuple(n for n in passed.notes if n[0] != "limits_not_checked"))
+    assert checked.overall == "pass" and checked.exit_code == 0
+    # channels left out on purpose are not "not checked": the report names those verified
+    only = acc.verify(rec, path, n_boot=41, seed=1, channels=["gyro.z"])
+    assert "limits_not_checked" not in dict(only.notes)
 
 
 _GM_LONG_SHEET = """

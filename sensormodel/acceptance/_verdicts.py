@@ -39,6 +39,11 @@ DEFAULT_CONFIDENCE = DECISION_CONFIDENCE
 DEFAULT_PRECISION = 0.25
 
 
+#: Report notes that mean a datasheet limit was not checked: the overall verdict is then at
+#: best ``inconclusive`` (a verdict is never better than what was checked).
+UNCHECKED = frozenset({"limits_not_checked"})
+
+
 def _verdict(failed: bool, passed: bool) -> str:
     """The one ranking of the three verdicts: ``fail`` outranks ``pass``; neither is
     ``inconclusive``."""
@@ -226,7 +231,7 @@ class VerdictReport:
         ``file``, ``duration`` [s], ``sample_rate`` [Hz], ``samples``.
     notes : tuple of (str, dict)
         Reason codes with their values: ``channels_missing`` / ``channels_extra``
-        (``channels``), ``segments_left_out`` (``channel``, ``segments``, ``duration``,
+        (``channels``), ``limits_not_checked`` (``terms``: the limits of missing channels), ``segments_left_out`` (``channel``, ``segments``, ``duration``,
         ``recording_duration``), ``note`` (``text``, a caller's own remark).
     """
 
@@ -240,8 +245,12 @@ class VerdictReport:
 
     @property
     def overall(self) -> str:
-        """``fail`` if any term fails, ``pass`` if all pass, else ``inconclusive``."""
-        return combine([t.verdict for c in self.channels for t in c.terms])
+        """``fail`` if any term fails, ``pass`` if all pass and every limit of the datasheet was
+        checked (no note :data:`UNCHECKED`), else ``inconclusive``."""
+        verdict = combine([t.verdict for c in self.channels for t in c.terms])
+        if verdict == "pass" and any(code in UNCHECKED for code, _ in self.notes):
+            return "inconclusive"
+        return verdict
 
     @property
     def exit_code(self) -> int:

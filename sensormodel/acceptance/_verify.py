@@ -410,6 +410,7 @@ def verify(
             "samples": int(source.n_samples),
         }
     order, notes = _channel_order(specs, available, channels, rec_info.get("file"))
+    notes += _limits_not_checked(specs, available, channels, against)
     if isinstance(source, Mapping):
         jobs, longest = _curve_jobs(source, available, order, specs, duration)
         rec_info["duration"] = longest or None
@@ -477,6 +478,27 @@ def _channel_order(
     if extra:
         notes.append(("channels_extra", {"channels": tuple(extra)}))
     return order, notes
+
+
+def _limits_not_checked(
+    specs: Mapping[str, AxisSpec],
+    available: Mapping[str, str],
+    channels: Sequence[str] | None,
+    against: str,
+) -> Reasons:
+    """The datasheet limits of the channels missing from the recording (reason
+    ``limits_not_checked``): a limit that was not checked keeps the overall verdict from
+    ``pass`` (:attr:`VerdictReport.overall`). Channels left out on purpose (``channels``) are
+    not counted: the report names the channels verified."""
+    if channels:
+        return []
+    unchecked = [
+        f"{lim.channel} {lim.key}"
+        for key, ax in specs.items()
+        if key not in available
+        for lim in spec_limits(ax, against=against)[0]
+    ]
+    return [("limits_not_checked", {"terms": tuple(unchecked)})] if unchecked else []
 
 
 def _curve_jobs(
