@@ -251,7 +251,14 @@ def verdict_allan_figure(verdict: Any, *, display: tuple[str, float] | None = No
     if fitted is not None:
         ax.loglog(t_fine, np.asarray(fitted(t_fine)) * factor, "k-", lw=1.6, label="fitted model")
     limit = verdict.limit_channel.allan_deviation(t_fine) * factor
-    ax.loglog(t_fine, limit, "--", color="tab:red", lw=1.8, label="datasheet limit")
+    # judged where the nearest measured τ (in log τ) is judged; elsewhere a reference only
+    nearest = np.abs(np.log(t_fine)[:, None] - np.log(tau)[None, :]).argmin(axis=1)
+    judged = check.judged[nearest]
+    ax.loglog(t_fine, np.where(judged, limit, np.nan), "--", color="tab:red", lw=1.8,
+              label="datasheet limit")
+    if not np.all(judged):
+        ax.loglog(t_fine, np.where(judged, np.nan, limit), ":", color="0.45", lw=1.6,
+                  label="datasheet curve at typ values (reference, not a limit)")
     for k, (t0, t1) in enumerate(check.exceeded):
         lo, hi = t0 / 1.15, t1 * 1.15
         ax.axvspan(lo, hi, color="tab:red", alpha=0.12, lw=0,

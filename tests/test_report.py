@@ -317,6 +317,7 @@ def test_reason_codes_become_the_sentences_of_the_reports():
         "n_records": 59,
         "skip_margin": 2.0,
         "channels": ("gyro.x", "gyro.y"),
+        "terms": ("gyro.y angle_random_walk", "gyro.y bias_instability"),
         "channel": "gyro.z",
         "segments": 3,
         "duration": 1234.5678,

@@ -25,7 +25,16 @@ from ..confidence import allan_edf, dof_for_precision, dof_from_interval, requir
 from ..datasheet import AxisSpec, Datasheet, load_datasheet
 from ..errors import AnalysisError, DatasheetError
 from ..quantities import INSTRUMENT_KIND, SI_LABEL
-from ._limits import SpecLimit, _fit_reading, fit_terms, limit_channel, output_filter, spec_limits
+from ._limits import (
+    UNLIMITED_SHARE_MAX,
+    SpecLimit,
+    _fit_reading,
+    fit_terms,
+    limit_channel,
+    limited_share,
+    output_filter,
+    spec_limits,
+)
 from ._plan import _term_curves, reading_tau
 from ._verdicts import (
     DEFAULT_CONFIDENCE,
@@ -125,7 +134,14 @@ def verify_curve(
         for index, spec in enumerate(limits)
     ]
     lim_ch = limit_channel(ax, rate=rate, against=against)
-    check = curve_check(curve, lim_ch.allan_deviation(np.asarray(curve.tau)), confidence=confidence)
+    tau = np.asarray(curve.tau)
+    share = limited_share(ax, tau, rate=rate, against=against)
+    check = curve_check(
+        curve,
+        lim_ch.allan_deviation(tau),
+        confidence=confidence,
+        checked=share >= 1.0 - UNLIMITED_SHARE_MAX,
+    )
     return ChannelVerdict(
         id=ax.channel_id,
         unit=SI_LABEL[INSTRUMENT_KIND[ax.instrument]],
