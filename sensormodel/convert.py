@@ -34,7 +34,14 @@ import os
 import pathlib
 
 from ._version import __version__
-from .datasheet import FIELDS, AxisSpec, Datasheet, load_datasheet
+from .datasheet import (
+    FIELDS,
+    AxisSpec,
+    Datasheet,
+    density_scale,
+    load_datasheet,
+    typed_as_density,
+)
 from .errors import DatasheetError
 from .model import Channel, NoiseModel
 from .quantities import INSTRUMENT_KIND, SI_LABEL
@@ -92,11 +99,17 @@ def _white_term(ax: AxisSpec, column: _Column) -> White | None:
         n, meta = column.pick(walk)
     elif "noise_density" in values:
         n, meta = column.pick("noise_density")
-        if ax.conventions["density_is"] == "one-sided":
-            n /= math.sqrt(2.0)
-            meta["datasheet"]["convention"] = "one-sided"
     else:
         return None
+    # density_is applies to a value typed as a density, whichever key holds it; the model's
+    # provenance says what was applied
+    scale = density_scale(meta["datasheet"]["text"], ax.conventions)
+    n *= scale
+    meta["datasheet"]["convention"] = (
+        ("one-sided" if scale != 1.0 else "two-sided")
+        if typed_as_density(meta["datasheet"]["text"])
+        else "random-walk coefficient"
+    )
     band = values["bandwidth"].pick("typ")[0] if "bandwidth" in values else None
     order = (ax.filter_order or 1) if band is not None else None
     if band is not None:
