@@ -10,7 +10,13 @@ import click
 from .._io import check_writable
 from ..acceptance import plan, verify
 from ..datasheet import load_datasheet
-from ..report import plan_text, verdict_text, write_verdict_html, write_verdict_json
+from ..report import (
+    check_verdict_html,
+    plan_text,
+    verdict_text,
+    write_verdict_html,
+    write_verdict_json,
+)
 from ._app import CONTEXT, force_option, guarded, output_option, status
 from ._options import RecordingOptions, recording_options
 from ._types import RATE, Fraction, Probability
@@ -66,10 +72,13 @@ def verify_command(recording_file: str, spec_file: str, against: str, confidence
       sensormodel verify unit42.npy --spec examples/bw-t900.toml --report unit42.html \\
           --json unit42.json
     """
-    for path in (report_file, json_file):
-        if path:
-            check_writable(path, force=force)
+    # every output checked before any work (the figures too: named after the channels)
     datasheet = load_datasheet(spec_file)
+    if json_file:
+        check_writable(json_file, force=force)
+    if report_file:
+        check_verdict_html(report_file, [ax.channel_id for ax in datasheet.channels()],
+                           force=force)
     recording = reading.read(recording_file)
     result = verify(recording, datasheet, confidence=confidence, against=against, power=power,
                     channels=list(only) or None, seed=seed, n_boot=n_boot, workers=2,

@@ -10,7 +10,7 @@ and command summaries), ``_verdict`` (the verdict document, its JSON and termina
 recording plan), ``_html`` (the self-contained HTML report and its figures).
 """
 
-from ._html import verdict_figures, verdict_html, write_verdict_html
+from ._html import check_verdict_html, verdict_figures, verdict_html, write_verdict_html
 from ._reasons import REASONS, reason_text, term_note
 from ._text import (
     TermRow,
@@ -77,5 +77,6 @@ __all__ = [
     "verdict_html",
     "verdict_text",
     "write_verdict_html",
+    "check_verdict_html",
     "write_verdict_json",
 ]
