@@ -8,7 +8,7 @@ import stat
 import pytest
 
 from sensormodel._io import atomic_path, atomic_writer, write_json
-from sensormodel.errors import OutputExistsError
+from sensormodel.errors import SensorModelError
 
 
 @pytest.fixture
@@ -40,6 +40,6 @@ def test_a_failed_write_leaves_nothing(tmp_path) -> None:
         raise RuntimeError("stopped")
     assert list(tmp_path.iterdir()) == []
     (tmp_path / "old.txt").write_text("old")
-    with pytest.raises(OutputExistsError, match="--force"):
+    with pytest.raises(SensorModelError, match="--force"):
         write_json(tmp_path / "old.txt", {})
     assert (tmp_path / "old.txt").read_text() == "old"
