@@ -287,3 +287,18 @@ def test_verify_reads_datasheet_units(runner, sheet, tmp_path) -> None:
     for x, z in zip(ta, tb, strict=True):
         assert x["verdict"] == z["verdict"]
         assert z["estimate"] == pytest.approx(x["estimate"], rel=1e-9)
+
+
+def test_verify_bootstrap_minimum_named_before_any_work(runner, sheet, tmp_path, monkeypatch):
+    # --bootstrap once advertised x ≥ 1 but refused 20 after the work, by the internal name
+    # n_boot. At confidence 0.9 two records beyond each end need ⌈2/0.05⌉ = 40.
+    from sensormodel.cli import _acceptance
+
+    monkeypatch.setattr(_acceptance, "verify", lambda *a, **k: pytest.fail("work started"))
+    rec = _record(tmp_path, "r.csv", white_factor=1.0, n=500, seed=5)
+    result = runner.invoke(cli, ["verify", str(rec), "--spec", str(sheet), "--bootstrap", "20"])
+    assert result.exit_code == 2
+    assert "--bootstrap" in result.stderr and "at least 40" in result.stderr
+    assert "n_boot" not in result.stderr
+    result = runner.invoke(cli, ["verify", "--help"])
+    assert "40 at 0.9" in result.output

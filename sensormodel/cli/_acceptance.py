@@ -19,7 +19,7 @@ from ..report import (
 )
 from ._app import CONTEXT, force_option, guarded, output_option, status
 from ._options import RecordingOptions, recording_options
-from ._types import RATE, Fraction, Probability
+from ._types import BOOTSTRAP_HELP, RATE, Fraction, Probability, check_bootstrap
 
 __all__ = ["COMMANDS", "EXIT_FAIL", "EXIT_INCONCLUSIVE"]
 
@@ -51,9 +51,8 @@ _ACCEPTANCE_HELP = (
               help="Verify only this channel (repeatable).")
 @click.option("--seed", type=click.IntRange(min=0), default=0, show_default=True,
               help="Seed of the identification's random parts (the verdict is reproducible).")
-@click.option("--bootstrap", "n_boot", type=click.IntRange(min=1), default=None,
-              help="Bootstrap records per channel for the intervals (default 200; fewer is "
-                   "quicker and rougher).")
+@click.option("--bootstrap", "n_boot", type=click.IntRange(min=1), default=None, metavar="N",
+              help=BOOTSTRAP_HELP)
 @force_option
 @guarded
 def verify_command(recording_file: str, spec_file: str, against: str, confidence: float,
@@ -72,7 +71,8 @@ def verify_command(recording_file: str, spec_file: str, against: str, confidence
       sensormodel verify unit42.npy --spec examples/bw-t900.toml --report unit42.html \\
           --json unit42.json
     """
-    # every output checked before any work (the figures too: named after the channels)
+    # every input and output checked before any work (the figures too: named by channel)
+    check_bootstrap(n_boot, confidence)
     datasheet = load_datasheet(spec_file)
     if json_file:
         check_writable(json_file, force=force)

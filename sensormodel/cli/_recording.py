@@ -32,7 +32,16 @@ from ..report import (
 from ..simulate import new_seed, record_rate, run_path, samples_for, write_record
 from ._app import CONTEXT, StderrBar, echo_findings, force_option, guarded
 from ._options import RecordingOptions, recording_options
-from ._types import DURATION, FREQUENCY, RATE, OutputFile, Probability, TauGrid
+from ._types import (
+    BOOTSTRAP_HELP,
+    DURATION,
+    FREQUENCY,
+    RATE,
+    OutputFile,
+    Probability,
+    TauGrid,
+    check_bootstrap,
+)
 
 __all__ = ["COMMANDS"]
 
@@ -164,8 +173,7 @@ def _fit_channels(analysis: RecordingAnalysis, **options: Any) -> list[Any]:
 @click.option("--taus", type=TauGrid(), default=None, metavar="SPEC",
               help=f"Averaging times of the fitted curve: {_TAUS_HELP}.")
 @click.option("--bootstrap", "n_boot", type=click.IntRange(min=1), default=None, metavar="N",
-              help="Bootstrap records per channel for the intervals (default 200, more for a "
-                   "confidence above 0.98; more: steadier interval ends, slower).")
+              help=BOOTSTRAP_HELP)
 @click.option("--seed", type=click.IntRange(min=0), default=0, show_default=True,
               help="Seed of the bootstrap (the same seed gives the same intervals).")
 @click.option("--bandwidth", "bandwidth", type=FREQUENCY, default=None, metavar="FREQ",
@@ -197,6 +205,7 @@ def identify_command(recording_file: str, output: str, terms: str, confidence: f
           --terms white,flicker,random_walk -o unit42.json
       sensormodel identify mems.npy --bandwidth "50 Hz" --filter-order 2 -o mems-model.json
     """
+    check_bootstrap(n_boot, confidence)
     check_writable(output, force=force)
     if filter_order is not None and bandwidth is None:
         raise AnalysisError("--filter-order without --bandwidth", "a --bandwidth with it",
