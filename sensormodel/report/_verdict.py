@@ -321,7 +321,7 @@ def plan_text(plan) -> str:
                 r.spec.text,
                 f"{r.read_at:.3g} s",
                 f"{100 * r.share:.0f} %",
-                NOISE_NAMES[r.noise_alpha].split(" (")[0],
+                NOISE_NAMES[r.noise_alpha],
                 f"{r.edf:.3g}",
                 format_duration(r.duration) if math.isfinite(r.duration) else "none suffices",
             )
