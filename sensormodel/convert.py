@@ -191,6 +191,27 @@ def axis_terms(ax: AxisSpec, *, basis: str = "typ") -> tuple[list[Term], list[st
     return kept, notes
 
 
+def _not_used(ax: AxisSpec, earlier: list[str]) -> list[str]:
+    """Notes on the datasheet keys of ``ax`` that make no noise term (once per datasheet
+    field: an instrument-level key is noted for its first axis only)."""
+    out = []
+    for key, value in ax.values.items():
+        spec = FIELDS[ax.instrument].get(key)
+        if spec is None or spec.term is not None or key in _DESCRIBE_THE_UNIT:
+            continue
+        where = ax.origin.get(key, key)
+        use = f"kept for: {spec.use}" if spec.use else "not used"
+        note = f"{where} ({value.typ_text or value.max_text}): not a noise term, {use}"
+        if note not in earlier and note not in out:
+            out.append(note)
+    return out
+
+
+#: Keys that describe the unit's output (rate, filter) or modify a term (correlation time):
+#: used, though they make no term of their own.
+_DESCRIBE_THE_UNIT = frozenset({"sample_rate", "bandwidth", "correlation_time"})
+
+
 def build_model(
     datasheet: Datasheet | str | os.PathLike[str], *, worst_case: bool = False
 ) -> NoiseModel:
@@ -218,6 +239,7 @@ def build_model(
         except DatasheetError as exc:
             raise exc.located(source=ds.source) from None
         notes.extend(ax_notes)
+        notes.extend(_not_used(ax, notes))
         quantity, unit = QUANTITY[ax.instrument]
         # the output rate and filter describe the unit, not its noise: always the typical value
         rate, _, _ = ax.values["sample_rate"].pick("typ")

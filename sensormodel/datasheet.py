@@ -68,11 +68,60 @@ __all__ = [
 
 @dataclass(frozen=True)
 class FieldSpec:
-    """One datasheet key: its kind of quantity (see quantities.KINDS) and what it is."""
+    """One datasheet key: its kind of quantity (see quantities.KINDS), the noise term it makes
+    (None: not a noise term), what it is, and what a value without a term is kept for
+    (``use``; empty: read, checked for its unit, listed as not used)."""
 
     kind: str
     term: str | None
     what: str
+    use: str = ""
+
+
+def _not_noise(instrument: str) -> dict[str, FieldSpec]:
+    """The common datasheet keys that are not noise terms (read so that a whole datasheet table
+    can be pasted in; listed as not used unless ``use`` says what they serve)."""
+    gyro = instrument == "gyro"
+    rate = "angular_rate" if gyro else "acceleration"
+    return {
+        "measurement_range": FieldSpec(
+            rate, None, "measurement range (full scale, ±)", "saturation of a recording"
+        ),
+        "bias_offset": FieldSpec(rate, None, "bias (offset) before calibration"),
+        "bias_temperature_sensitivity": FieldSpec(
+            f"{rate}_per_temperature",
+            None,
+            "bias change per degree of temperature",
+            "temperature effect in a recording",
+        ),
+        "scale_factor_error": FieldSpec("dimensionless", None, "scale-factor error"),
+        "scale_factor_nonlinearity": FieldSpec("dimensionless", None, "scale-factor nonlinearity"),
+        "scale_factor_stability": FieldSpec("dimensionless", None, "scale-factor stability"),
+        "scale_factor_repeatability": FieldSpec(
+            "dimensionless", None, "scale-factor repeatability"
+        ),
+        "scale_factor_temperature_sensitivity": FieldSpec(
+            "per_temperature", None, "scale-factor change per degree of temperature"
+        ),
+        "misalignment": FieldSpec("angle", None, "axis misalignment"),
+        "cross_axis_sensitivity": FieldSpec("dimensionless", None, "cross-axis sensitivity"),
+        **(
+            {
+                "g_sensitivity": FieldSpec(
+                    "rate_per_acceleration", None, "bias change per acceleration (g-sensitivity)"
+                ),
+                "g_squared_sensitivity": FieldSpec(
+                    "rate_per_acceleration_squared", None, "bias change per acceleration squared"
+                ),
+            }
+            if gyro
+            else {
+                "vibration_rectification": FieldSpec(
+                    "acceleration_per_acceleration_squared", None, "vibration rectification"
+                ),
+            }
+        ),
+    }
 
 
 _COMMON = {
@@ -96,6 +145,7 @@ FIELDS: dict[str, dict[str, FieldSpec]] = {
             "angular_rate", "random_constant", "bias repeatability (turn-on to turn-on)"
         ),
         **_COMMON,
+        **_not_noise("gyro"),
     },
     "accelerometer": {
         "velocity_random_walk": FieldSpec("velocity_random_walk", "white", "velocity random walk"),
@@ -110,6 +160,7 @@ FIELDS: dict[str, dict[str, FieldSpec]] = {
             "acceleration", "random_constant", "bias repeatability (turn-on to turn-on)"
         ),
         **_COMMON,
+        **_not_noise("accelerometer"),
     },
 }
 

@@ -114,6 +114,23 @@ KINDS: dict[str, Kind] = {
     ),
     "acceleration_ramp": Kind("m/s**3", "an acceleration ramp", "1 ug/h", acceleration=True),
     "time": Kind("s", "a time", "100 s"),
+    "angular_rate_per_temperature": Kind(
+        "rad/s/K", "an angular rate per degree of temperature", "0.01 deg/s/degC"
+    ),
+    "acceleration_per_temperature": Kind(
+        "m/s**2/K", "an acceleration per degree of temperature", "0.05 mg/degC", acceleration=True
+    ),
+    "per_temperature": Kind("1/K", "a ratio per degree of temperature", "100 ppm/degC"),
+    "rate_per_acceleration": Kind(
+        "rad*s/m", "an angular rate per acceleration", "1 deg/h/g", acceleration=True
+    ),
+    "rate_per_acceleration_squared": Kind(
+        "rad*s**3/m**2", "an angular rate per acceleration squared", "0.1 deg/h/g^2",
+        acceleration=True,
+    ),
+    "acceleration_per_acceleration_squared": Kind(
+        "s**2/m", "an acceleration per acceleration squared", "50 ug/g^2", acceleration=True
+    ),
     "frequency": Kind("Hz", "a frequency", "400 Hz"),
     "dimensionless": Kind("", "a plain ratio", "100 ppm"),
 }
@@ -153,6 +170,7 @@ _WORD_ALIASES = {
     "deg": "deg",
 }
 _WORD = re.compile(r"(?<![A-Za-z_])([A-Za-z_]+)(?![A-Za-z_0-9])")
+_CELSIUS = re.compile(r"(?:°|º|\bdeg\s*)\s*C\b|\bdegC\b|\bcelsius\b", re.IGNORECASE)
 _GEE = re.compile(r"(?<![A-Za-z_])([mun]?)g(?![A-Za-z_0-9])")
 _GEE_PREFIX = {"": "gee", "m": "milligee", "u": "microgee", "n": "nanogee"}
 
@@ -173,6 +191,8 @@ def normalize_unit(text: str, *, acceleration: bool = False) -> str:
         The same unit in pint syntax, e.g. ``"deg/((hr)**0.5)"``.
     """
     s = text.strip().replace("−", "-").replace("–", "-")
+    # a degree Celsius in a unit (°C, degC, deg C) is a temperature difference: /°C is /K
+    s = _CELSIUS.sub(" delta_degC ", s)
     s = s.replace("°", " deg ").replace("º", " deg ").replace("µ", "u").replace("μ", "u")
     s = s.replace("^½", "**0.5").replace("½", "**0.5").replace("·", "*").replace("⋅", "*")
     s = _SUPER_RUN.sub(lambda m: "**" + m.group(0).translate(_SUPERSCRIPTS), s)
@@ -394,6 +414,12 @@ DISPLAY_UNITS: dict[str, tuple[str, str]] = {
     "time": ("s", "s"),
     "frequency": ("Hz", "Hz"),
     "dimensionless": ("", ""),
+    "angular_rate_per_temperature": ("deg/h/K", "°/h/K"),
+    "acceleration_per_temperature": ("ug/K", "µg/K"),
+    "per_temperature": ("ppm/K", "ppm/K"),
+    "rate_per_acceleration": ("deg/h/g", "°/h/g"),
+    "rate_per_acceleration_squared": ("deg/h/g^2", "°/h/g²"),
+    "acceleration_per_acceleration_squared": ("ug/g^2", "µg/g²"),
 }
 
 
