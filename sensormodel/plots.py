@@ -179,29 +179,30 @@ def drift_figure(result: Any, *, display: Display | None = None) -> Any:
         contribution dashed.
     """
     si = {"angle": ("rad", 1.0), "velocity": ("m/s", 1.0), "position": ("m", 1.0)}
-    fig, axes = _figure(len(result.channels), 2, fixed_margins=True)
-    for row, ch in enumerate(result.channels):
-        kinds = list(ch.values)
-        for col in range(2):
-            ax = axes[row][col]
-            if col >= len(kinds):
-                ax.set_axis_off()
-                continue
-            kind = kinds[col]
-            label, factor = (display or {}).get(kind, si[kind])
-            t = ch.time
-            for term, d in ch.contributions.items():
-                y = d[kind] * factor
-                if np.any(y > 0):
-                    ax.loglog(t, np.where(y > 0, y, np.nan), "--", lw=1.1, label=term)
-            y = ch.values[kind] * factor
-            ax.loglog(t, np.where(y > 0, y, np.nan), "k-", lw=2.0, label="total (1σ)")
-            ax.set_title(f"{ch.id}: {kind} error")
-            ax.set_xlabel("time since turn-on [s]")
-            ax.set_ylabel(f"{kind} 1σ [{label}]")
+    panels = [(ch, kind) for ch in result.channels for kind in ch.values]
+    # panels flow over columns (three, or two, whichever fills the rows; no empty panel)
+    n = len(panels)
+    cols = next((c for c in (3, 2) if n % c == 0), min(n, 3))
+    rows = -(-n // cols)
+    fig, axes = _figure(rows, cols, fixed_margins=True)
+    for k in range(n, rows * cols):  # a last row that cannot be full: its spare cells go
+        fig.delaxes(axes[k // cols][k % cols])
+    for k, (ch, kind) in enumerate(panels):
+        ax = axes[k // cols][k % cols]
+        label, factor = (display or {}).get(kind, si[kind])
+        t = ch.time
+        for term, d in ch.contributions.items():
+            y = d[kind] * factor
             if np.any(y > 0):
-                ax.set_ylim(bottom=np.min(y[y > 0]) * 1e-3)
-            _style(ax)
+                ax.loglog(t, np.where(y > 0, y, np.nan), "--", lw=1.1, label=term)
+        y = ch.values[kind] * factor
+        ax.loglog(t, np.where(y > 0, y, np.nan), "k-", lw=2.0, label="total (1σ)")
+        ax.set_title(f"{ch.id}: {kind} error")
+        ax.set_xlabel("time since turn-on [s]")
+        ax.set_ylabel(f"{kind} 1σ [{label}]")
+        if np.any(y > 0):
+            ax.set_ylim(bottom=np.min(y[y > 0]) * 1e-3)
+        _style(ax)
     return fig
 
 

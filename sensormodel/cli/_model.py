@@ -161,6 +161,9 @@ def export_command(model_file: str, dt: float, formats: list[str] | None, output
               help="Only this channel (repeatable).")
 @click.option("--points", type=click.IntRange(min=2), default=121, show_default=True,
               help="Log-spaced times of the curve (JSON, plot).")
+@click.option("--without", "without", multiple=True, metavar="TERM",
+              help="Leave this term type out (repeatable), e.g. random_constant when the "
+                   "turn-on bias is calibrated at the start.")
 @output_option("--json", "json_file",
                help="Write the curves as JSON (schema sensormodel/drift/1, SI, 1σ).")
 @output_option("--plot", "plot_file",
@@ -168,7 +171,8 @@ def export_command(model_file: str, dt: float, formats: list[str] | None, output
 @force_option
 @guarded
 def drift_command(model_file: str, horizon: float, channels: tuple[str, ...], points: int,
-                  json_file: str | None, plot_file: str | None, force: bool) -> None:
+                  without: tuple[str, ...], json_file: str | None, plot_file: str | None,
+                  force: bool) -> None:
     """Open-loop 1σ error growth over a horizon: angle from each gyro channel, velocity and
     position from each accelerometer channel (variance equation, integrated exactly).
 
@@ -178,13 +182,17 @@ def drift_command(model_file: str, horizon: float, channels: tuple[str, ...], po
     \b
     Example:
       sensormodel drift t900.json --horizon 1h
-      sensormodel drift t900.json --horizon 600 --channel gyro.z --json drift.json --plot drift.png
+      sensormodel drift t900.json --horizon 600 --channel gyro.z --json drift.json \\
+          --plot drift.png
+      sensormodel drift m200.json --horizon 10min --without random_constant
     """
     for path in (json_file, plot_file):
         if path:
             check_writable(path, force=force)
     model = NoiseModel.load(model_file).select(list(channels))
-    result = drift(model, horizon, points=points)
+    result = drift(model, horizon, points=points, without=without)
+    if result.without:
+        click.echo(f"left out: {', '.join(result.without)}")
     times = table_times(horizon)
     for ch in result.channels:
         click.echo(drift_table(ch, times, DRIFT_DISPLAY))
