@@ -208,9 +208,27 @@ def normalize_unit(text: str, *, acceleration: bool = False) -> str:
     return s
 
 
+_POWER_WORDS = {0.5: "√{}", 1: "{}", 1.5: "{}^1.5", 2: "{}²", 2.5: "{}^2.5", 3: "{}³"}
+
+
+def dimension_words(dim: str) -> str:
+    """A dimension in words for messages: ``"[mass] * [time] ** 0.5"`` → ``"mass × √time"``,
+    ``"[angle] / [time]"`` → ``"angle / time"``, ``""`` → ``"a plain number"``."""
+    if dim in ("", "dimensionless"):
+        return "a plain number"
+    powers = dict(UREG.get_dimensionality(dim))
+
+    def word(name: str, p: float) -> str:
+        base = name.strip("[]")
+        return _POWER_WORDS.get(abs(p), "{}^" + f"{abs(p):g}").format(base)
+
+    up = " × ".join(word(n, p) for n, p in powers.items() if p > 0)
+    down = " / ".join(word(n, p) for n, p in powers.items() if p < 0)
+    return f"{up or '1'} / {down}" if down else up
+
+
 def _dimension_text(unit: pint.Unit | pint.Quantity) -> str:
-    dim = str(unit.dimensionality)
-    return "dimensionless" if dim in ("", "dimensionless") else dim
+    return dimension_words(str(unit.dimensionality))
 
 
 @lru_cache(maxsize=1024)
@@ -251,7 +269,7 @@ def _unit_factor(unit_text: str, kind: str, *, field: str | None, source: str | 
         ) from None
     si_factor, _, si_dim = _parse_unit_cached(info.si, False) if info.si else (1.0, "", "")
     if dim != si_dim and not (dim in ("", "dimensionless") and si_dim in ("", "dimensionless")):
-        shown = dim if dim not in ("", "dimensionless") else "dimensionless"
+        shown = dimension_words(dim)
         hint = ""
         if "[mass]" in dim and not info.acceleration:
             hint = " ('g' is read as grams outside acceleration fields)"

@@ -171,7 +171,7 @@ def test_refusals(runner, model_file, tmp_path) -> None:  # type: ignore[no-unty
     assert res.exit_code == 0 and out.read_bytes() != before
     res = _run(runner, "simulate", model_file, "--duration", "10 m", "-o", tmp_path / "x.csv")
     assert res.exit_code == 2
-    assert res.stderr.startswith("error: --duration: got 'm' ([length]); expected a time")
+    assert res.stderr.startswith("error: --duration: got 'm' (length); expected a time")
     assert "Traceback" not in res.stderr and not (tmp_path / "x.csv").exists()
     res = _run(
         runner,
