@@ -31,6 +31,7 @@ import pint
 from .errors import UnitError
 
 __all__ = [
+    "dimension_words",
     "UREG",
     "KINDS",
     "Kind",

@@ -19,6 +19,7 @@ from ..errors import AnalysisError
 from ..identify import fit_recording, to_model
 from ..model import NoiseModel
 from ..pipeline import SEGMENT_POLICY, RecordingAnalysis, analyse
+from ..recording import format_of
 from ..report import (
     allan_heading,
     allan_table,
@@ -276,7 +277,8 @@ def simulate_command(model_file: str, duration: float, rate: float | None, seed:
     sim_rate = record_rate(model, rate)
     n = samples_for(duration, sim_rate)
     paths = [run_path(output, r, runs) for r in range(runs)]
-    for p in paths:  # refuse before the long work, not after it
+    for p in paths:  # refuse before the long work (and before a seed is drawn), not after it
+        format_of(p, str(p))
         check_writable(p, force=force)
         if p.suffix.lower() == ".npy":
             check_writable(p.with_name(p.name + ".json"), force=force)
