@@ -244,6 +244,12 @@ def build_model(
         # the output rate and filter describe the unit, not its noise: always the typical value
         rate, _, _ = ax.values["sample_rate"].pick("typ")
         bw = ax.values["bandwidth"].pick("typ")[0] if "bandwidth" in ax.values else None
+        if bw is not None and bw > 0.5 * rate:
+            notes.append(
+                f"{ax.channel_id}: bandwidth {bw:g} Hz is above the Nyquist frequency "
+                f"{0.5 * rate:g} Hz of the {rate:g} Hz output: the white noise above it aliases "
+                "into the band (the model keeps it so; check the datasheet)"
+            )
         if bw is not None and ax.filter_order is None:
             notes.append(
                 f"{ax.channel_id}: bandwidth without filter_order; a 1-pole "

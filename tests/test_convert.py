@@ -268,3 +268,17 @@ def test_model_of_t900_worst_case(examples_dir):
     assert gm.sigma == pytest.approx(
         20e-6 * ref.STANDARD_GRAVITY / ref.GM_PEAK_ADEV_OVER_SIGMA, rel=1e-6
     )
+
+
+def test_bandwidth_above_nyquist_is_noted():
+    # A bandwidth above half the output rate was accepted silently: it is noted (aliasing).
+    from sensormodel import build_model
+    from sensormodel.datasheet import parse_datasheet
+
+    text = '[sensor]\nsample_rate = "400 Hz"\nbandwidth = "250 Hz"\n[gyro]\n' \
+        'angle_random_walk = "0.15 deg/rt-h"\n'
+    notes = build_model(parse_datasheet(tomllib.loads(text), source="s.toml")).provenance["notes"]
+    assert any("above the Nyquist frequency 200 Hz" in n for n in notes), notes
+    ok = text.replace("250 Hz", "150 Hz")
+    notes = build_model(parse_datasheet(tomllib.loads(ok), source="s.toml")).provenance["notes"]
+    assert not any("Nyquist" in n for n in notes)
