@@ -103,7 +103,7 @@ def _export_targets(output: str, formats: list[str] | None) -> list[tuple[str, p
         form = out.suffix.lstrip(".").lower()
         if form not in FORMATS:
             raise AnalysisError(f"cannot tell the form of '{output}' from its suffix",
-                                "a name ending in .json, .npz or .csv, or --format")
+                                "a name ending in .json, .npz, .csv or .mat, or --format")
         return [(form, out)]
     if len(formats) == 1:
         return [(formats[0], out)]
@@ -117,10 +117,11 @@ def _export_targets(output: str, formats: list[str] | None) -> list[tuple[str, p
               help="Filter step: seconds, or a time with its unit ('10 ms').")
 @click.option("--format", "formats", type=FormatList(FORMATS), default=None,
               metavar="FMT[,FMT...]",
-              help="json, npz, csv, or a comma list of them (default: from the -o suffix). With "
-                   "several, -o names the base and each form gets its suffix.")
+              help="json, npz, csv, mat (MATLAB/Simulink), or a comma list of them (default: "
+                   "from the -o suffix). With several, -o names the base and each form gets its "
+                   "suffix.")
 @click.option("-o", "--output", "output", required=True, type=click.Path(dir_okay=False),
-              help="The file to write (.json, .npz or .csv).")
+              help="The file to write (.json, .npz, .csv or .mat).")
 @click.option("--channel", "channels", multiple=True,
               help="Export only this channel (repeatable).")
 @click.option("--quantization-in", "quantization", type=click.Choice(["states", "r"]),
@@ -140,6 +141,7 @@ def export_command(model_file: str, dt: float, formats: list[str] | None, output
     Example:
       sensormodel export t900.json --dt 0.01 -o t900-100hz.json
       sensormodel export t900.json --dt "5 ms" --format json,npz,csv -o t900-200hz
+      sensormodel export t900.json --dt 0.01 -o t900-100hz.mat
     """
     targets = _export_targets(output, formats)
     for _, path in targets:
