@@ -470,3 +470,11 @@ def test_identify_notes_say_an_unresolved_time_constant():
     assert "σ ≥" not in text and text.endswith("not told from zero")
     lower = reason_text("time_constant_at_lower_edge", {"bound": 0.2, "shortest_tau": 0.5})
     assert lower.startswith("gauss_markov: time constant at the short end") and "T ≤ 0.2 s" in lower
+
+
+def test_counts_take_the_right_number():
+    # "1 states", "1 channels" were printed: a count agrees with its noun.
+    from sensormodel.report import counted
+
+    assert counted(1, "state") == "1 state" and counted(0, "state") == "0 states"
+    assert counted(2, "channel") == "2 channels"

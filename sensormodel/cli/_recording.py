@@ -24,6 +24,7 @@ from ..report import (
     allan_heading,
     allan_table,
     channel_display,
+    counted,
     identify_heading,
     identify_notes,
     identify_table,
@@ -227,7 +228,8 @@ def identify_command(recording_file: str, output: str, terms: str, confidence: f
     model.save(output, force=force)
     kept = sum(len(c.terms) for c in model.channels)
     left = sum(1 for i in results for t in i.terms if not t.supported)
-    click.echo(f"wrote {output}: {len(model.channels)} channels, {kept} terms"
+    click.echo(f"wrote {output}: {counted(len(model.channels), 'channel')}, "
+               f"{counted(kept, 'term')}"
                + (f" ({left} not supported, left out)" if left else ""))
 
 

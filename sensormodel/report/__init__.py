@@ -31,6 +31,7 @@ from ._text import (
 from ._units import (
     DRIFT_DISPLAY,
     channel_display,
+    counted,
     display_values,
     format_duration,
     model_display,
@@ -55,6 +56,7 @@ __all__ = [
     "allan_heading",
     "allan_table",
     "channel_display",
+    "counted",
     "display_values",
     "drift_table",
     "export_summary",
