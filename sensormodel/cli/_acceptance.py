@@ -46,6 +46,9 @@ _ACCEPTANCE_HELP = (
                help="Write the HTML report (and one PNG per figure beside it).")
 @output_option("--json", "json_file",
                help="Write the verdict report as JSON (schema sensormodel/verdict-report/1, SI).")
+@click.option("--asd", is_flag=True,
+              help="Draw the report's spectra as amplitude densities (√ two-sided PSD in the "
+                   "datasheet's unit per √Hz: a white level reads as the printed noise density).")
 @recording_options
 @click.option("--only", "only", multiple=True, metavar="CHANNEL_ID",
               help="Verify only this channel (repeatable).")
@@ -56,7 +59,7 @@ _ACCEPTANCE_HELP = (
 @force_option
 @guarded
 def verify_command(recording_file: str, spec_file: str, against: str, confidence: float,
-                   power: float, report_file: str | None, json_file: str | None,
+                   power: float, report_file: str | None, json_file: str | None, asd: bool,
                    reading: RecordingOptions, only: tuple[str, ...], seed: int,
                    n_boot: int | None, force: bool) -> None:
     """Does a delivered sensor meet its datasheet? Verdict per channel and term, with
@@ -88,7 +91,7 @@ def verify_command(recording_file: str, spec_file: str, against: str, confidence
         write_verdict_json(result, json_file, force=force)
         click.echo(f"wrote {json_file}")
     if report_file:
-        for path in write_verdict_html(result, report_file, force=force):
+        for path in write_verdict_html(result, report_file, force=force, asd=asd):
             click.echo(f"wrote {path}")
     click.get_current_context().exit(result.exit_code)
 

@@ -200,8 +200,9 @@ def _html_channel(ch, figures: list[tuple[str, bytes]]) -> list[str]:
     return out
 
 
-def verdict_figures(report) -> dict[str, list[tuple[str, str, object]]]:
-    """The figures of a verdict report: {channel id: [(file tag, caption, Figure), ...]}."""
+def verdict_figures(report, *, asd: bool = False) -> dict[str, list[tuple[str, str, object]]]:
+    """The figures of a verdict report: {channel id: [(file tag, caption, Figure), ...]};
+    ``asd``: the spectrum as an amplitude density (√ two-sided PSD, as datasheets print it)."""
     out = {}
     for ch in report.channels:
         display = channel_display(INSTRUMENT_KIND.get(ch.id.split(".", 1)[0]))
@@ -217,9 +218,10 @@ def verdict_figures(report) -> dict[str, list[tuple[str, str, object]]]:
             items.append(
                 (
                     FIGURE_TAGS[1],
-                    f"{ch.id}: one-sided PSD of the record (Welch), the datasheet limit model and "
-                    "the fitted model",
-                    verdict_psd_figure(ch, display=display),
+                    f"{ch.id}: "
+                    + ("amplitude spectral density (√ two-sided PSD)" if asd else "one-sided PSD")
+                    + " of the record (Welch), the datasheet limit model and the fitted model",
+                    verdict_psd_figure(ch, display=display, asd=asd),
                 )
             )
         out[ch.id] = items
@@ -256,8 +258,10 @@ def write_verdict_html(
     png: bool = True,
     title: str | None = None,
     intro: list[str] | None = None,
+    asd: bool = False,
 ) -> list[str]:
-    """Write the HTML report and, beside it, one PNG per figure (``<stem>-<channel>-<tag>.png``).
+    """Write the HTML report and, beside it, one PNG per figure (``<stem>-<channel>-<tag>.png``;
+    ``asd``: the spectra as amplitude densities, :func:`verdict_figures`).
 
     Returns
     -------
@@ -266,7 +270,7 @@ def write_verdict_html(
     """
     target = pathlib.Path(path)
     check_writable(target, force=force)
-    figs = verdict_figures(report)
+    figs = verdict_figures(report, asd=asd)
     pngs: dict[str, list[tuple[str, bytes]]] = {}
     files: list[tuple[pathlib.Path, bytes]] = []
     for cid, items in figs.items():
