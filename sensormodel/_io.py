@@ -13,6 +13,7 @@ import math
 import os
 import pathlib
 import tempfile
+import threading
 from collections.abc import Iterator
 from functools import cache
 from typing import IO, Any
@@ -57,6 +58,21 @@ def check_writable(path: str | os.PathLike[str], *, force: bool = False) -> path
     return p
 
 
+_UMASK_LOCK = threading.Lock()
+
+
+def _file_mode() -> int:
+    """The mode a new file gets from ``open`` under the process's umask (0o666 & ~umask).
+
+    :func:`tempfile.mkstemp` creates its file with 0o600 whatever the umask; an output renamed
+    from it would stay private, so it is given this mode (colleagues read shared reports).
+    """
+    with _UMASK_LOCK:  # os.umask can only be read by setting it
+        mask = os.umask(0o022)
+        os.umask(mask)
+    return 0o666 & ~mask
+
+
 @contextlib.contextmanager
 def atomic_writer(
     path: str | os.PathLike[str], *, force: bool = False, binary: bool = False
@@ -75,6 +91,7 @@ def atomic_writer(
     p = check_writable(path, force=force)
     fd, tmp = tempfile.mkstemp(prefix=f".{p.name}.", suffix=".part", dir=p.parent or ".")
     try:
+        os.chmod(tmp, _file_mode())
         mode = "wb" if binary else "w"
         kwargs: dict[str, Any] = {} if binary else {"encoding": "utf-8", "newline": "\n"}
         with os.fdopen(fd, mode, **kwargs) as fh:
@@ -100,7 +117,9 @@ def atomic_path(path: str | os.PathLike[str], *, force: bool = False) -> Iterato
     fd, tmp = tempfile.mkstemp(prefix=f".{p.name}.", suffix=p.suffix, dir=p.parent or ".")
     os.close(fd)
     try:
+        os.chmod(tmp, _file_mode())
         yield pathlib.Path(tmp)
+        os.chmod(tmp, _file_mode())  # in case the library wrote a new file by the name
         os.replace(tmp, p)
     except BaseException:
         with contextlib.suppress(FileNotFoundError):

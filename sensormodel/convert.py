@@ -34,7 +34,14 @@ import os
 import pathlib
 
 from ._version import __version__
-from .datasheet import FIELDS, AxisSpec, Datasheet, load_datasheet
+from .datasheet import (
+    FIELDS,
+    AxisSpec,
+    Datasheet,
+    density_scale,
+    load_datasheet,
+    typed_as_density,
+)
 from .errors import DatasheetError
 from .model import Channel, NoiseModel
 from .quantities import INSTRUMENT_KIND, SI_LABEL
@@ -92,11 +99,17 @@ def _white_term(ax: AxisSpec, column: _Column) -> White | None:
         n, meta = column.pick(walk)
     elif "noise_density" in values:
         n, meta = column.pick("noise_density")
-        if ax.conventions["density_is"] == "one-sided":
-            n /= math.sqrt(2.0)
-            meta["datasheet"]["convention"] = "one-sided"
     else:
         return None
+    # density_is applies to a value typed as a density, whichever key holds it; the model's
+    # provenance says what was applied
+    scale = density_scale(meta["datasheet"]["text"], ax.conventions)
+    n *= scale
+    meta["datasheet"]["convention"] = (
+        ("one-sided" if scale != 1.0 else "two-sided")
+        if typed_as_density(meta["datasheet"]["text"])
+        else "random-walk coefficient"
+    )
     band = values["bandwidth"].pick("typ")[0] if "bandwidth" in values else None
     order = (ax.filter_order or 1) if band is not None else None
     if band is not None:
@@ -178,6 +191,27 @@ def axis_terms(ax: AxisSpec, *, basis: str = "typ") -> tuple[list[Term], list[st
     return kept, notes
 
 
+def _not_used(ax: AxisSpec, earlier: list[str]) -> list[str]:
+    """Notes on the datasheet keys of ``ax`` that make no noise term (once per datasheet
+    field: an instrument-level key is noted for its first axis only)."""
+    out = []
+    for key, value in ax.values.items():
+        spec = FIELDS[ax.instrument].get(key)
+        if spec is None or spec.term is not None or key in _DESCRIBE_THE_UNIT:
+            continue
+        where = ax.origin.get(key, key)
+        use = f"kept for: {spec.use}" if spec.use else "not used"
+        note = f"{where} ({value.typ_text or value.max_text}): not a noise term, {use}"
+        if note not in earlier and note not in out:
+            out.append(note)
+    return out
+
+
+#: Keys that describe the unit's output (rate, filter) or modify a term (correlation time):
+#: used, though they make no term of their own.
+_DESCRIBE_THE_UNIT = frozenset({"sample_rate", "bandwidth", "correlation_time"})
+
+
 def build_model(
     datasheet: Datasheet | str | os.PathLike[str], *, worst_case: bool = False
 ) -> NoiseModel:
@@ -205,10 +239,17 @@ def build_model(
         except DatasheetError as exc:
             raise exc.located(source=ds.source) from None
         notes.extend(ax_notes)
+        notes.extend(_not_used(ax, notes))
         quantity, unit = QUANTITY[ax.instrument]
         # the output rate and filter describe the unit, not its noise: always the typical value
         rate, _, _ = ax.values["sample_rate"].pick("typ")
         bw = ax.values["bandwidth"].pick("typ")[0] if "bandwidth" in ax.values else None
+        if bw is not None and bw > 0.5 * rate:
+            notes.append(
+                f"{ax.channel_id}: bandwidth {bw:g} Hz is above the Nyquist frequency "
+                f"{0.5 * rate:g} Hz of the {rate:g} Hz output: the white noise above it aliases "
+                "into the band (the model keeps it so; check the datasheet)"
+            )
         if bw is not None and ax.filter_order is None:
             notes.append(
                 f"{ax.channel_id}: bandwidth without filter_order; a 1-pole "

@@ -21,8 +21,10 @@ keeps the file in step.
 Conventions (DESIGN §3; documented in DEVELOPERS.md):
 
 * ``density_is = "two-sided"`` (default, common practice: ARW [°/√h] = 60 × density [°/s/√Hz])
-  or ``"one-sided"`` (the density is √ of a one-sided PSD, D = value/√2). It applies to
-  ``noise_density`` only: a random-walk coefficient (ARW, VRW) is defined by its Allan variance.
+  or ``"one-sided"`` (the density is √ of a one-sided PSD, D = value/√2). It applies to every
+  value typed in a density's unit (per √Hz, :func:`typed_as_density`), whichever key holds it
+  (``noise_density``, or an ARW / VRW printed as "9 °/h/√Hz"); a random-walk coefficient typed
+  as such ("0.15 °/√h") is defined by its Allan variance and is not touched.
 * ``bias_instability_is = "floor"`` (default, common practice: the Allan-deviation minimum) or
   ``"coefficient"`` (the IEEE Std 952 coefficient B; floor = √(2 ln2/π)·B ≈ 0.664·B).
 * ``quantization_is = "coefficient"`` (default: the IEEE Std 952 Q, AVAR = 3Q²/τ²) or
@@ -39,6 +41,7 @@ import math
 import os
 import pathlib
 import tomllib
+from collections.abc import Mapping
 from dataclasses import dataclass, field
 from typing import Any
 
@@ -59,16 +62,66 @@ __all__ = [
     "parse_datasheet",
     "datasheet_schema",
     "check_keys",
+    "typed_as_density",
 ]
 
 
 @dataclass(frozen=True)
 class FieldSpec:
-    """One datasheet key: its kind of quantity (see quantities.KINDS) and what it is."""
+    """One datasheet key: its kind of quantity (see quantities.KINDS), the noise term it makes
+    (None: not a noise term), what it is, and what a value without a term is kept for
+    (``use``; empty: read, checked for its unit, listed as not used)."""
 
     kind: str
     term: str | None
     what: str
+    use: str = ""
+
+
+def _not_noise(instrument: str) -> dict[str, FieldSpec]:
+    """The common datasheet keys that are not noise terms (read so that a whole datasheet table
+    can be pasted in; listed as not used unless ``use`` says what they serve)."""
+    gyro = instrument == "gyro"
+    rate = "angular_rate" if gyro else "acceleration"
+    return {
+        "measurement_range": FieldSpec(
+            rate, None, "measurement range (full scale, ±)", "saturation of a recording"
+        ),
+        "bias_offset": FieldSpec(rate, None, "bias (offset) before calibration"),
+        "bias_temperature_sensitivity": FieldSpec(
+            f"{rate}_per_temperature",
+            None,
+            "bias change per degree of temperature",
+            "temperature effect in a recording",
+        ),
+        "scale_factor_error": FieldSpec("dimensionless", None, "scale-factor error"),
+        "scale_factor_nonlinearity": FieldSpec("dimensionless", None, "scale-factor nonlinearity"),
+        "scale_factor_stability": FieldSpec("dimensionless", None, "scale-factor stability"),
+        "scale_factor_repeatability": FieldSpec(
+            "dimensionless", None, "scale-factor repeatability"
+        ),
+        "scale_factor_temperature_sensitivity": FieldSpec(
+            "per_temperature", None, "scale-factor change per degree of temperature"
+        ),
+        "misalignment": FieldSpec("angle", None, "axis misalignment"),
+        "cross_axis_sensitivity": FieldSpec("dimensionless", None, "cross-axis sensitivity"),
+        **(
+            {
+                "g_sensitivity": FieldSpec(
+                    "rate_per_acceleration", None, "bias change per acceleration (g-sensitivity)"
+                ),
+                "g_squared_sensitivity": FieldSpec(
+                    "rate_per_acceleration_squared", None, "bias change per acceleration squared"
+                ),
+            }
+            if gyro
+            else {
+                "vibration_rectification": FieldSpec(
+                    "acceleration_per_acceleration_squared", None, "vibration rectification"
+                ),
+            }
+        ),
+    }
 
 
 _COMMON = {
@@ -92,6 +145,7 @@ FIELDS: dict[str, dict[str, FieldSpec]] = {
             "angular_rate", "random_constant", "bias repeatability (turn-on to turn-on)"
         ),
         **_COMMON,
+        **_not_noise("gyro"),
     },
     "accelerometer": {
         "velocity_random_walk": FieldSpec("velocity_random_walk", "white", "velocity random walk"),
@@ -106,6 +160,7 @@ FIELDS: dict[str, dict[str, FieldSpec]] = {
             "acceleration", "random_constant", "bias repeatability (turn-on to turn-on)"
         ),
         **_COMMON,
+        **_not_noise("accelerometer"),
     },
 }
 
@@ -299,6 +354,20 @@ def _axes(value: Any, where: str, source: str) -> tuple[str, ...]:
     return tuple(a for a in _AXES if a in value)
 
 
+def typed_as_density(text: str) -> bool:
+    """Whether a printed value is typed in a spectral density's unit (per √Hz: "rtHz", "√Hz",
+    "sqrt(Hz)", "Hz^0.5"), the form ``density_is`` applies to. A random-walk coefficient's unit
+    (°/√h, m/s/√h) never names hertz."""
+    return "hz" in text.lower()
+
+
+def density_scale(text: str, conventions: Mapping[str, str]) -> float:
+    """The factor from a printed white value to the two-sided density N: 1/√2 for a value typed
+    as a density under ``density_is = "one-sided"``, else 1."""
+    one_sided = conventions.get("density_is") == "one-sided"
+    return 1.0 / math.sqrt(2.0) if one_sided and typed_as_density(text) else 1.0
+
+
 def _check_equivalent(
     values: dict[str, SpecValue],
     conv: dict[str, str],
@@ -310,13 +379,13 @@ def _check_equivalent(
     walk = "angle_random_walk" if instrument == "gyro" else "velocity_random_walk"
     if walk not in values or "noise_density" not in values:
         return
-    scale = 1 / math.sqrt(2) if conv["density_is"] == "one-sided" else 1.0
     a, b = values[walk], values["noise_density"]
     for col in ("typ", "max"):
         va, vb = getattr(a, col), getattr(b, col)
         if va is None or vb is None:
             continue
-        vb *= scale
+        va *= density_scale(getattr(a, col + "_text"), conv)
+        vb *= density_scale(getattr(b, col + "_text"), conv)
         if abs(va - vb) > 0.01 * max(va, vb):
             raise DatasheetError(
                 f"{walk} ({getattr(a, col + '_text')}) and noise_density "

@@ -51,7 +51,7 @@ import numpy.typing as npt
 from .errors import AnalysisError
 from .export import CAUTION
 from .linear import block_diag, propagate, stack
-from .terms import DEFAULT_LONGEST_TIME, Flicker
+from .terms import DEFAULT_LONGEST_TIME, TERM_TYPES, Flicker
 
 __all__ = [
     "SCHEMA_ID",
@@ -129,10 +129,14 @@ class ChannelDrift:
 
     def to_dict(self) -> dict[str, Any]:
         """Entry of the drift JSON (DESIGN §10): ``{"id", "time", "angle"}`` or
-        ``{"id", "time", "velocity", "position"}``, 1σ, SI."""
+        ``{"id", "time", "velocity", "position"}``, 1σ, SI, and ``terms``: each term's own
+        closed-form 1σ curves."""
         out: dict[str, Any] = {"id": self.id, "quantity": self.quantity, "time": self.time.tolist()}
         for k, v in self.values.items():
             out[k] = v.tolist()
+        out["terms"] = {
+            label: {k: v.tolist() for k, v in d.items()} for label, d in self.contributions.items()
+        }
         return out
 
 
@@ -148,11 +152,14 @@ class DriftResult:
         One per gyro or accelerometer channel.
     skipped : tuple of str
         Channels not integrated (quantity ``as_recorded``).
+    without : tuple of str
+        Term types left out (e.g. ``random_constant``: the turn-on bias calibrated at the start).
     """
 
     horizon: float
     channels: tuple[ChannelDrift, ...]
     skipped: tuple[str, ...] = ()
+    without: tuple[str, ...] = ()
 
     def to_dict(self) -> dict[str, Any]:
         """The drift JSON document (``schemas/drift.schema.json``)."""
@@ -161,6 +168,7 @@ class DriftResult:
             "horizon": self.horizon,
             "sigma": 1,
             "caution": CAUTION,
+            "without": list(self.without),
             "channels": [c.to_dict() for c in self.channels],
         }
 
@@ -444,7 +452,9 @@ def channel_drift(
     )
 
 
-def drift(model: Any, horizon: float, **grid: Any) -> DriftResult:
+def drift(
+    model: Any, horizon: float, *, without: Sequence[str] = (), **grid: Any
+) -> DriftResult:
     """Error growth of every gyro and accelerometer channel of a model over a horizon.
 
     Parameters
@@ -453,6 +463,9 @@ def drift(model: Any, horizon: float, **grid: Any) -> DriftResult:
         The model (channels with quantity ``as_recorded`` are skipped and listed).
     horizon : float
         Last time [s], positive.
+    without : sequence of str
+        Term types to leave out, e.g. ``("random_constant",)`` when the turn-on bias is
+        calibrated at the start (it grows as σ·t and swamps everything else).
     **grid
         The time grid of each channel, as for :func:`channel_drift`: ``times`` (times [s];
         default :func:`default_times` per channel) or ``points`` (the default grid's number of
@@ -465,10 +478,17 @@ def drift(model: Any, horizon: float, **grid: Any) -> DriftResult:
     horizon = float(horizon)
     if not (math.isfinite(horizon) and horizon > 0):
         raise AnalysisError(f"horizon = {horizon!r}", "a positive time in s")
+    left_out = tuple(dict.fromkeys(str(w).strip().lower() for w in without))
+    for w in left_out:
+        if w not in TERM_TYPES:
+            raise AnalysisError(
+                f"unknown term {w!r}", f"term types among {', '.join(TERM_TYPES)}", field="without"
+            )
     done, skipped = [], []
     for c in model.channels:
         if c.quantity in _OUTPUTS:
-            done.append(channel_drift(c, horizon, **grid))
+            kept = tuple(t for t in c.terms if t.type not in left_out)
+            done.append(channel_drift(replace(c, terms=kept), horizon, **grid))
         else:
             skipped.append(c.id)
     if not done:
@@ -476,4 +496,6 @@ def drift(model: Any, horizon: float, **grid: Any) -> DriftResult:
             "the model has no gyro or accelerometer channel",
             "channels with quantity angular_rate or acceleration",
         )
-    return DriftResult(horizon=horizon, channels=tuple(done), skipped=tuple(skipped))
+    return DriftResult(
+        horizon=horizon, channels=tuple(done), skipped=tuple(skipped), without=left_out
+    )

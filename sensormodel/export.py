@@ -15,6 +15,11 @@ Three forms carry the same numbers:
   ``state_convention``, ``caution``, the array ``channels`` of ids, and per channel the arrays
   ``<id>/states``, ``<id>/phi``, ``<id>/qd``, ``<id>/h``, ``<id>/r``, ``<id>/p0``
   (e.g. ``data["gyro.x/phi"]``).
+* **MAT** (MATLAB 5 format, ``scipy.io.savemat``; ``load`` in MATLAB/Simulink, Octave or
+  ``scipy.io.loadmat``): ``dt``, ``schema``, ``r_convention``, ``state_convention``,
+  ``caution``, ``channels`` (a cell array of ids) and one struct per channel named by its id
+  with ``.`` → ``_`` (``gyro_x``), with the fields ``id``, ``states`` (cell array), ``phi``,
+  ``qd``, ``h``, ``r``, ``p0`` (and ``unit``): the same names and numbers as the JSON.
 * **CSV**, a long form readable by eye or any table tool: ``#`` comment lines with the schema,
   dt, conventions and caution, then one row per matrix entry with the columns
   ``channel, matrix, row, col, row_state, col_state, value`` (``matrix`` one of phi, qd, h, r,
@@ -46,13 +51,14 @@ __all__ = [
     "STATE_CONVENTION",
     "discrete_document",
     "write_discrete",
+    "mat_name",
 ]
 
 #: Schema id of the exported discrete model.
 SCHEMA_ID = "sensormodel/discrete-model/1"
 
 #: The file forms :func:`write_discrete` writes.
-FORMATS = ("json", "npz", "csv")
+FORMATS = ("json", "npz", "csv", "mat")
 
 #: One-line caution written into every export and drift file.
 CAUTION = (
@@ -161,6 +167,41 @@ def _csv_text(doc: Mapping[str, Any]) -> str:
     return buf.getvalue()
 
 
+def mat_name(channel_id: str) -> str:
+    """The MATLAB variable of a channel in a MAT export: its id with every character that a
+    MATLAB name cannot hold replaced by ``_`` (``gyro.x`` → ``gyro_x``)."""
+    name = "".join(c if c.isalnum() or c == "_" else "_" for c in channel_id)
+    return name if name[:1].isalpha() else f"ch_{name}"
+
+
+def _mat_variables(doc: Mapping[str, Any]) -> dict[str, Any]:
+    out: dict[str, Any] = {
+        key: doc[key] for key in ("schema", "dt", "r_convention", "state_convention", "caution")
+    }
+    ids = [c["id"] for c in doc["channels"]]
+    out["channels"] = np.array(ids, dtype=object)
+    names = [mat_name(cid) for cid in ids]
+    if len(set(names)) != len(names) or set(names) & set(out):
+        raise AnalysisError(
+            f"channel ids {ids} do not make distinct MATLAB names",
+            "channel ids that differ in letters or digits",
+        )
+    for c, name in zip(doc["channels"], names, strict=True):
+        n = len(c["states"])
+        entry: dict[str, Any] = {
+            "id": c["id"],
+            "states": np.array(c["states"], dtype=object),
+            "h": np.array(c["h"], dtype=float).reshape(1, n),
+            "r": float(c["r"]),
+        }
+        for key in ("phi", "qd", "p0"):
+            entry[key] = np.array(c[key], dtype=float).reshape(n, n)
+        if "unit" in c:
+            entry["unit"] = c["unit"]
+        out[name] = entry
+    return out
+
+
 def write_discrete(
     path: str | os.PathLike[str],
     doc: Mapping[str, Any],
@@ -176,7 +217,7 @@ def write_discrete(
         Output file.
     doc : mapping
         From :func:`discrete_document`.
-    fmt : {"json", "npz", "csv"}, optional
+    fmt : {"json", "npz", "csv", "mat"}, optional
         The form; default from the file suffix.
     force : bool
         Overwrite an existing file.
@@ -191,10 +232,16 @@ def write_discrete(
     if fmt not in FORMATS:
         raise AnalysisError(
             f"cannot tell the export form of '{p.name}'",
-            f"a file ending in .json, .npz or .csv, or a format among {', '.join(FORMATS)}",
+            f"a file ending in .json, .npz, .csv or .mat, or a format among {', '.join(FORMATS)}",
         )
     if fmt == "json":
         write_json(p, dict(doc), force=force, schema="discrete-model.schema.json")
+    elif fmt == "mat":
+        from scipy.io import savemat
+
+        variables = _mat_variables(doc)
+        with atomic_path(p, force=force) as tmp, open(tmp, "wb") as fh:
+            savemat(fh, variables, do_compression=True, oned_as="row")
     elif fmt == "npz":
         arrays = _npz_arrays(doc)
         with atomic_path(p, force=force) as tmp, open(tmp, "wb") as fh:

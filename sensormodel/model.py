@@ -29,6 +29,7 @@ from ._io import read_json, write_json
 from ._io import validate as validate_schema
 from .errors import AnalysisError, ModelFileError
 from .linear import DiscreteModel, StateSpace, discretize, sided_factor, stack
+from .quantities import SI_LABEL
 from .terms import TERM_TYPES, Term, term_from_dict
 
 __all__ = [
@@ -230,7 +231,13 @@ class Channel:
 
     @classmethod
     def from_dict(cls, data: dict[str, Any], *, where: str = "channel") -> Channel:
-        """Build a channel from its JSON entry (already schema-validated)."""
+        """Build a channel from its JSON entry (already schema-validated).
+
+        The unit is fixed by the quantity (a model is all SI): a channel whose ``unit`` is not
+        its quantity's SI unit is refused, never relabelled (values in rad/s labelled deg/s
+        would be read 57× apart by different commands).
+        """
+        _check_unit(data, where, None)
         terms = tuple(
             term_from_dict(t, where=f"{where}.terms[{i}]") for i, t in enumerate(data["terms"])
         )
@@ -242,6 +249,20 @@ class Channel:
             terms=terms,
             bandwidth=data.get("bandwidth"),
             filter_order=data.get("filter_order"),
+        )
+
+
+def _check_unit(data: dict[str, Any], where: str, source: str | None) -> None:
+    """Refuse a channel entry whose ``unit`` is not the SI unit of its ``quantity``."""
+    si = SI_LABEL.get(str(data.get("quantity")))
+    unit = data.get("unit")
+    if si is not None and isinstance(unit, str) and unit != si:
+        raise ModelFileError(
+            f"unit is {unit!r} for a channel of quantity {data['quantity']}",
+            f"'{si}': every value of a model is SI and the unit follows the quantity (convert "
+            "the values, do not relabel them)",
+            source=source,
+            field=f"{where}.unit",
         )
 
 
@@ -289,6 +310,11 @@ class NoiseModel:
                 source=source,
                 field="schema",
             )
+        channels_data = data.get("channels")
+        if isinstance(channels_data, list):  # before the schema: a clearer sentence than its own
+            for i, c in enumerate(channels_data):
+                if isinstance(c, dict):
+                    _check_unit(c, f"channels[{i}]", source)
         validate_schema(data, "noise-model.schema.json", source=source)
         try:
             channels = tuple(
@@ -420,7 +446,12 @@ def noise_model_schema() -> dict[str, Any]:
                     "properties": {
                         "id": {"type": "string", "minLength": 1},
                         "quantity": {"enum": ["angular_rate", "acceleration", "as_recorded"]},
-                        "unit": {"type": "string"},
+                        "unit": {
+                            "type": "string",
+                            "description": "fixed by the quantity (all values are SI): "
+                            "rad/s for angular_rate, m/s^2 for acceleration; a label for "
+                            "as_recorded",
+                        },
                         "sample_rate": {"type": "number", "exclusiveMinimum": 0},
                         "bandwidth": {"type": "number", "exclusiveMinimum": 0},
                         "filter_order": {"type": "integer", "minimum": 1, "maximum": 8},
@@ -434,6 +465,13 @@ def noise_model_schema() -> dict[str, Any]:
                             },
                         },
                     },
+                    "allOf": [
+                        {
+                            "if": {"properties": {"quantity": {"const": q}}},
+                            "then": {"properties": {"unit": {"const": SI_LABEL[q]}}},
+                        }
+                        for q in ("angular_rate", "acceleration")
+                    ],
                     "additionalProperties": False,
                 },
             },

@@ -179,29 +179,30 @@ def drift_figure(result: Any, *, display: Display | None = None) -> Any:
         contribution dashed.
     """
     si = {"angle": ("rad", 1.0), "velocity": ("m/s", 1.0), "position": ("m", 1.0)}
-    fig, axes = _figure(len(result.channels), 2, fixed_margins=True)
-    for row, ch in enumerate(result.channels):
-        kinds = list(ch.values)
-        for col in range(2):
-            ax = axes[row][col]
-            if col >= len(kinds):
-                ax.set_axis_off()
-                continue
-            kind = kinds[col]
-            label, factor = (display or {}).get(kind, si[kind])
-            t = ch.time
-            for term, d in ch.contributions.items():
-                y = d[kind] * factor
-                if np.any(y > 0):
-                    ax.loglog(t, np.where(y > 0, y, np.nan), "--", lw=1.1, label=term)
-            y = ch.values[kind] * factor
-            ax.loglog(t, np.where(y > 0, y, np.nan), "k-", lw=2.0, label="total (1σ)")
-            ax.set_title(f"{ch.id}: {kind} error")
-            ax.set_xlabel("time since turn-on [s]")
-            ax.set_ylabel(f"{kind} 1σ [{label}]")
+    panels = [(ch, kind) for ch in result.channels for kind in ch.values]
+    # panels flow over columns (three, or two, whichever fills the rows; no empty panel)
+    n = len(panels)
+    cols = next((c for c in (3, 2) if n % c == 0), min(n, 3))
+    rows = -(-n // cols)
+    fig, axes = _figure(rows, cols, fixed_margins=True)
+    for k in range(n, rows * cols):  # a last row that cannot be full: its spare cells go
+        fig.delaxes(axes[k // cols][k % cols])
+    for k, (ch, kind) in enumerate(panels):
+        ax = axes[k // cols][k % cols]
+        label, factor = (display or {}).get(kind, si[kind])
+        t = ch.time
+        for term, d in ch.contributions.items():
+            y = d[kind] * factor
             if np.any(y > 0):
-                ax.set_ylim(bottom=np.min(y[y > 0]) * 1e-3)
-            _style(ax)
+                ax.loglog(t, np.where(y > 0, y, np.nan), "--", lw=1.1, label=term)
+        y = ch.values[kind] * factor
+        ax.loglog(t, np.where(y > 0, y, np.nan), "k-", lw=2.0, label="total (1σ)")
+        ax.set_title(f"{ch.id}: {kind} error")
+        ax.set_xlabel("time since turn-on [s]")
+        ax.set_ylabel(f"{kind} 1σ [{label}]")
+        if np.any(y > 0):
+            ax.set_ylim(bottom=np.min(y[y > 0]) * 1e-3)
+        _style(ax)
     return fig
 
 
@@ -250,8 +251,16 @@ def verdict_allan_figure(verdict: Any, *, display: tuple[str, float] | None = No
     fitted = getattr(verdict.identification, "fitted_adev", None)
     if fitted is not None:
         ax.loglog(t_fine, np.asarray(fitted(t_fine)) * factor, "k-", lw=1.6, label="fitted model")
+    _mark_datasheet_values(ax, verdict, factor)
     limit = verdict.limit_channel.allan_deviation(t_fine) * factor
-    ax.loglog(t_fine, limit, "--", color="tab:red", lw=1.8, label="datasheet limit")
+    # judged where the nearest measured τ (in log τ) is judged; elsewhere a reference only
+    nearest = np.abs(np.log(t_fine)[:, None] - np.log(tau)[None, :]).argmin(axis=1)
+    judged = check.judged[nearest]
+    ax.loglog(t_fine, np.where(judged, limit, np.nan), "--", color="tab:red", lw=1.8,
+              label="datasheet limit")
+    if not np.all(judged):
+        ax.loglog(t_fine, np.where(judged, np.nan, limit), ":", color="0.45", lw=1.6,
+                  label="datasheet curve at typ values (reference, not a limit)")
     for k, (t0, t1) in enumerate(check.exceeded):
         lo, hi = t0 / 1.15, t1 * 1.15
         ax.axvspan(lo, hi, color="tab:red", alpha=0.12, lw=0,
@@ -265,8 +274,25 @@ def verdict_allan_figure(verdict: Any, *, display: tuple[str, float] | None = No
     return fig
 
 
-def verdict_psd_figure(verdict: Any, *, display: tuple[str, float] | None = None) -> Any:
-    """One-sided PSD of one channel's recording, with the limit and fitted models.
+def _mark_datasheet_values(ax: Any, verdict: Any, factor: float) -> None:
+    """The datasheet's own readings on an Allan figure: a white term's limit N at τ = 1 s
+    (σ(1 s) = N, IEEE Std 952 Annex C) and a bias-instability limit as its floor line."""
+    for tv in verdict.terms:
+        spec = tv.spec
+        value = spec.limit * factor
+        if spec.type == "white":
+            ax.loglog([1.0], [value], "v", ms=8, color="tab:red", zorder=5,
+                      label=f"{spec.key} ({spec.text}) at τ = 1 s")
+        elif spec.quantity == "allan_floor":
+            ax.axhline(value, color="tab:red", ls=":", lw=1.2,
+                       label=f"{spec.key} ({spec.text}): the floor")
+
+
+def verdict_psd_figure(
+    verdict: Any, *, display: tuple[str, float] | None = None, asd: bool = False
+) -> Any:
+    """One-sided PSD of one channel's recording, with the limit and fitted models; or, with
+    ``asd``, the amplitude spectral density as datasheets print it.
 
     Parameters
     ----------
@@ -275,14 +301,23 @@ def verdict_psd_figure(verdict: Any, *, display: tuple[str, float] | None = None
         (:class:`~sensormodel.spectrum.PSDResult`, f [Hz], psd [u²/Hz]) of the record, or None.
     display : (str, float), optional
         Unit label and the factor that multiplies SI values; the PSD is multiplied by factor².
+    asd : bool
+        Draw √(two-sided PSD) [label/√Hz] instead: white noise of IEEE Std 952 density N then
+        reads N, the number a datasheet prints as its noise density (its default convention).
 
     Returns
     -------
     matplotlib.figure.Figure
         Measured one-sided PSD (blue), the datasheet-limit model (red, dashed) and the fitted
-        model (black), all one-sided (= 2 × the IEEE Std 952 two-sided PSD).
+        model (black), all one-sided (= 2 × the IEEE Std 952 two-sided PSD); or their
+        two-sided amplitude densities.
     """
     label, factor = display or (verdict.unit, 1.0)
+
+    def shown(one_sided: Any) -> Any:  # what is drawn of a one-sided PSD [u²/Hz]
+        s = np.asarray(one_sided, dtype=float)
+        return np.sqrt(0.5 * s) * factor if asd else s * factor**2
+
     fig, ax = _single_figure()
     psd = getattr(verdict, "psd", None)
     f_lo = 1.0 / max(verdict.duration, 1e-9)
@@ -290,28 +325,30 @@ def verdict_psd_figure(verdict: Any, *, display: tuple[str, float] | None = None
     if psd is not None:
         f, s = psd.f, psd.psd
         keep = f > 0
-        ax.loglog(f[keep], s[keep] * factor**2, "-", color="tab:blue", lw=0.9,
+        ax.loglog(f[keep], shown(s[keep]), "-", color="tab:blue", lw=0.9,
                   label="measured (Welch)")
         if np.any(keep):
             f_lo = float(f[keep][0])
     f_grid = np.geomspace(f_lo, f_hi, 160)
-    lim = verdict.limit_channel.psd(f_grid, sided="one-sided") * factor**2
+    lim = shown(verdict.limit_channel.psd(f_grid, sided="one-sided"))
     ax.loglog(f_grid, np.where(lim > 0, lim, np.nan), "--", color="tab:red", lw=1.8,
               label="datasheet limit")
     to_channel = getattr(verdict.identification, "to_channel", None)
     if to_channel is not None:
         try:
             fitted = to_channel()
-            s_fit = fitted.psd(f_grid, sided="one-sided") * factor**2
+            s_fit = shown(fitted.psd(f_grid, sided="one-sided"))
             ax.loglog(f_grid, np.where(s_fit > 0, s_fit, np.nan), "k-", lw=1.4,
                       label="fitted model")
         except SensorModelError:  # a fitted model without a PSD is just not drawn
             pass
     _label(
         ax,
-        f"{verdict.id}: power spectral density (one-sided)",
+        f"{verdict.id}: "
+        + ("amplitude spectral density (√ two-sided PSD)" if asd else "power spectral density "
+           "(one-sided)"),
         "frequency [Hz]",
-        f"S(f) [({label})²/Hz]",
+        f"√S(f) [{label}/√Hz]" if asd else f"S(f) [({label})²/Hz]",
     )
     return fig
 

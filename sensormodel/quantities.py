@@ -31,6 +31,7 @@ import pint
 from .errors import UnitError
 
 __all__ = [
+    "dimension_words",
     "UREG",
     "KINDS",
     "Kind",
@@ -114,6 +115,23 @@ KINDS: dict[str, Kind] = {
     ),
     "acceleration_ramp": Kind("m/s**3", "an acceleration ramp", "1 ug/h", acceleration=True),
     "time": Kind("s", "a time", "100 s"),
+    "angular_rate_per_temperature": Kind(
+        "rad/s/K", "an angular rate per degree of temperature", "0.01 deg/s/degC"
+    ),
+    "acceleration_per_temperature": Kind(
+        "m/s**2/K", "an acceleration per degree of temperature", "0.05 mg/degC", acceleration=True
+    ),
+    "per_temperature": Kind("1/K", "a ratio per degree of temperature", "100 ppm/degC"),
+    "rate_per_acceleration": Kind(
+        "rad*s/m", "an angular rate per acceleration", "1 deg/h/g", acceleration=True
+    ),
+    "rate_per_acceleration_squared": Kind(
+        "rad*s**3/m**2", "an angular rate per acceleration squared", "0.1 deg/h/g^2",
+        acceleration=True,
+    ),
+    "acceleration_per_acceleration_squared": Kind(
+        "s**2/m", "an acceleration per acceleration squared", "50 ug/g^2", acceleration=True
+    ),
     "frequency": Kind("Hz", "a frequency", "400 Hz"),
     "dimensionless": Kind("", "a plain ratio", "100 ppm"),
 }
@@ -153,6 +171,7 @@ _WORD_ALIASES = {
     "deg": "deg",
 }
 _WORD = re.compile(r"(?<![A-Za-z_])([A-Za-z_]+)(?![A-Za-z_0-9])")
+_CELSIUS = re.compile(r"(?:°|º|\bdeg\s*)\s*C\b|\bdegC\b|\bcelsius\b", re.IGNORECASE)
 _GEE = re.compile(r"(?<![A-Za-z_])([mun]?)g(?![A-Za-z_0-9])")
 _GEE_PREFIX = {"": "gee", "m": "milligee", "u": "microgee", "n": "nanogee"}
 
@@ -173,6 +192,8 @@ def normalize_unit(text: str, *, acceleration: bool = False) -> str:
         The same unit in pint syntax, e.g. ``"deg/((hr)**0.5)"``.
     """
     s = text.strip().replace("−", "-").replace("–", "-")
+    # a degree Celsius in a unit (°C, degC, deg C) is a temperature difference: /°C is /K
+    s = _CELSIUS.sub(" delta_degC ", s)
     s = s.replace("°", " deg ").replace("º", " deg ").replace("µ", "u").replace("μ", "u")
     s = s.replace("^½", "**0.5").replace("½", "**0.5").replace("·", "*").replace("⋅", "*")
     s = _SUPER_RUN.sub(lambda m: "**" + m.group(0).translate(_SUPERSCRIPTS), s)
@@ -188,9 +209,27 @@ def normalize_unit(text: str, *, acceleration: bool = False) -> str:
     return s
 
 
+_POWER_WORDS = {0.5: "√{}", 1: "{}", 1.5: "{}^1.5", 2: "{}²", 2.5: "{}^2.5", 3: "{}³"}
+
+
+def dimension_words(dim: str) -> str:
+    """A dimension in words for messages: ``"[mass] * [time] ** 0.5"`` → ``"mass × √time"``,
+    ``"[angle] / [time]"`` → ``"angle / time"``, ``""`` → ``"a plain number"``."""
+    if dim in ("", "dimensionless"):
+        return "a plain number"
+    powers = dict(UREG.get_dimensionality(dim))
+
+    def word(name: str, p: float) -> str:
+        base = name.strip("[]")
+        return _POWER_WORDS.get(abs(p), "{}^" + f"{abs(p):g}").format(base)
+
+    up = " × ".join(word(n, p) for n, p in powers.items() if p > 0)
+    down = " / ".join(word(n, p) for n, p in powers.items() if p < 0)
+    return f"{up or '1'} / {down}" if down else up
+
+
 def _dimension_text(unit: pint.Unit | pint.Quantity) -> str:
-    dim = str(unit.dimensionality)
-    return "dimensionless" if dim in ("", "dimensionless") else dim
+    return dimension_words(str(unit.dimensionality))
 
 
 @lru_cache(maxsize=1024)
@@ -231,7 +270,7 @@ def _unit_factor(unit_text: str, kind: str, *, field: str | None, source: str | 
         ) from None
     si_factor, _, si_dim = _parse_unit_cached(info.si, False) if info.si else (1.0, "", "")
     if dim != si_dim and not (dim in ("", "dimensionless") and si_dim in ("", "dimensionless")):
-        shown = dim if dim not in ("", "dimensionless") else "dimensionless"
+        shown = dimension_words(dim)
         hint = ""
         if "[mass]" in dim and not info.acceleration:
             hint = " ('g' is read as grams outside acceleration fields)"
@@ -394,6 +433,12 @@ DISPLAY_UNITS: dict[str, tuple[str, str]] = {
     "time": ("s", "s"),
     "frequency": ("Hz", "Hz"),
     "dimensionless": ("", ""),
+    "angular_rate_per_temperature": ("deg/h/K", "°/h/K"),
+    "acceleration_per_temperature": ("ug/K", "µg/K"),
+    "per_temperature": ("ppm/K", "ppm/K"),
+    "rate_per_acceleration": ("deg/h/g", "°/h/g"),
+    "rate_per_acceleration_squared": ("deg/h/g^2", "°/h/g²"),
+    "acceleration_per_acceleration_squared": ("ug/g^2", "µg/g²"),
 }
 
 

@@ -9,6 +9,7 @@ the whole chain (simulate -> Allan deviation -> identify -> verdict) by seeded s
 from __future__ import annotations
 
 import math
+from dataclasses import replace
 from types import SimpleNamespace
 
 import numpy as np
@@ -670,6 +671,25 @@ def test_verify_recording_notes_as_reason_codes(write_datasheet, tmp_path) -> No
     assert "note: not in the recording, not verified: gyro.y" in text
     assert "note: in the recording but not on the datasheet, ignored: gyro.x" in text
     assert "gyro.z: the recording has 2 clean segments; the longest (600 s of" in text
+    # the missing channel's limits were not checked: even with every checked term passing, the
+    # overall verdict is inconclusive (exit 3), never pass
+    assert codes["limits_not_checked"] == {
+        "terms": ("gyro.y angle_random_walk", "gyro.y bias_instability")
+    }
+    assert "not checked (channel missing from the recording): gyro.y angle_random_walk" in text
+    passed = replace(
+        rep,
+        channels=tuple(
+            replace(c, terms=tuple(replace(t, verdict="pass") for t in c.terms))
+            for c in rep.channels
+        ),
+    )
+    assert passed.overall == "inconclusive" and passed.exit_code == 3
+    checked = replace(passed, notes=tuple(n for n in passed.notes if n[0] != "limits_not_checked"))
+    assert checked.overall == "pass" and checked.exit_code == 0
+    # channels left out on purpose are not "not checked": the report names those verified
+    only = acc.verify(rec, path, n_boot=41, seed=1, channels=["gyro.z"])
+    assert "limits_not_checked" not in dict(only.notes)
 
 
 _GM_LONG_SHEET = """
@@ -708,3 +728,54 @@ def test_unresolved_time_constant_is_never_a_pass(write_datasheet) -> None:
     assert bias.low <= bias.spec.limit <= bias.high
     assert bias.required_duration is None and "length_unknown" in codes
     assert "time constant not resolved" in report.term_note(bias)
+
+
+_TYP_ONLY_SHEET = """
+[sensor]
+name = "constructed, bias instability typ only"
+sample_rate = "10 Hz"
+axes = ["z"]
+[gyro]
+angle_random_walk = { typ = "0.01 deg/rt-hr", max = "0.02 deg/rt-hr" }
+bias_instability = { typ = "0.5 deg/h" }
+"""
+
+
+def test_whole_curve_check_judges_limits_only(write_datasheet) -> None:
+    # Only limits are limits: a term printed with a typ value alone fills the datasheet curve
+    # at its typ, and where it makes that curve the check is not judged (a unit at exactly typ
+    # was once "exceeded with confidence" there). Hand check (IEEE Std 952 Annex C): the ARW
+    # max N = 0.02 °/√h gives σ² = N²/τ, the typ floor 0.5 °/h gives σ² ≈ (0.5 °/h)² on its
+    # flat part; at τ = 0.1 s the ARW line is ~99.7 % of the curve, at 10⁴ s ~0.6 %.
+    ax = _axis(write_datasheet, _TYP_ONLY_SHEET)
+    tau = np.geomspace(0.1, 1e4, 31)
+    share = acc.limited_share(ax, tau, rate=10.0, against="max")
+    n2 = (0.02 * uref.DEG_PER_RT_H) ** 2 / tau
+    assert share[0] > 1.0 - acc.UNLIMITED_SHARE_MAX and share[-1] < 0.05
+    assert np.all(np.diff(share) < 1e-12)  # the ARW line's share falls with τ
+    assert share[0] == pytest.approx(n2[0] / (n2[0] + (0.5 * ref.DEG_PER_H) ** 2), rel=0.05)
+    # a measured curve: ARW at half its max, the floor 3× its typ (allowed: typ is no limit)
+    lim = acc.limit_channel(ax, rate=10.0, against="max").allan_deviation(tau)
+    floor_high = np.sqrt(n2 / 4.0 + (3.0 * 0.5 * ref.DEG_PER_H) ** 2)
+    curve = SimpleNamespace(tau=tau, adev=floor_high, ci_low=0.95 * floor_high,
+                            ci_high=1.05 * floor_high)
+    judged = share >= 1.0 - acc.UNLIMITED_SHARE_MAX
+    unjudged = acc.curve_check(curve, lim, confidence=0.9)
+    assert unjudged.exceeded  # the old behaviour: the typ-filled curve read as a limit
+    check = acc.curve_check(curve, lim, confidence=0.9, checked=judged)
+    assert not check.exceeded and check.verdict == "pass"
+    assert check.not_judged == ((float(tau[judged.argmin()]), float(tau[-1])),)
+    words = report._verdict._curve_result(check, dash="-")
+    assert words.startswith("within the limit curve at every τ judged; not judged at τ")
+    with pytest.raises(AnalysisError, match="checked"):
+        acc.curve_check(curve, lim, confidence=0.9, checked=judged[:-1])
+
+
+def test_whole_curve_check_single_tau_range_in_words() -> None:
+    # "τ 315-315 s" was printed for a range of one τ: one τ alone is printed once.
+    tau = np.array([10.0, 315.0, 1000.0])
+    curve = SimpleNamespace(tau=tau, adev=np.array([1.0, 3.0, 1.0]),
+                            ci_low=np.array([0.9, 2.5, 0.9]), ci_high=np.array([1.1, 3.5, 1.1]))
+    check = acc.curve_check(curve, np.full(3, 2.0), confidence=0.9)
+    assert check.exceeded == ((315.0, 315.0),)
+    assert report._verdict._curve_result(check, dash="-") == "exceeded with confidence at τ 315 s"

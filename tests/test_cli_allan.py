@@ -209,7 +209,7 @@ def test_bad_recording_writes_nothing(runner, tmp_path) -> None:  # type: ignore
         ),
         (
             ["--taus", "0.01,2 m"],
-            "--taus: got 'm' ([length]); expected a time convertible to 's', such as '100 s'",
+            "--taus: got 'm' (length); expected a time convertible to 's', such as '100 s'",
         ),
         (["--unit", "rate_z="], "--unit rate_z=; expected COLUMN=UNIT, e.g. gyro_x=deg/s"),
         (["--rate", "fast"], "--rate: cannot read 'fast' as a number followed by a unit; "

@@ -158,7 +158,7 @@ def test_build_refusal_message_is_the_library_message(runner, write_datasheet, t
         build_model(sheet)
     assert result.stderr == f"error: {info.value}\n"
     assert result.stderr == (
-        f"error: {sheet}:gyro.angle_random_walk: got '1/sqrt(h)' (1 / [time] ** 0.5); expected an "
+        f"error: {sheet}:gyro.angle_random_walk: got '1/sqrt(h)' (1 / √time); expected an "
         "angle random walk (angular rate per root hertz) convertible to 'rad/s**0.5', such as "
         "'0.15 deg/rt-h'\n"
     )

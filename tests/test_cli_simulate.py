@@ -171,7 +171,7 @@ def test_refusals(runner, model_file, tmp_path) -> None:  # type: ignore[no-unty
     assert res.exit_code == 0 and out.read_bytes() != before
     res = _run(runner, "simulate", model_file, "--duration", "10 m", "-o", tmp_path / "x.csv")
     assert res.exit_code == 2
-    assert res.stderr.startswith("error: --duration: got 'm' ([length]); expected a time")
+    assert res.stderr.startswith("error: --duration: got 'm' (length); expected a time")
     assert "Traceback" not in res.stderr and not (tmp_path / "x.csv").exists()
     res = _run(
         runner,
@@ -191,6 +191,8 @@ def test_refusals(runner, model_file, tmp_path) -> None:  # type: ignore[no-unty
     )
     res = _run(runner, "simulate", model_file, "--duration", "1", "-o", tmp_path / "x.wav")
     assert res.exit_code == 2 and "unknown recording format '.wav'" in res.stderr
+    # refused before a seed is drawn: no "note: seed …" for a record never written
+    assert "seed" not in res.stderr and res.stderr.count("\n") == 1
     assert not (tmp_path / "x.wav").exists()
     res = _run(
         runner,

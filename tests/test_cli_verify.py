@@ -211,6 +211,27 @@ def test_verify_existing_report_refused(runner, sheet, tmp_path) -> None:
     assert out.read_text(encoding="utf-8") == "{}"
 
 
+def test_verify_figure_clash_refused_before_any_work(runner, sheet, tmp_path, monkeypatch) -> None:
+    # A figure already beside the report was found only after all the work (exit 2, the
+    # verdict hidden, the --json file left behind): every output is checked first.
+    from sensormodel.cli import _acceptance
+
+    def no_work(*args, **kwargs):  # the work must not start
+        raise AssertionError("verify ran before the outputs were checked")
+
+    monkeypatch.setattr(_acceptance, "verify", no_work)
+    rec = _record(tmp_path, "r.csv", white_factor=1.0, n=500, seed=5)
+    page, js = tmp_path / "rep.html", tmp_path / "rep.json"
+    clash = tmp_path / "rep-gyro.z-allan.png"
+    clash.write_bytes(b"old figure")
+    result = runner.invoke(
+        cli, ["verify", str(rec), "--spec", str(sheet), "--report", str(page), "--json", str(js)]
+    )
+    assert result.exit_code == 2, result.output
+    assert "rep-gyro.z-allan.png" in result.stderr and "--force" in result.stderr
+    assert not page.exists() and not js.exists() and clash.read_bytes() == b"old figure"
+
+
 # ---------------------------------------------------------------------------------------------
 # plan
 # ---------------------------------------------------------------------------------------------
@@ -266,3 +287,18 @@ def test_verify_reads_datasheet_units(runner, sheet, tmp_path) -> None:
     for x, z in zip(ta, tb, strict=True):
         assert x["verdict"] == z["verdict"]
         assert z["estimate"] == pytest.approx(x["estimate"], rel=1e-9)
+
+
+def test_verify_bootstrap_minimum_named_before_any_work(runner, sheet, tmp_path, monkeypatch):
+    # --bootstrap once advertised x ≥ 1 but refused 20 after the work, by the internal name
+    # n_boot. At confidence 0.9 two records beyond each end need ⌈2/0.05⌉ = 40.
+    from sensormodel.cli import _acceptance
+
+    monkeypatch.setattr(_acceptance, "verify", lambda *a, **k: pytest.fail("work started"))
+    rec = _record(tmp_path, "r.csv", white_factor=1.0, n=500, seed=5)
+    result = runner.invoke(cli, ["verify", str(rec), "--spec", str(sheet), "--bootstrap", "20"])
+    assert result.exit_code == 2
+    assert "--bootstrap" in result.stderr and "at least 40" in result.stderr
+    assert "n_boot" not in result.stderr
+    result = runner.invoke(cli, ["verify", "--help"])
+    assert "40 at 0.9" in result.output

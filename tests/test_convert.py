@@ -49,6 +49,29 @@ def test_one_sided_density_is_divided_by_root_two():
         BASE + 'density_is = "one-sided"\n[gyro]\nangle_random_walk = "0.15 deg/rt-h"\n'
     )
     assert terms["white"].density == pytest.approx(0.15 * ref.DEG_PER_RT_H, rel=5e-7)
+    assert terms["white"].meta["datasheet"]["convention"] == "random-walk coefficient"
+
+
+@pytest.mark.parametrize(
+    ("key", "text", "si"),
+    [
+        # 9 °/h/√Hz = 0.15 °/√h (÷60); 60 µg/√Hz = 60e-6·9.80665 m/s²/√Hz (g standard gravity)
+        ("angle_random_walk", "9 deg/h/rtHz", 0.15 * ref.DEG_PER_RT_H),
+        ("velocity_random_walk", "60 ug/rtHz", 60e-6 * 9.80665),
+    ],
+)
+def test_one_sided_applies_to_a_walk_typed_as_a_density(key, text, si):
+    # A value typed in a density's unit is a density, whichever key holds it: density_is =
+    # "one-sided" divides it by √2 (it was once ignored there: a silent 41 % difference), and
+    # the model's provenance says what was applied.
+    instrument = "gyro" if key == "angle_random_walk" else "accelerometer"
+    body = f'[{instrument}]\n{key} = "{text}"\n'
+    one, _ = terms_of(BASE + 'density_is = "one-sided"\n' + body, instrument=instrument)
+    two, _ = terms_of(BASE + body, instrument=instrument)
+    assert one["white"].density == pytest.approx(si / math.sqrt(2), rel=5e-7)
+    assert two["white"].density == pytest.approx(si, rel=5e-7)
+    assert one["white"].meta["datasheet"]["convention"] == "one-sided"
+    assert two["white"].meta["datasheet"]["convention"] == "two-sided"
 
 
 def test_accelerometer_density_in_micro_g():
@@ -245,3 +268,17 @@ def test_model_of_t900_worst_case(examples_dir):
     assert gm.sigma == pytest.approx(
         20e-6 * ref.STANDARD_GRAVITY / ref.GM_PEAK_ADEV_OVER_SIGMA, rel=1e-6
     )
+
+
+def test_bandwidth_above_nyquist_is_noted():
+    # A bandwidth above half the output rate was accepted silently: it is noted (aliasing).
+    from sensormodel import build_model
+    from sensormodel.datasheet import parse_datasheet
+
+    text = '[sensor]\nsample_rate = "400 Hz"\nbandwidth = "250 Hz"\n[gyro]\n' \
+        'angle_random_walk = "0.15 deg/rt-h"\n'
+    notes = build_model(parse_datasheet(tomllib.loads(text), source="s.toml")).provenance["notes"]
+    assert any("above the Nyquist frequency 200 Hz" in n for n in notes), notes
+    ok = text.replace("250 Hz", "150 Hz")
+    notes = build_model(parse_datasheet(tomllib.loads(ok), source="s.toml")).provenance["notes"]
+    assert not any("Nyquist" in n for n in notes)

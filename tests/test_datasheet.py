@@ -195,7 +195,7 @@ REFUSALS = [
         G + 'angle_random_walk = "0.1 1/sqrt(h)"',
         UnitError,
         ARW,
-        r"got '1/sqrt\(h\)' \(1 / \[time\] \*\* 0\.5\); expected an angle random walk",
+        r"got '1/sqrt\(h\)' \(1 / √time\); expected an angle random walk",
     ),
     (
         "bare-number",
@@ -245,7 +245,7 @@ REFUSALS = [
         G + 'bias_instability = "25 ug"',
         UnitError,
         r"gyro\.bias_instability",
-        r"got 'ug' \(\[mass\]\) \('g' is read as grams outside acceleration fields\)",
+        r"got 'ug' \(mass\) \('g' is read as grams outside acceleration fields\)",
     ),
     (
         "wrong-dimension-typ",
@@ -365,7 +365,7 @@ REFUSALS = [
         BASE + 'bandwidth = "100 deg/s"\n[gyro]\nangle_random_walk = "0.1 deg/rt-h"',
         UnitError,
         r"sensor\.bandwidth",
-        r"got 'deg/s' \(\[angle\] / \[time\]\); expected a frequency",
+        r"got 'deg/s' \(angle / time\); expected a frequency",
     ),
     (
         "bad-density-is",
@@ -554,3 +554,85 @@ def test_check_keys_refuses_an_unknown_key_with_the_nearest_name():
     assert info.value.source == "unit.toml"
     assert "did you mean 'max'?" in info.value.problem
     assert info.value.expected == "one of typ, max"
+
+
+# ---- keys that are not noise terms ------------------------------------------------------------
+
+_PASTED = BASE + """
+[gyro]
+angle_random_walk = "0.15 deg/rt-h"
+measurement_range = "450 deg/s"
+bias_offset = { max = "0.2 deg/s" }
+bias_temperature_sensitivity = "0.01 deg/s/°C"
+scale_factor_error = "0.1 %"
+scale_factor_nonlinearity = "300 ppm"
+scale_factor_stability = { typ = "500 ppm" }
+scale_factor_temperature_sensitivity = "100 ppm/degC"
+misalignment = "1 mrad"
+cross_axis_sensitivity = "0.5 %"
+g_sensitivity = "1 deg/h/g"
+g_squared_sensitivity = "0.1 deg/h/g^2"
+[accelerometer]
+velocity_random_walk = "60 ug/rtHz"
+measurement_range = "8 g"
+bias_temperature_sensitivity = "0.05 mg/degC"
+vibration_rectification = "50 ug/g^2"
+"""
+
+
+def test_a_pasted_datasheet_table_is_read_and_its_other_keys_listed():
+    # A whole datasheet table pasted in was refused at its first non-noise key: the common
+    # ones are read (units checked, SI; g is standard gravity 9.80665 m/s², CGPM 1901), and
+    # the model lists them as not noise terms, saying what the used ones are kept for.
+    from sensormodel import build_model
+
+    ds = parse(_PASTED)
+    g = ds.instruments["gyro"].axes["x"].values
+    a = ds.instruments["accelerometer"].axes["x"].values
+    deg = math.pi / 180.0
+    assert g["measurement_range"].typ == pytest.approx(450 * deg, rel=1e-12)
+    assert g["bias_offset"].max == pytest.approx(0.2 * deg, rel=1e-12)
+    assert g["bias_temperature_sensitivity"].typ == pytest.approx(0.01 * deg, rel=1e-12)  # /K
+    assert g["scale_factor_error"].typ == pytest.approx(1e-3, rel=1e-12)
+    assert g["scale_factor_nonlinearity"].typ == pytest.approx(300e-6, rel=1e-12)
+    assert g["scale_factor_temperature_sensitivity"].typ == pytest.approx(100e-6, rel=1e-12)
+    assert g["misalignment"].typ == pytest.approx(1e-3, rel=1e-12)
+    assert g["g_sensitivity"].typ == pytest.approx(ref.DEG_PER_H / ref.STANDARD_GRAVITY, rel=1e-6)
+    assert g["g_squared_sensitivity"].typ == pytest.approx(
+        0.1 * ref.DEG_PER_H / ref.STANDARD_GRAVITY**2, rel=1e-6
+    )
+    assert a["measurement_range"].typ == pytest.approx(8 * ref.STANDARD_GRAVITY, rel=1e-12)
+    assert a["bias_temperature_sensitivity"].typ == pytest.approx(
+        0.05e-3 * ref.STANDARD_GRAVITY, rel=1e-12
+    )
+    vre = a["vibration_rectification"].typ
+    assert vre == pytest.approx(50e-6 / ref.STANDARD_GRAVITY, rel=1e-12)
+    notes = build_model(ds).provenance["notes"]
+    kept = "gyro.measurement_range (450 deg/s): not a noise term, kept for: saturation"
+    assert any(n.startswith(kept) for n in notes), notes
+    assert "gyro.misalignment (1 mrad): not a noise term, not used" in notes
+    # an instrument-level key is noted once, not once per axis
+    assert sum(n.startswith("gyro.misalignment") for n in notes) == 1
+
+
+@pytest.mark.parametrize(
+    ("line", "message"),
+    [
+        ('scale_factor_eror = "0.1 %"', r"did you mean 'scale_factor_error'\?"),
+        ('g_sensitivity = "1 deg/h"', r"g_sensitivity"),  # the wrong kind of quantity
+        ('bias_temperature_sensitivity = "0.01 deg/s"', r"bias_temperature_sensitivity"),
+    ],
+)
+def test_other_keys_still_refuse_misspellings_and_wrong_units(line, message):
+    with pytest.raises(SensorModelError, match=message):
+        parse(BASE + '[gyro]\nangle_random_walk = "0.15 deg/rt-h"\n' + line + "\n")
+
+
+def test_every_key_is_documented_in_the_readme():
+    # The README documents every datasheet key (key, meaning, a value, the term it makes).
+    readme = (pathlib.Path(__file__).resolve().parent.parent / "README.md").read_text("utf-8")
+    for fields in FIELDS.values():
+        for key in fields:
+            assert f"`{key}`" in readme, key
+    for key in CONVENTIONS:
+        assert f"`{key}" in readme, key

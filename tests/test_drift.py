@@ -5,6 +5,7 @@ UCAM-CL-TR-696, 2007) and against seeded simulations."""
 from __future__ import annotations
 
 import math
+from dataclasses import replace
 
 import numpy as np
 import pytest
@@ -200,3 +201,44 @@ def test_time_grid_and_refusals():
         closed_form(recorded, grid)
     with pytest.raises(TypeError, match="points_per_decade"):
         drift(NoiseModel(sensor={}, channels=(_gyro(White(1.0)),)), 10.0, points_per_decade=3)
+
+
+def test_a_term_left_out(examples_dir):
+    # The turn-on bias calibrated at the start: left out, the angle error is the other terms'
+    # alone. Hand check (closed forms, REFERENCES §12): a random constant σ grows as σ·t, so
+    # with it the 10 min angle of a bias repeatability of 0.2 °/s is ≥ 120°.
+    model = build_model(examples_dir / "bw-m200.toml")
+    full = drift(model, 600.0, times=[600.0])
+    calibrated = drift(model, 600.0, times=[600.0], without=["random_constant"])
+    assert calibrated.without == ("random_constant",)
+    g_full = full.channels[0].values["angle"][0]
+    g_cal = calibrated.channels[0].values["angle"][0]
+    assert math.degrees(g_full) >= 0.2 * 600.0
+    rest = [t for t in model.channels[0].terms if t.type != "random_constant"]
+    alone = channel_drift(replace(model.channels[0], terms=tuple(rest)), 600.0, times=[600.0])
+    assert g_cal == pytest.approx(alone.values["angle"][0], rel=1e-12)
+    assert g_cal < g_full / 50
+    doc = calibrated.to_dict()
+    validate(doc, "drift.schema.json")
+    assert doc["without"] == ["random_constant"]
+    # the per-term curves are in the JSON: each term's own closed-form 1σ
+    terms = doc["channels"][0]["terms"]
+    assert "random_constant" not in terms and "white" in terms
+    white = calibrated.channels[0].contributions["white"]["angle"]
+    assert terms["white"]["angle"] == white.tolist()
+    with pytest.raises(AnalysisError, match="unknown term 'bias'"):
+        drift(model, 600.0, without=["bias"])
+
+
+def test_drift_figure_has_no_empty_panel(examples_dir):
+    # one panel per integrated quantity, flowing over the columns: 3 gyros (angle) and
+    # 3 accelerometers (velocity, position) make 9 panels in 3 × 3, none empty
+    from sensormodel import plots
+
+    model = build_model(examples_dir / "bw-m200.toml")
+    fig = plots.drift_figure(drift(model, 60.0, points=5))
+    axes = fig.get_axes()
+    assert len(axes) == 9 and all(ax.axison and ax.lines for ax in axes)
+    gyro_only = drift(model.select(["gyro.x", "gyro.y"]), 60.0, points=5)
+    axes = plots.drift_figure(gyro_only).get_axes()
+    assert len(axes) == 2 and all(ax.lines for ax in axes)

@@ -149,6 +149,8 @@ def _edit(doc: dict, how: str) -> dict:
         doc["channels"][0]["colour"] = "red"
     elif how == "no-channels":
         doc["channels"] = []
+    elif how == "unit":
+        doc["channels"][0]["unit"] = "deg/s"
     elif how == "duplicate":
         doc["channels"][1]["id"] = doc["channels"][0]["id"]
     return doc
@@ -185,6 +187,8 @@ LOAD_REFUSALS = [
     ),
     ("no-channels", r"channels", r".*\[\] should be non-empty"),
     ("duplicate", None, r"duplicate channel ids \['gyro\.x'\]"),
+    # a hand-edited unit was once relabelled by inspect and ignored by drift (57× apart)
+    ("unit", r"channels\[0\]\.unit", r"unit is 'deg/s' for a channel of quantity angular_rate"),
 ]
 
 

@@ -263,12 +263,12 @@ def test_hdf5_needs_h5py(tmp_path: pathlib.Path, monkeypatch: pytest.MonkeyPatch
             csv_text(["0,1", "0.1,2"], "time [s],gyro_x [m/s]"),
             {},
             ":column 'gyro_x': got 'm/s' "
-            "([length] / [time]); expected an angular rate such as 'deg/s' for channel gyro.x",
+            "(length / time); expected an angular rate such as 'deg/s' for channel gyro.x",
         ),
         (
             csv_text(["0,1", "0.1,2"], "time [s],accelerometer_x [deg/s]"),
             {},
-            ":column 'accelerometer_x': got 'deg/s' ([angle] / [time]); expected an acceleration "
+            ":column 'accelerometer_x': got 'deg/s' (angle / time); expected an acceleration "
             "such as 'm/s^2' or 'mg' for channel accelerometer.x",
         ),
         (

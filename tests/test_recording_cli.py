@@ -215,7 +215,7 @@ def test_verify_takes_increments(runner, sheet, tmp_path) -> None:  # type: igno
     )
     assert res.exit_code == 2
     assert res.stderr.splitlines()[-1] == (
-        f"error: {path}:column 'dtheta_z': got 'deg' ([angle]); expected an angular rate such "
+        f"error: {path}:column 'dtheta_z': got 'deg' (angle); expected an angular rate such "
         "as 'deg/s' for channel gyro.z (or --increments if the samples are increments per "
         "sample)"
     )

@@ -107,7 +107,7 @@ def test_increments(tmp_path: pathlib.Path) -> None:
     assert r.increments and r.findings[0].kind == "note" and "increments" in r.findings[0].detail
     np.testing.assert_allclose(r.data["gyro.x"], np.array([0.01, 0.02]) * DEG * 10.0, rtol=1e-15)
     assert read_error(path, increments=False) == (
-        f"{path}:column 'gyro_x': got 'deg' ([angle]); expected an angular rate such as 'deg/s' "
+        f"{path}:column 'gyro_x': got 'deg' (angle); expected an angular rate such as 'deg/s' "
         "for channel gyro.x (or --increments if the samples are increments per sample)"
     )
     path = write_file(

@@ -56,7 +56,7 @@ def test_writer_checks(tmp_path: pathlib.Path) -> None:
     with pytest.raises(UnitError) as info:
         open_writer(path, ["gyro.x"], "mg", 10.0)
     assert str(info.value) == (
-        f"{path}:unit of gyro.x: got 'mg' ([mass]) ('g' is read as grams outside acceleration "
+        f"{path}:unit of gyro.x: got 'mg' (mass) ('g' is read as grams outside acceleration "
         "fields); expected an angular rate convertible to 'rad/s', such as '10 deg/h'"
     )
     with open_writer(path, ["gyro.x"], None, 10.0) as w:

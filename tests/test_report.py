@@ -317,6 +317,7 @@ def test_reason_codes_become_the_sentences_of_the_reports():
         "n_records": 59,
         "skip_margin": 2.0,
         "channels": ("gyro.x", "gyro.y"),
+        "terms": ("gyro.y angle_random_walk", "gyro.y bias_instability"),
         "channel": "gyro.z",
         "segments": 3,
         "duration": 1234.5678,
@@ -469,3 +470,41 @@ def test_identify_notes_say_an_unresolved_time_constant():
     assert "σ ≥" not in text and text.endswith("not told from zero")
     lower = reason_text("time_constant_at_lower_edge", {"bound": 0.2, "shortest_tau": 0.5})
     assert lower.startswith("gauss_markov: time constant at the short end") and "T ≤ 0.2 s" in lower
+
+
+def test_counts_take_the_right_number():
+    # "1 states", "1 channels" were printed: a count agrees with its noun.
+    from sensormodel.report import counted
+
+    assert counted(1, "state") == "1 state" and counted(0, "state") == "0 states"
+    assert counted(2, "channel") == "2 channels"
+
+
+def test_figures_mark_the_datasheet_and_show_the_amplitude_density(report) -> None:
+    # The datasheet's own readings on the Allan figure (ARW at τ = 1 s, σ(1 s) = N; the
+    # bias-instability floor), and the spectrum as datasheets print it: √ of the two-sided
+    # PSD, where white noise of IEEE Std 952 density N reads N (Annex C).
+    from sensormodel.plots import verdict_allan_figure, verdict_psd_figure
+
+    ch = report.channels[0]
+    white = next(t.spec for t in ch.terms if t.spec.type == "white")
+    floor = next(t.spec for t in ch.terms if t.spec.quantity == "allan_floor")
+    ax = verdict_allan_figure(ch).axes[0]
+    marks = {ln.get_label(): ln for ln in ax.lines}
+    arw = next(ln for label, ln in marks.items() if label.startswith(f"{white.key} ("))
+    assert list(arw.get_xdata()) == [1.0] and arw.get_ydata()[0] == pytest.approx(white.limit)
+    line = next(ln for label, ln in marks.items() if label.startswith(f"{floor.key} ("))
+    assert line.get_ydata()[0] == pytest.approx(floor.limit)
+    psd_ax = verdict_psd_figure(ch).axes[0]
+    asd_ax = verdict_psd_figure(ch, asd=True).axes[0]
+    assert "√" in asd_ax.get_ylabel() and "²" in psd_ax.get_ylabel()
+    measured_psd = next(ln for ln in psd_ax.lines if ln.get_label() == "measured (Welch)")
+    measured_asd = next(ln for ln in asd_ax.lines if ln.get_label() == "measured (Welch)")
+    np.testing.assert_allclose(
+        measured_asd.get_ydata(), np.sqrt(0.5 * measured_psd.get_ydata()), rtol=1e-12
+    )
+    # the record is white noise of density 0.5·N_lim: its amplitude density reads that (the
+    # median over the log bins; each bin averages many Welch segments, whose relative standard
+    # error in ASD is below 1/(2√K) ≈ 5 % for K ≥ 25 periodogram values: 15 % is > 3 σ)
+    level = np.median(measured_asd.get_ydata())
+    assert level == pytest.approx(0.5 * white.limit, rel=0.15)

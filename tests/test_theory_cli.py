@@ -11,12 +11,13 @@ import pathlib
 import numpy as np
 import pytest
 from numpy.testing import assert_allclose
+from scipy.io import loadmat
 
 from sensormodel._io import validate
 from sensormodel.cli import cli
 from sensormodel.convert import build_model
 from sensormodel.drift import drift
-from sensormodel.export import FORMATS
+from sensormodel.export import FORMATS, mat_name
 from sensormodel.model import NoiseModel
 
 EXAMPLES = pathlib.Path(__file__).resolve().parents[1] / "examples"
@@ -64,7 +65,10 @@ def test_export_every_example_in_all_forms(runner, model_file, tmp_path):
     base = tmp_path / "disc"
     result = runner.invoke(
         cli,
-        ["export", str(model_file), "--dt", "10 ms", "--format", "json,npz,csv", "-o", str(base)],
+        [
+            "export", str(model_file), "--dt", "10 ms", "--format", "json,npz,csv,mat",
+            "-o", str(base),
+        ],
     )
     assert result.exit_code == 0, result.output
     doc = json.loads((tmp_path / "disc.json").read_text(encoding="utf-8"))
@@ -79,8 +83,17 @@ def test_export_every_example_in_all_forms(runner, model_file, tmp_path):
         npz = {k: npz_file[k] for k in npz_file.files}
     head, mats = _read_csv(tmp_path / "disc.csv")
     assert float(head["dt [s]"]) == 0.01 and head["r_convention"] == doc["r_convention"]
+    # the MATLAB file read back with scipy.io.loadmat (the reader MATLAB's format is checked by)
+    mat = loadmat(tmp_path / "disc.mat", squeeze_me=True, simplify_cells=True)
+    assert float(mat["dt"]) == 0.01 and mat["r_convention"] == doc["r_convention"]
+    assert list(np.atleast_1d(mat["channels"])) == model.channel_ids
     for c in doc["channels"]:
         d = lib[c["id"]]
+        m = mat[mat_name(c["id"])]
+        assert m["id"] == c["id"] and list(np.atleast_1d(m["states"])) == list(d.states)
+        assert float(m["r"]) == d.r
+        for key in ("phi", "qd", "p0"):
+            assert_allclose(np.array(m[key]).reshape(d.phi.shape), getattr(d, key), rtol=0)
         assert c["states"] == list(d.states)
         for key in ("phi", "qd", "p0"):
             assert_allclose(np.array(c[key]).reshape(d.phi.shape), getattr(d, key), rtol=0)
@@ -152,7 +165,7 @@ def test_export_refusals(runner, model_file, tmp_path):
         "exists",
     )
     assert existing.read_text() == "{}"
-    assert set(FORMATS) == {"json", "npz", "csv"}
+    assert set(FORMATS) == {"json", "npz", "csv", "mat"}
 
 
 def test_drift_every_example(runner, model_file, tmp_path):

@@ -82,10 +82,12 @@ degrees of freedom, the large-r form 1/edf ≈ (1/r)(a0 − a1/r).
 from __future__ import annotations
 
 from ._limits import (
+    UNLIMITED_SHARE_MAX,
     SpecLimit,
     Unverified,
     fit_terms,
     limit_channel,
+    limited_share,
     output_filter,
     spec_limits,
 )
@@ -124,6 +126,8 @@ __all__ = [
     "ChannelVerdict",
     "VerdictReport",
     "limit_channel",
+    "limited_share",
+    "UNLIMITED_SHARE_MAX",
     "curve_check",
     "verify_curve",
     "verify",

@@ -6,8 +6,11 @@ from __future__ import annotations
 
 import math
 from collections.abc import Mapping
-from dataclasses import dataclass, field
+from dataclasses import dataclass, field, replace
 from typing import Any
+
+import numpy as np
+import numpy.typing as npt
 
 from ..convert import axis_terms
 from ..datasheet import FIELDS, AxisSpec
@@ -21,9 +24,18 @@ __all__ = [
     "Unverified",
     "spec_limits",
     "limit_channel",
+    "limited_share",
+    "UNLIMITED_SHARE_MAX",
     "fit_terms",
     "output_filter",
 ]
+
+
+#: The whole-curve check judges a τ only where terms printed without a limit (typ only) make at
+#: most this share of the datasheet curve's Allan variance at their typical values (the
+#: project's own rule: there the typical value cannot move the curve by more than ~2.5 % in
+#: Allan deviation).
+UNLIMITED_SHARE_MAX = 0.05
 
 
 @dataclass(frozen=True)
@@ -204,6 +216,30 @@ def limit_channel(ax: AxisSpec, *, rate: float, against: str = "max") -> Any:
         sample_rate=rate,
         terms=tuple(t for t in terms if t.type != "random_constant"),
     )
+
+
+def limited_share(
+    ax: AxisSpec, tau: npt.ArrayLike, *, rate: float, against: str = "max"
+) -> npt.NDArray[np.float64]:
+    """Share of the datasheet curve's Allan variance at ``tau`` [s] that comes from terms
+    printed with an ``against`` value (1 where every term has one).
+
+    :func:`limit_channel` fills a term without that column with its other value (a typ-only
+    bias instability at its typ); such a value is not a limit, so the whole-curve check judges
+    only the τ where the limited terms make the curve (:data:`UNLIMITED_SHARE_MAX`).
+    """
+    full = limit_channel(ax, rate=rate, against=against)
+    limited = replace(
+        full,
+        terms=tuple(t for t in full.terms if t.meta.get("datasheet", {}).get("column") == against),
+    )
+    total = np.asarray(full.allan_variance(tau), dtype=float)
+    part = (
+        np.asarray(limited.allan_variance(tau), dtype=float)
+        if limited.terms
+        else np.zeros_like(total)
+    )
+    return np.divide(part, total, out=np.ones_like(total), where=total > 0)
 
 
 def _fit_reading(spec_type: str, fitted_types: set[str]) -> tuple[str, str, float]:

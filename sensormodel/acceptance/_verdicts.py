@@ -39,6 +39,11 @@ DEFAULT_CONFIDENCE = DECISION_CONFIDENCE
 DEFAULT_PRECISION = 0.25
 
 
+#: Report notes that mean a datasheet limit was not checked: the overall verdict is then at
+#: best ``inconclusive`` (a verdict is never better than what was checked).
+UNCHECKED = frozenset({"limits_not_checked"})
+
+
 def _verdict(failed: bool, passed: bool) -> str:
     """The one ranking of the three verdicts: ``fail`` outranks ``pass``; neither is
     ``inconclusive``."""
@@ -143,6 +148,10 @@ class CurveCheck:
         Where ``ci_high <= limit``.
     confidence : float
         Confidence of the pointwise interval.
+    checked : ndarray of bool or None
+        Where the limit curve is a limit (the datasheet's limited terms make it; see
+        :data:`~sensormodel.acceptance.UNLIMITED_SHARE_MAX`); None: everywhere. Elsewhere the
+        curve is only a reference built from typical values, and is not judged.
     """
 
     tau: npt.NDArray[np.float64]
@@ -153,11 +162,27 @@ class CurveCheck:
     exceeded: tuple[tuple[float, float], ...]
     within: npt.NDArray[np.bool_]
     confidence: float
+    checked: npt.NDArray[np.bool_] | None = None
+
+    @property
+    def judged(self) -> npt.NDArray[np.bool_]:
+        """Where the curve is judged (``checked``, or everywhere)."""
+        if self.checked is None:
+            return np.ones(self.tau.shape, dtype=bool)
+        return self.checked
+
+    @property
+    def not_judged(self) -> tuple[tuple[float, float], ...]:
+        """τ ranges [s] (first, last τ of each run) where the curve is not judged."""
+        return _runs(~self.judged, self.tau)
 
     @property
     def verdict(self) -> str:
-        """``fail`` if exceeded anywhere, ``pass`` if within everywhere, else ``inconclusive``."""
-        return _verdict(failed=bool(self.exceeded), passed=bool(np.all(self.within)))
+        """``fail`` if exceeded anywhere judged, ``pass`` if within at every τ judged (and at
+        least one is), else ``inconclusive``."""
+        judged = self.judged
+        passed = bool(np.any(judged)) and bool(np.all(self.within[judged]))
+        return _verdict(failed=bool(self.exceeded), passed=passed)
 
 
 @dataclass(frozen=True)
@@ -226,7 +251,8 @@ class VerdictReport:
         ``file``, ``duration`` [s], ``sample_rate`` [Hz], ``samples``.
     notes : tuple of (str, dict)
         Reason codes with their values: ``channels_missing`` / ``channels_extra``
-        (``channels``), ``segments_left_out`` (``channel``, ``segments``, ``duration``,
+        (``channels``), ``limits_not_checked`` (``terms``: the limits of missing channels),
+        ``segments_left_out`` (``channel``, ``segments``, ``duration``,
         ``recording_duration``), ``note`` (``text``, a caller's own remark).
     """
 
@@ -240,8 +266,12 @@ class VerdictReport:
 
     @property
     def overall(self) -> str:
-        """``fail`` if any term fails, ``pass`` if all pass, else ``inconclusive``."""
-        return combine([t.verdict for c in self.channels for t in c.terms])
+        """``fail`` if any term fails, ``pass`` if all pass and every limit of the datasheet was
+        checked (no note :data:`UNCHECKED`), else ``inconclusive``."""
+        verdict = combine([t.verdict for c in self.channels for t in c.terms])
+        if verdict == "pass" and any(code in UNCHECKED for code, _ in self.notes):
+            return "inconclusive"
+        return verdict
 
     @property
     def exit_code(self) -> int:
@@ -269,7 +299,13 @@ def _runs(mask: npt.NDArray[np.bool_], tau: npt.NDArray[np.float64]) -> tuple:
     return tuple(out)
 
 
-def curve_check(curve: Any, limit_adev: npt.ArrayLike, *, confidence: float) -> CurveCheck:
+def curve_check(
+    curve: Any,
+    limit_adev: npt.ArrayLike,
+    *,
+    confidence: float,
+    checked: npt.ArrayLike | None = None,
+) -> CurveCheck:
     """Compare a measured Allan curve with a limit curve at the same τ.
 
     Parameters
@@ -280,6 +316,9 @@ def curve_check(curve: Any, limit_adev: npt.ArrayLike, *, confidence: float) -> 
         The limit Allan deviation at ``curve.tau`` [u].
     confidence : float
         The confidence of the curve's interval (recorded in the result).
+    checked : array_like of bool, optional
+        Where the limit curve is a limit (default everywhere); exceedances elsewhere are not
+        reported.
     """
     tau = np.asarray(curve.tau, dtype=float)
     lim = np.asarray(limit_adev, dtype=float)
@@ -289,7 +328,14 @@ def curve_check(curve: Any, limit_adev: npt.ArrayLike, *, confidence: float) -> 
         raise AnalysisError(
             f"limit curve of {lim.size} points", f"{tau.size} points, one per τ", field="limit"
         )
-    exceeded = lo > lim
+    judged = None if checked is None else np.asarray(checked, dtype=bool)
+    if judged is not None and judged.shape != tau.shape:
+        raise AnalysisError(
+            f"checked mask of {judged.size} points",
+            f"{tau.size} points, one per τ",
+            field="checked",
+        )
+    exceeded = lo > lim if judged is None else (lo > lim) & judged
     return CurveCheck(
         tau=tau,
         adev=np.asarray(curve.adev, dtype=float),
@@ -299,4 +345,5 @@ def curve_check(curve: Any, limit_adev: npt.ArrayLike, *, confidence: float) -> 
         exceeded=_runs(exceeded, tau),
         within=hi <= lim,
         confidence=float(confidence),
+        checked=judged,
     )

@@ -25,7 +25,16 @@ from ..confidence import allan_edf, dof_for_precision, dof_from_interval, requir
 from ..datasheet import AxisSpec, Datasheet, load_datasheet
 from ..errors import AnalysisError, DatasheetError
 from ..quantities import INSTRUMENT_KIND, SI_LABEL
-from ._limits import SpecLimit, _fit_reading, fit_terms, limit_channel, output_filter, spec_limits
+from ._limits import (
+    UNLIMITED_SHARE_MAX,
+    SpecLimit,
+    _fit_reading,
+    fit_terms,
+    limit_channel,
+    limited_share,
+    output_filter,
+    spec_limits,
+)
 from ._plan import _term_curves, reading_tau
 from ._verdicts import (
     DEFAULT_CONFIDENCE,
@@ -125,7 +134,14 @@ def verify_curve(
         for index, spec in enumerate(limits)
     ]
     lim_ch = limit_channel(ax, rate=rate, against=against)
-    check = curve_check(curve, lim_ch.allan_deviation(np.asarray(curve.tau)), confidence=confidence)
+    tau = np.asarray(curve.tau)
+    share = limited_share(ax, tau, rate=rate, against=against)
+    check = curve_check(
+        curve,
+        lim_ch.allan_deviation(tau),
+        confidence=confidence,
+        checked=share >= 1.0 - UNLIMITED_SHARE_MAX,
+    )
     return ChannelVerdict(
         id=ax.channel_id,
         unit=SI_LABEL[INSTRUMENT_KIND[ax.instrument]],
@@ -410,6 +426,7 @@ def verify(
             "samples": int(source.n_samples),
         }
     order, notes = _channel_order(specs, available, channels, rec_info.get("file"))
+    notes += _limits_not_checked(specs, available, channels, against)
     if isinstance(source, Mapping):
         jobs, longest = _curve_jobs(source, available, order, specs, duration)
         rec_info["duration"] = longest or None
@@ -477,6 +494,27 @@ def _channel_order(
     if extra:
         notes.append(("channels_extra", {"channels": tuple(extra)}))
     return order, notes
+
+
+def _limits_not_checked(
+    specs: Mapping[str, AxisSpec],
+    available: Mapping[str, str],
+    channels: Sequence[str] | None,
+    against: str,
+) -> Reasons:
+    """The datasheet limits of the channels missing from the recording (reason
+    ``limits_not_checked``): a limit that was not checked keeps the overall verdict from
+    ``pass`` (:attr:`VerdictReport.overall`). Channels left out on purpose (``channels``) are
+    not counted: the report names the channels verified."""
+    if channels:
+        return []
+    unchecked = [
+        f"{lim.channel} {lim.key}"
+        for key, ax in specs.items()
+        if key not in available
+        for lim in spec_limits(ax, against=against)[0]
+    ]
+    return [("limits_not_checked", {"terms": tuple(unchecked)})] if unchecked else []
 
 
 def _curve_jobs(

@@ -49,13 +49,15 @@ from ._samples import _as_samples, _check_finite_mean, _phase
 
 __all__ = ["NOISE_NAMES", "noise_alpha"]
 
-#: Names of the power-law types (time-and-frequency names; the inertial meaning in brackets).
+#: Names of the power-law types as inertial engineers say them (the exponent α of the rate's
+#: PSD ∝ f^α; in time-and-frequency metrology, where the estimators come from, they are white
+#: PM, flicker PM, white FM, flicker FM and random-walk FM: IEEE Std 1139, NIST SP 1065 §5).
 NOISE_NAMES = {
-    2: "white PM (white angle noise)",
-    1: "flicker PM (flicker angle noise)",
-    0: "white FM (white rate noise, angle/velocity random walk)",
-    -1: "flicker FM (flicker rate noise, bias instability)",
-    -2: "random-walk FM (rate/acceleration random walk)",
+    2: "quantization (white angle)",
+    1: "flicker angle noise",
+    0: "angle/velocity random walk",
+    -1: "bias instability (flicker)",
+    -2: "rate/acceleration random walk",
 }
 
 #: Fewest decimated phase points for the lag-1 autocorrelation noise identification. Riley &

@@ -10,10 +10,16 @@ import click
 from .._io import check_writable
 from ..acceptance import plan, verify
 from ..datasheet import load_datasheet
-from ..report import plan_text, verdict_text, write_verdict_html, write_verdict_json
+from ..report import (
+    check_verdict_html,
+    plan_text,
+    verdict_text,
+    write_verdict_html,
+    write_verdict_json,
+)
 from ._app import CONTEXT, force_option, guarded, output_option, status
 from ._options import RecordingOptions, recording_options
-from ._types import RATE, Fraction, Probability
+from ._types import BOOTSTRAP_HELP, RATE, Fraction, Probability, check_bootstrap
 
 __all__ = ["COMMANDS", "EXIT_FAIL", "EXIT_INCONCLUSIVE"]
 
@@ -40,18 +46,20 @@ _ACCEPTANCE_HELP = (
                help="Write the HTML report (and one PNG per figure beside it).")
 @output_option("--json", "json_file",
                help="Write the verdict report as JSON (schema sensormodel/verdict-report/1, SI).")
+@click.option("--asd", is_flag=True,
+              help="Draw the report's spectra as amplitude densities (√ two-sided PSD in the "
+                   "datasheet's unit per √Hz: a white level reads as the printed noise density).")
 @recording_options
 @click.option("--only", "only", multiple=True, metavar="CHANNEL_ID",
               help="Verify only this channel (repeatable).")
 @click.option("--seed", type=click.IntRange(min=0), default=0, show_default=True,
               help="Seed of the identification's random parts (the verdict is reproducible).")
-@click.option("--bootstrap", "n_boot", type=click.IntRange(min=1), default=None,
-              help="Bootstrap records per channel for the intervals (default 200; fewer is "
-                   "quicker and rougher).")
+@click.option("--bootstrap", "n_boot", type=click.IntRange(min=1), default=None, metavar="N",
+              help=BOOTSTRAP_HELP)
 @force_option
 @guarded
 def verify_command(recording_file: str, spec_file: str, against: str, confidence: float,
-                   power: float, report_file: str | None, json_file: str | None,
+                   power: float, report_file: str | None, json_file: str | None, asd: bool,
                    reading: RecordingOptions, only: tuple[str, ...], seed: int,
                    n_boot: int | None, force: bool) -> None:
     """Does a delivered sensor meet its datasheet? Verdict per channel and term, with
@@ -66,10 +74,14 @@ def verify_command(recording_file: str, spec_file: str, against: str, confidence
       sensormodel verify unit42.npy --spec examples/bw-t900.toml --report unit42.html \\
           --json unit42.json
     """
-    for path in (report_file, json_file):
-        if path:
-            check_writable(path, force=force)
+    # every input and output checked before any work (the figures too: named by channel)
+    check_bootstrap(n_boot, confidence)
     datasheet = load_datasheet(spec_file)
+    if json_file:
+        check_writable(json_file, force=force)
+    if report_file:
+        check_verdict_html(report_file, [ax.channel_id for ax in datasheet.channels()],
+                           force=force)
     recording = reading.read(recording_file)
     result = verify(recording, datasheet, confidence=confidence, against=against, power=power,
                     channels=list(only) or None, seed=seed, n_boot=n_boot, workers=2,
@@ -79,7 +91,7 @@ def verify_command(recording_file: str, spec_file: str, against: str, confidence
         write_verdict_json(result, json_file, force=force)
         click.echo(f"wrote {json_file}")
     if report_file:
-        for path in write_verdict_html(result, report_file, force=force):
+        for path in write_verdict_html(result, report_file, force=force, asd=asd):
             click.echo(f"wrote {path}")
     click.get_current_context().exit(result.exit_code)
 

@@ -28,9 +28,8 @@ def demo_command(out: str, force: bool) -> None:
       sensormodel demo --out demo-output
     """
     result = run_demo(out, force=force, progress=status)
-    click.echo(verdict_text(result.report))
+    click.echo(verdict_text(result.report))  # its notes name the staged deviation
     click.echo("")
-    click.echo(f"staged deviation: {result.staged}")
     for what, path in result.files.items():
         click.echo(f"wrote {what}: {path}")
     total = sum(result.timings.values())

@@ -103,7 +103,7 @@ def _export_targets(output: str, formats: list[str] | None) -> list[tuple[str, p
         form = out.suffix.lstrip(".").lower()
         if form not in FORMATS:
             raise AnalysisError(f"cannot tell the form of '{output}' from its suffix",
-                                "a name ending in .json, .npz or .csv, or --format")
+                                "a name ending in .json, .npz, .csv or .mat, or --format")
         return [(form, out)]
     if len(formats) == 1:
         return [(formats[0], out)]
@@ -117,10 +117,11 @@ def _export_targets(output: str, formats: list[str] | None) -> list[tuple[str, p
               help="Filter step: seconds, or a time with its unit ('10 ms').")
 @click.option("--format", "formats", type=FormatList(FORMATS), default=None,
               metavar="FMT[,FMT...]",
-              help="json, npz, csv, or a comma list of them (default: from the -o suffix). With "
-                   "several, -o names the base and each form gets its suffix.")
+              help="json, npz, csv, mat (MATLAB/Simulink), or a comma list of them (default: "
+                   "from the -o suffix). With several, -o names the base and each form gets its "
+                   "suffix.")
 @click.option("-o", "--output", "output", required=True, type=click.Path(dir_okay=False),
-              help="The file to write (.json, .npz or .csv).")
+              help="The file to write (.json, .npz, .csv or .mat).")
 @click.option("--channel", "channels", multiple=True,
               help="Export only this channel (repeatable).")
 @click.option("--quantization-in", "quantization", type=click.Choice(["states", "r"]),
@@ -140,6 +141,7 @@ def export_command(model_file: str, dt: float, formats: list[str] | None, output
     Example:
       sensormodel export t900.json --dt 0.01 -o t900-100hz.json
       sensormodel export t900.json --dt "5 ms" --format json,npz,csv -o t900-200hz
+      sensormodel export t900.json --dt 0.01 -o t900-100hz.mat
     """
     targets = _export_targets(output, formats)
     for _, path in targets:
@@ -161,6 +163,9 @@ def export_command(model_file: str, dt: float, formats: list[str] | None, output
               help="Only this channel (repeatable).")
 @click.option("--points", type=click.IntRange(min=2), default=121, show_default=True,
               help="Log-spaced times of the curve (JSON, plot).")
+@click.option("--without", "without", multiple=True, metavar="TERM",
+              help="Leave this term type out (repeatable), e.g. random_constant when the "
+                   "turn-on bias is calibrated at the start.")
 @output_option("--json", "json_file",
                help="Write the curves as JSON (schema sensormodel/drift/1, SI, 1σ).")
 @output_option("--plot", "plot_file",
@@ -168,7 +173,8 @@ def export_command(model_file: str, dt: float, formats: list[str] | None, output
 @force_option
 @guarded
 def drift_command(model_file: str, horizon: float, channels: tuple[str, ...], points: int,
-                  json_file: str | None, plot_file: str | None, force: bool) -> None:
+                  without: tuple[str, ...], json_file: str | None, plot_file: str | None,
+                  force: bool) -> None:
     """Open-loop 1σ error growth over a horizon: angle from each gyro channel, velocity and
     position from each accelerometer channel (variance equation, integrated exactly).
 
@@ -178,13 +184,17 @@ def drift_command(model_file: str, horizon: float, channels: tuple[str, ...], po
     \b
     Example:
       sensormodel drift t900.json --horizon 1h
-      sensormodel drift t900.json --horizon 600 --channel gyro.z --json drift.json --plot drift.png
+      sensormodel drift t900.json --horizon 600 --channel gyro.z --json drift.json \\
+          --plot drift.png
+      sensormodel drift m200.json --horizon 10min --without random_constant
     """
     for path in (json_file, plot_file):
         if path:
             check_writable(path, force=force)
     model = NoiseModel.load(model_file).select(list(channels))
-    result = drift(model, horizon, points=points)
+    result = drift(model, horizon, points=points, without=without)
+    if result.without:
+        click.echo(f"left out: {', '.join(result.without)}")
     times = table_times(horizon)
     for ch in result.channels:
         click.echo(drift_table(ch, times, DRIFT_DISPLAY))

@@ -19,10 +19,12 @@ from ..errors import AnalysisError
 from ..identify import fit_recording, to_model
 from ..model import NoiseModel
 from ..pipeline import SEGMENT_POLICY, RecordingAnalysis, analyse
+from ..recording import format_of
 from ..report import (
     allan_heading,
     allan_table,
     channel_display,
+    counted,
     identify_heading,
     identify_notes,
     identify_table,
@@ -32,7 +34,16 @@ from ..report import (
 from ..simulate import new_seed, record_rate, run_path, samples_for, write_record
 from ._app import CONTEXT, StderrBar, echo_findings, force_option, guarded
 from ._options import RecordingOptions, recording_options
-from ._types import DURATION, FREQUENCY, RATE, OutputFile, Probability, TauGrid
+from ._types import (
+    BOOTSTRAP_HELP,
+    DURATION,
+    FREQUENCY,
+    RATE,
+    OutputFile,
+    Probability,
+    TauGrid,
+    check_bootstrap,
+)
 
 __all__ = ["COMMANDS"]
 
@@ -164,8 +175,7 @@ def _fit_channels(analysis: RecordingAnalysis, **options: Any) -> list[Any]:
 @click.option("--taus", type=TauGrid(), default=None, metavar="SPEC",
               help=f"Averaging times of the fitted curve: {_TAUS_HELP}.")
 @click.option("--bootstrap", "n_boot", type=click.IntRange(min=1), default=None, metavar="N",
-              help="Bootstrap records per channel for the intervals (default 200, more for a "
-                   "confidence above 0.98; more: steadier interval ends, slower).")
+              help=BOOTSTRAP_HELP)
 @click.option("--seed", type=click.IntRange(min=0), default=0, show_default=True,
               help="Seed of the bootstrap (the same seed gives the same intervals).")
 @click.option("--bandwidth", "bandwidth", type=FREQUENCY, default=None, metavar="FREQ",
@@ -197,6 +207,7 @@ def identify_command(recording_file: str, output: str, terms: str, confidence: f
           --terms white,flicker,random_walk -o unit42.json
       sensormodel identify mems.npy --bandwidth "50 Hz" --filter-order 2 -o mems-model.json
     """
+    check_bootstrap(n_boot, confidence)
     check_writable(output, force=force)
     if filter_order is not None and bandwidth is None:
         raise AnalysisError("--filter-order without --bandwidth", "a --bandwidth with it",
@@ -217,7 +228,8 @@ def identify_command(recording_file: str, output: str, terms: str, confidence: f
     model.save(output, force=force)
     kept = sum(len(c.terms) for c in model.channels)
     left = sum(1 for i in results for t in i.terms if not t.supported)
-    click.echo(f"wrote {output}: {len(model.channels)} channels, {kept} terms"
+    click.echo(f"wrote {output}: {counted(len(model.channels), 'channel')}, "
+               f"{counted(kept, 'term')}"
                + (f" ({left} not supported, left out)" if left else ""))
 
 
@@ -267,7 +279,8 @@ def simulate_command(model_file: str, duration: float, rate: float | None, seed:
     sim_rate = record_rate(model, rate)
     n = samples_for(duration, sim_rate)
     paths = [run_path(output, r, runs) for r in range(runs)]
-    for p in paths:  # refuse before the long work, not after it
+    for p in paths:  # refuse before the long work (and before a seed is drawn), not after it
+        format_of(p, str(p))
         check_writable(p, force=force)
         if p.suffix.lower() == ".npy":
             check_writable(p.with_name(p.name + ".json"), force=force)

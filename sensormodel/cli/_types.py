@@ -17,6 +17,7 @@ import click
 
 from .. import validate
 from ..errors import AnalysisError, RecordingError, SensorModelError
+from ..identify import bootstrap_minimum
 from ..quantities import parse_quantity
 from ..recording import parse_channel_map
 
@@ -297,3 +298,25 @@ class Orders(_Parsed):
         except ValueError:
             self.refuse(text, "two whole numbers such as 1/3", param, ctx)
         return n_ord, d_ord
+
+
+def check_bootstrap(n_boot: int | None, confidence: float) -> None:
+    """Refuse, before any work, a ``--bootstrap`` count too small for ``--confidence``
+    (:func:`sensormodel.identify.bootstrap_minimum`)."""
+    if n_boot is None:
+        return
+    need = bootstrap_minimum(confidence)
+    if n_boot < need:
+        raise AnalysisError(
+            f"got {n_boot}",
+            f"at least {need} records for intervals at confidence {confidence:g} (two records "
+            "beyond each end)",
+            field="--bootstrap",
+        )
+
+
+#: The help of every ``--bootstrap`` option.
+BOOTSTRAP_HELP = (
+    "Bootstrap records per channel for the intervals: at least 2/α, α = (1 − confidence)/2 "
+    "(40 at 0.9, 400 at 0.99); default the larger of that and 200. Fewer: quicker and rougher."
+)

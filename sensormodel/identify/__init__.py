@@ -107,6 +107,7 @@ readings and their reason codes), ``_results`` (the result types, :func:`to_mode
 (:func:`fit_recording`).
 """
 
+from ._checks import bootstrap_minimum
 from ._fit import fit
 from ._limit import limit_test
 from ._names import (
@@ -126,6 +127,7 @@ __all__ = [
     "PARAMETERS",
     "DEFAULT_CONFIDENCE",
     "DEFAULT_BOOTSTRAP",
+    "bootstrap_minimum",
     "FittedTerm",
     "Identification",
     "LimitTest",

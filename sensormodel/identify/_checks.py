@@ -46,11 +46,17 @@ def _check_terms(terms: Any) -> tuple[str, ...]:
     return tuple(t for t in KNOWN_TERMS if t in names)
 
 
+def bootstrap_minimum(confidence: float) -> int:
+    """The fewest bootstrap records for intervals at two-sided ``confidence``: ⌈2/α⌉ with
+    α = (1 − c)/2, so that two records lie beyond each end (40 at 0.9, 400 at 0.99)."""
+    alpha = 0.5 * (1.0 - validate.probability(confidence, "confidence"))
+    return int(math.ceil(2.0 / alpha - 1e-9))
+
+
 def _check_n_boot(n_boot: Any, confidence: float) -> int:
-    """Bootstrap records for intervals at ``confidence``: at least ⌈2/α⌉, α = (1 − c)/2, so
-    that two records lie beyond each end (default the larger of that and 200)."""
-    alpha = 0.5 * (1.0 - confidence)
-    need = int(math.ceil(2.0 / alpha - 1e-9))
+    """Bootstrap records for intervals at ``confidence``: at least :func:`bootstrap_minimum`
+    (default the larger of that and 200)."""
+    need = bootstrap_minimum(confidence)
     if n_boot is None:
         return max(DEFAULT_BOOTSTRAP, need)
     why = f"bootstrap records for a {confidence:g} interval (two records beyond each end)"

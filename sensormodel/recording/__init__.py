@@ -147,7 +147,7 @@ from __future__ import annotations
 
 from ._cache import CACHE_MIN_BYTES, cache_folder
 from ._columns import CHANNEL_IDS, TIME_COLUMN_NAMES, channel_id_for, parse_channel_map
-from ._formats import RATE_RTOL, SUFFIXES
+from ._formats import RATE_RTOL, SUFFIXES, format_of
 from ._reader import read_recording
 from ._results import Finding, Recording, Segment
 from ._timebase import GAP_FACTOR
@@ -169,4 +169,5 @@ __all__ = [
     "cache_folder",
     "RecordingWriter",
     "open_writer",
+    "format_of",
 ]

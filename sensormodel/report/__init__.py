@@ -10,7 +10,7 @@ and command summaries), ``_verdict`` (the verdict document, its JSON and termina
 recording plan), ``_html`` (the self-contained HTML report and its figures).
 """
 
-from ._html import verdict_figures, verdict_html, write_verdict_html
+from ._html import check_verdict_html, verdict_figures, verdict_html, write_verdict_html
 from ._reasons import REASONS, reason_text, term_note
 from ._text import (
     TermRow,
@@ -31,6 +31,7 @@ from ._text import (
 from ._units import (
     DRIFT_DISPLAY,
     channel_display,
+    counted,
     display_values,
     format_duration,
     model_display,
@@ -55,6 +56,7 @@ __all__ = [
     "allan_heading",
     "allan_table",
     "channel_display",
+    "counted",
     "display_values",
     "drift_table",
     "export_summary",
@@ -77,5 +79,6 @@ __all__ = [
     "verdict_html",
     "verdict_text",
     "write_verdict_html",
+    "check_verdict_html",
     "write_verdict_json",
 ]

@@ -26,7 +26,10 @@ from ._verdict import (
     _verdict_row_note,
 )
 
-__all__ = ["verdict_figures", "verdict_html", "write_verdict_html"]
+__all__ = ["verdict_figures", "verdict_html", "write_verdict_html", "check_verdict_html"]
+
+#: The figures of a channel's verdict, by file tag (``<stem>-<channel>-<tag>.png``).
+FIGURE_TAGS = ("allan", "psd")
 
 
 _CSS = """
@@ -197,14 +200,15 @@ def _html_channel(ch, figures: list[tuple[str, bytes]]) -> list[str]:
     return out
 
 
-def verdict_figures(report) -> dict[str, list[tuple[str, str, object]]]:
-    """The figures of a verdict report: {channel id: [(file tag, caption, Figure), ...]}."""
+def verdict_figures(report, *, asd: bool = False) -> dict[str, list[tuple[str, str, object]]]:
+    """The figures of a verdict report: {channel id: [(file tag, caption, Figure), ...]};
+    ``asd``: the spectrum as an amplitude density (√ two-sided PSD, as datasheets print it)."""
     out = {}
     for ch in report.channels:
         display = channel_display(INSTRUMENT_KIND.get(ch.id.split(".", 1)[0]))
         items = [
             (
-                "allan",
+                FIGURE_TAGS[0],
                 f"{ch.id}: overlapping Allan deviation with its {100 * ch.curve.confidence:.0f} % "
                 "band, the datasheet limit curve and the fitted model",
                 verdict_allan_figure(ch, display=display),
@@ -213,14 +217,37 @@ def verdict_figures(report) -> dict[str, list[tuple[str, str, object]]]:
         if ch.psd is not None:
             items.append(
                 (
-                    "psd",
-                    f"{ch.id}: one-sided PSD of the record (Welch), the datasheet limit model and "
-                    "the fitted model",
-                    verdict_psd_figure(ch, display=display),
+                    FIGURE_TAGS[1],
+                    f"{ch.id}: "
+                    + ("amplitude spectral density (√ two-sided PSD)" if asd else "one-sided PSD")
+                    + " of the record (Welch), the datasheet limit model and the fitted model",
+                    verdict_psd_figure(ch, display=display, asd=asd),
                 )
             )
         out[ch.id] = items
     return out
+
+
+def _figure_path(target: pathlib.Path, channel_id: str, tag: str) -> pathlib.Path:
+    return target.with_name(f"{target.stem}-{channel_id}-{tag}.png")
+
+
+def check_verdict_html(path, channel_ids, *, force: bool = False) -> None:
+    """Refuse, before any work, an HTML report whose page or figure files (for any of
+    ``channel_ids``) exist (unless ``force``) or whose folder is missing.
+
+    Parameters
+    ----------
+    path : path-like
+        The HTML page; the figures go beside it (:func:`write_verdict_html`).
+    channel_ids : iterable of str
+        Every channel that may get figures (e.g. the datasheet's).
+    """
+    target = pathlib.Path(path)
+    check_writable(target, force=force)
+    for cid in channel_ids:
+        for tag in FIGURE_TAGS:
+            check_writable(_figure_path(target, cid, tag), force=force)
 
 
 def write_verdict_html(
@@ -231,8 +258,10 @@ def write_verdict_html(
     png: bool = True,
     title: str | None = None,
     intro: list[str] | None = None,
+    asd: bool = False,
 ) -> list[str]:
-    """Write the HTML report and, beside it, one PNG per figure (``<stem>-<channel>-<tag>.png``).
+    """Write the HTML report and, beside it, one PNG per figure (``<stem>-<channel>-<tag>.png``;
+    ``asd``: the spectra as amplitude densities, :func:`verdict_figures`).
 
     Returns
     -------
@@ -241,14 +270,14 @@ def write_verdict_html(
     """
     target = pathlib.Path(path)
     check_writable(target, force=force)
-    figs = verdict_figures(report)
+    figs = verdict_figures(report, asd=asd)
     pngs: dict[str, list[tuple[str, bytes]]] = {}
     files: list[tuple[pathlib.Path, bytes]] = []
     for cid, items in figs.items():
         for tag, caption, fig in items:
             data = figure_png(fig)
             pngs.setdefault(cid, []).append((caption, data))
-            files.append((target.with_name(f"{target.stem}-{cid}-{tag}.png"), data))
+            files.append((_figure_path(target, cid, tag), data))
     if png:
         for p, _ in files:
             check_writable(p, force=force)

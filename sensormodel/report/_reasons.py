@@ -85,6 +85,10 @@ REASONS: dict[str, str | Callable[[Mapping[str, Any]], str]] = {
     # the report (VerdictReport.notes)
     "channels_missing": "not in the recording, not verified: {channels}",
     "channels_extra": "in the recording but not on the datasheet, ignored: {channels}",
+    "limits_not_checked": (
+        "not checked (channel missing from the recording): {terms}; the overall verdict cannot "
+        "be pass"
+    ),
     # a fitted term (identify.FittedTerm.reasons; printed as notes by the identify command)
     "estimate_at_search_edge": (
         "{term}: the {parameter} estimate {value:.4g} is at the {edge} end of its search range "

@@ -21,7 +21,7 @@ from ..quantities import (
 )
 from ..terms import FLICKER_FLOOR_FACTOR, TERM_TYPES
 from ._reasons import reason_text
-from ._units import format_duration, parameter_kind, sample_std_display, si_label
+from ._units import counted, format_duration, parameter_kind, sample_std_display, si_label
 
 __all__ = [
     "TermRow",
@@ -370,7 +370,7 @@ def export_summary(doc: dict[str, Any], dt: float) -> list[str]:
     lines = []
     for c in doc["channels"]:
         unit = f" ({c['unit']})²" if c.get("unit") else ""
-        lines.append(f"  {c['id']}: {len(c['states'])} states, R = {c['r']:.4g}{unit}")
+        lines.append(f"  {c['id']}: {counted(len(c['states']), 'state')}, R = {c['r']:.4g}{unit}")
     lines.append(f"dt = {dt:g} s; {doc['r_convention'].split(':', 1)[0]}")
     return lines
 
@@ -400,7 +400,7 @@ def simulate_summary(
 ) -> str:
     """The line after a simulation: what was written, how much, at what rate, from which seed."""
     kind = "increments" if increments else "rate samples"
-    what = f"{channels} channel{'s' if channels != 1 else ''}"
+    what = counted(channels, "channel")
     return (
         f"wrote {where}: {n} {kind} × {what} at {rate:g} Hz ({format_duration(n / rate)}), "
         f"seed {seed}, flicker: {flicker}"

@@ -22,11 +22,17 @@ from ..quantities import (
 
 __all__ = [
     "DRIFT_DISPLAY",
+    "counted",
     "channel_display",
     "display_values",
     "format_duration",
     "model_display",
 ]
+
+def counted(n: int, noun: str) -> str:
+    """``"1 channel"``, ``"2 channels"``: a count with its noun in the right number."""
+    return f"{n} {noun}{'' if n == 1 else 's'}"
+
 
 #: The kinds whose channels are shown in a readable unit (°/h, µg) rather than in SI.
 _READABLE = tuple(INSTRUMENT_KIND.values())

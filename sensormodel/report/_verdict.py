@@ -170,6 +170,7 @@ def _channel_document(ch) -> dict:
             "limit": c.limit.tolist(),
             "confidence": float(c.confidence),
             "exceeded": [{"tau_from": a, "tau_to": b} for a, b in c.exceeded],
+            "judged": c.judged.tolist(),
             "verdict": c.verdict,
         },
     }
@@ -225,14 +226,32 @@ def _unverified_groups(report) -> list[tuple[str, list[str], str]]:
     return [(key, ids, why) for (key, why), ids in groups.items()]
 
 
+def _tau_span(a: float, b: float, dash: str) -> str:
+    """A τ range in words: one τ alone, or its ends joined by ``dash``."""
+    return f"{a:.3g} s" if a == b else f"{a:.3g}{dash}{b:.3g} s"
+
+
 def _curve_result(check, *, dash: str, lead: str = "") -> str:
     """The whole-curve check of one channel in words (``dash`` between the ends of a range)."""
+    if not any(check.judged):
+        return (
+            "not judged: at every τ, terms printed without a limit (typ only) make the datasheet "
+            "curve; it is drawn as a reference only"
+        )
     if check.exceeded:
-        spans = ", ".join(f"{a:.3g}{dash}{b:.3g} s" for a, b in check.exceeded)
-        return f"{lead}exceeded with confidence at τ {spans}"
-    if check.verdict == "pass":
-        return "within the limit curve at every τ"
-    return "not exceeded with confidence at any τ"
+        spans = ", ".join(_tau_span(a, b, dash) for a, b in check.exceeded)
+        text = f"{lead}exceeded with confidence at τ {spans}"
+    elif check.verdict == "pass":
+        text = "within the limit curve at every τ judged"
+    else:
+        text = "not exceeded with confidence at any τ judged"
+    if check.not_judged:
+        spans = ", ".join(_tau_span(a, b, dash) for a, b in check.not_judged)
+        text += (
+            f"; not judged at τ {spans}, where terms printed without a limit (typ only) make the "
+            "datasheet curve"
+        )
+    return text
 
 
 def verdict_text(report) -> str:
@@ -302,7 +321,7 @@ def plan_text(plan) -> str:
                 r.spec.text,
                 f"{r.read_at:.3g} s",
                 f"{100 * r.share:.0f} %",
-                NOISE_NAMES[r.noise_alpha].split(" (")[0],
+                NOISE_NAMES[r.noise_alpha],
                 f"{r.edf:.3g}",
                 format_duration(r.duration) if math.isfinite(r.duration) else "none suffices",
             )
