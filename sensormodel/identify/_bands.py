@@ -32,9 +32,9 @@ each band is one simulation of at most a few 10⁵ samples, the same for any rec
    change of the count of second differences below 2^-18).
 3. **Segment bands.** The shorter τ, from the top down: a band of period d holds the m from
    16·d up (from 1 for d = 1), d the least power of two such that its longest m' = m/d is at
-   most 1/:attr:`_BandSettings.margin` (1/64) of a **segment** of
-   :attr:`_BandSettings.segment_samples` (2^17) coarse samples; the segment (shorter than the
-   record) is simulated and each estimate's deviation from the model's exact Allan variance
+   most 1/:attr:`_BandSettings.margin` (1/64) of :attr:`_BandSettings.segment_samples`
+   (2^17) coarse samples. A **segment** of 64·m' coarse samples (at least 2^12; a power of two)
+   is simulated, shorter than the record, and each estimate's deviation from the model's exact Allan variance
    E(τ) (the fit's bases, :func:`._design._basis`) is scaled to the record's length:
    â = E + s·(â_seg − E), s² = edf(N_seg)/edf(N) with the equivalent degrees of freedom of
    :func:`sensormodel.confidence.edf_cached` (C. A. Greenhall, W. J. Riley, PTTI 2003) for the
@@ -126,6 +126,10 @@ class _Band:
     full: bool
 
 
+#: The shortest segment simulated [coarse samples].
+_MIN_SEGMENT = 1 << 12
+
+
 def _two_adic(values: _IntArray) -> int:
     """The largest power of two dividing every value."""
     g = int(np.gcd.reduce(values.astype(np.int64)))
@@ -155,7 +159,9 @@ def _plan(m: _IntArray, n: int, settings: _BandSettings) -> tuple[_Band, ...]:
         index = np.arange(lo, rest)
         d = min(d, _two_adic(m[index]))
         mm = m[index] // d
-        seg = max(settings.segment_samples, _pow2_at_least(settings.margin * int(mm[-1])))
+        # the segment: as long as the band's longest m' needs (a band that did not reach up to
+        # segment_samples/margin is simulated shorter), never under _MIN_SEGMENT
+        seg = max(_MIN_SEGMENT, _pow2_at_least(settings.margin * int(mm[-1])))
         full = seg >= n // d
         bands.append(_Band(index, mm, d, n // d if full else seg, full))
         rest = lo
