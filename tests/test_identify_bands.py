@@ -126,9 +126,7 @@ def test_estimator_at_a_stride_of_a_sixteenth_of_tau_loses_little() -> None:
 
 
 def _curve_of(params, time_constant, n, rate, white_filter=None, seed=0):
-    y = _Simulator(params, time_constant, n, rate, white_filter).record(
-        np.random.default_rng(seed)
-    )
+    y = _Simulator(params, time_constant, n, rate, white_filter).record(np.random.default_rng(seed))
     return overlapping(y, rate)
 
 
@@ -177,12 +175,12 @@ def test_banded_estimates_have_the_law_of_the_full_rate_ones(
     m1, m2 = full.mean(0), band.mean(0)
     s1, s2 = full.std(0, ddof=1), band.std(0, ddof=1)
     se = np.sqrt(s1**2 / b1 + s2**2 / b2)
-    assert np.all(np.abs(m2 - m1) <= 4.0 * se), ((m2 - m1) / se)
+    assert np.all(np.abs(m2 - m1) <= 4.0 * se), (m2 - m1) / se
     kurt = np.mean((full - m1) ** 4, axis=0) / s1**4
     se_log = np.sqrt(np.maximum(kurt - 1.0, 2.0) / 4.0 * (1.0 / b1 + 1.0 / b2))
     log_ratio = np.log(s2 / s1)
     print("sd ratio banded/full", np.round(s2 / s1, 3))
-    assert np.all(np.abs(log_ratio) <= 4.0 * se_log), (log_ratio / se_log)
+    assert np.all(np.abs(log_ratio) <= 4.0 * se_log), log_ratio / se_log
     band_of = np.empty(c.m.size, dtype=int)
     for k, b in enumerate(bands):
         band_of[b.index] = k

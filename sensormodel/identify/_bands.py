@@ -30,24 +30,24 @@ each band is one simulation of at most a few 10⁵ samples, the same for any rec
    every m ≥ 16·d. Its estimates keep their exact joint law (the whole duration is simulated;
    the at most d − 1 fine samples of the last incomplete coarse period are left out, a relative
    change of the count of second differences below 2^-18).
-3. **Segment bands.** The shorter τ, from the top down: a band of period d holds the m from
-   16·d up (from 1 for d = 1), d the least power of two such that its longest m' = m/d is at
-   most 1/:attr:`_BandSettings.margin` (1/64) of :attr:`_BandSettings.segment_samples`
-   (2^17) coarse samples. A **segment** of 64·m' coarse samples (at least 2^12; a power of two)
-   is simulated, shorter than the record, and each estimate's deviation from the model's exact Allan variance
-   E(τ) (the fit's bases, :func:`._design._basis`) is scaled to the record's length:
-   â = E + s·(â_seg − E), s² = edf(N_seg)/edf(N) with the equivalent degrees of freedom of
+3. **Segment bands.** The shorter τ, from the top down: a band of period d holds the m from 16·d
+   up (from 1 for d = 1), d the least power of two such that its longest m' = m/d is at most
+   1/:attr:`_BandSettings.margin` (1/64) of :attr:`_BandSettings.segment_samples` (2^17) coarse
+   samples. A **segment** of 64·m' coarse samples (at least 2^12; a power of two) is simulated,
+   shorter than the record, and each estimate's deviation from the model's exact Allan variance
+   E(τ) (the fit's bases, :func:`._design._basis`) is scaled to the record's length: â = E +
+   s·(â_seg − E), s² = edf(N_seg)/edf(N) with the equivalent degrees of freedom of
    :func:`sensormodel.confidence.edf_cached` (C. A. Greenhall, W. J. Riley, PTTI 2003) for the
    noise type of the model's dominant term at that τ. Why this holds: the estimate is the mean
    of the squared second differences z_i of the phase, a stationary sequence whose
    autocovariance is summable for every term of the catalogue (the Allan filter's |H(f)|² ∝ f²
-   at f → 0 tames 1/f and 1/f² rate noise; quantization, Gauss-Markov and band-limited white
-   are short-memory; a ramp only adds a constant to z_i and its cross term is a mean of z_i),
-   so Var â ∝ 1/N·(1 + O(m/N)) for any N ≫ m, the O(m/N) term being what the EDF ratio
-   carries. With m' ≤ N_seg/64 the types' ratios differ by less than 1 %. Within a band the
-   estimates keep their joint law; the scaled law keeps the segment's skewness (at most that
-   of about 100 EDF, ~0.3, where the record's law is nearly Gaussian: it moves the 5 % and
-   95 % points by < 0.1 standard deviation).
+   at f → 0 tames 1/f and 1/f² rate noise; quantization, Gauss-Markov and band-limited white are
+   short-memory; a ramp only adds a constant to z_i and its cross term is a mean of z_i), so Var
+   â ∝ 1/N·(1 + O(m/N)) for any N ≫ m, the O(m/N) term being what the EDF ratio carries. With m'
+   ≤ N_seg/64 the types' ratios differ by less than 1 %. Within a band the estimates keep their
+   joint law; the scaled law keeps the segment's skewness (at most that of about 100 EDF, ~0.3,
+   where the record's law is nearly Gaussian: it moves the 5 % and 95 % points by < 0.1 standard
+   deviation).
 4. **Band boundaries.** The bands are independent simulations, so the correlation of estimates
    on either side of a boundary is lost (neighbouring octaves correlate by ~0.3–0.6; τ two
    octaves apart by less). With the defaults a band spans a factor 128 of τ (7 octaves) and a
