@@ -12,11 +12,14 @@ These test private names: no public function exposes them.
 from __future__ import annotations
 
 import math
+import multiprocessing
+import os
+from concurrent.futures import ProcessPoolExecutor
 
 import numpy as np
 import pytest
-from identify_records import mean_within
-from scipy.stats import norm
+from identify_records import flicker, mean_within, random_walk, white
+from scipy.stats import binom, norm
 
 from sensormodel import identify
 from sensormodel.allan import overlapping
@@ -252,3 +255,60 @@ def test_banded_draws_do_not_depend_on_the_threads(monkeypatch) -> None:
     children = np.random.SeedSequence(6).spawn(4)
     for i in range(4):
         np.testing.assert_array_equal(av[i], worker(np.random.default_rng(children[i])))
+
+
+# ---------------------------------------------------------------------------------------------
+# the calibration of the test at the limit through the banded path
+# ---------------------------------------------------------------------------------------------
+
+#: A long record at a low rate: 2^16 s at 1 Hz, flicker squeezed between white noise and a
+#: random walk (crossovers at τ = N²/(0.441 B²) = 30 s and 3·0.441 B²/K² = 3000 s).
+BANDED_TRUTH = {"white": 3.64, "flicker": 1.0, "random_walk": 0.021}
+BANDED_TRIALS = 120
+BANDED_SAMPLES = 1 << 16
+
+
+def _banded_level_trial(k: int) -> dict[str, tuple[float, float]]:
+    """One record of :data:`BANDED_TRUTH` from the independent generators, fitted and each of
+    white and flicker tested at its true value through the banded path (SMALL: three bands):
+    (p_above, p_below)."""
+    _bands._SETTINGS = SMALL  # this worker process only
+    rng = np.random.default_rng(500_000 + k)
+    t, n, rate = BANDED_TRUTH, BANDED_SAMPLES, 1.0
+    y = (
+        white(rng, n, rate, t["white"])
+        + flicker(rng, n, rate, t["flicker"])
+        + random_walk(rng, n, rate, t["random_walk"])
+    )
+    idn = identify.fit(overlapping(y, rate), terms=tuple(t), seed=k, n_boot=41)
+    out = {}
+    for name in ("white", "flicker"):
+        test = identify.limit_test(idn, name, t[name], seed=20_000 + k)
+        out[name] = (test.p_above, test.p_below)
+    return out
+
+
+@pytest.mark.slow
+def test_limit_test_level_through_the_banded_path() -> None:
+    """The test at the true value rejects on each side in at most about α = 5 % of records,
+    its null records drawn through the banded path (three bands, two boundaries: more than a
+    real record's one or two).
+
+    120 seeded records; each side's rejection count is binomial(120, ≤ 0.05) for a test of
+    level 5 %: the allowance is its 99.9 % quantile (scipy.stats.binom; 14), as in
+    tests/test_identify.py's study of the full-rate path.
+    """
+    assert len(_plan(2 ** np.arange(0, 15), BANDED_SAMPLES, SMALL)) == 3
+    workers = min(2, len(os.sched_getaffinity(0)))
+    ctx = multiprocessing.get_context("spawn")
+    with ProcessPoolExecutor(max_workers=workers, mp_context=ctx) as pool:
+        rows = list(pool.map(_banded_level_trial, range(BANDED_TRIALS), chunksize=10))
+    allowed = binom.ppf(0.999, BANDED_TRIALS, 0.05)
+    for name in ("white", "flicker"):
+        above = sum(r[name][0] <= 0.05 for r in rows)
+        below = sum(r[name][1] <= 0.05 for r in rows)
+        print(f"{name}: banded test rejects above {above}, below {below} of {BANDED_TRIALS}")
+        assert above <= allowed, (name, above)
+        assert below <= allowed, (name, below)
+        p = np.array([r[name][0] for r in rows])
+        assert 0.3 < float(np.median(p)) < 0.7, (name, float(np.median(p)))

@@ -35,7 +35,7 @@ _FloatArray = npt.NDArray[np.float64]
 ProgressCallback = Callable[[int, int], Any]
 
 #: Records (or bands) of at least this many samples in all are simulated on two threads.
-_THREAD_MIN_SAMPLES = 1 << 18
+_THREAD_MIN_SAMPLES = 1 << 17
 
 
 # ---------------------------------------------------------------------------------------------
@@ -71,7 +71,7 @@ def _bootstrap(
     Record i draws from its own generator, ``default_rng(seeds.spawn(count)[i])``, so the
     result does not depend on how the records are shared among threads. Records of at least
     :attr:`._bands._BandSettings.min_samples` samples take the banded path (:mod:`._bands`).
-    Where a record costs 2^18 simulated samples or more, the records are simulated on up to two
+    Where a record costs 2^17 simulated samples or more, the records are simulated on up to two
     threads (numpy and scipy.fft release the GIL in their loops); else in the calling thread.
     """
     children = seeds.spawn(count)
