@@ -237,7 +237,7 @@ def test_fit_intervals_and_limit_test_agree_with_the_full_rate_bootstrap(monkeyp
     # flicker is masked here (its crossovers with white noise, 227 s, and the random walk,
     # 132 s, overlap) and read from the curvature around 25-200 s, across the band boundary at
     # m = 128|256 (26|51 s): the lost correlation there moves its upper end (measured, seeds
-    # 3-6: full rate 3.9-6.5e-3, banded 3.6-3.7e-3; with the boundary at 32|64 instead,
+    # 3-6: full rate 3.9-6.5e-3, banded 3.5-3.7e-3; with the boundary at 32|64 instead,
     # 3.8-5.6e-3 against 3.9-5.6e-3). That is the documented limit of the banded path; the
     # intervals of the terms read away from a boundary must agree:
     for name in ("white", "random_walk"):
