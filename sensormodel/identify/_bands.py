@@ -57,13 +57,14 @@ each band is one simulation of at most a few 10⁵ samples, the same for any rec
    record): the law of each estimate and the correlations inside a band agree within Monte Carlo
    error; the spread of the unconstrained weighted least-squares estimates (a combination of all
    τ) comes out 3–9 % narrower (1000 records per path; 3–5 % with one boundary); the
-   ratio-interval ends of terms read away from a boundary and the p-values of the test agree.
+   ratio-interval ends of white noise and a random walk and the p-values of the test agree.
    Where a term is read from the curvature across a boundary (a flicker term masked between
-   white noise and a random walk whose crossovers straddle it) its interval's upper end came out
-   about 30 % lower than the full-rate one; with the boundary two octaves away from that region
-   the two agreed. The remedy, a full-duration band reaching down to the short-τ term's own
-   region, costs a longer coarse record (cost ∝ its length); the defaults keep the cost of a
-   record at about 2^18 coarse samples.
+   white noise and a random walk, crossovers at 130–230 s, boundary at 26|51 s) the upper end of
+   its interval came out 3.5–3.7e-3 on four seeds against 3.9–6.5e-3 at full rate; with the
+   boundary at 6|13 s it agreed (3.8–5.6e-3 against 3.9–5.6e-3), at 13|26 s on two seeds of
+   four. Moving the boundary below the region where a second term shows costs a longer
+   full-duration band (cost ∝ its length); the defaults keep a record at about 2^18 coarse
+   samples.
 
 Records of fewer than :attr:`_BandSettings.min_samples` (2^19) samples stay on the full-rate
 path of :mod:`._bootstrap` (exact joint law at every τ; there the banded path would cost at
