@@ -46,9 +46,11 @@ each band is one simulation of at most a few 10⁵ samples, the same for any rec
    short-memory; a ramp only adds a constant to z_i and its cross term is a mean of z_i), so Var
    â ∝ 1/N·(1 + O(m/N)) for any N ≫ m, the O(m/N) term being what the EDF ratio carries. With m'
    ≤ N_seg/64 the types' ratios differ by less than 1 %. Within a band the estimates keep their
-   joint law; the scaled law keeps the segment's skewness (at most that of about 100 EDF, ~0.3,
-   where the record's law is nearly Gaussian: it moves the 5 % and 95 % points by < 0.1 standard
-   deviation).
+   joint law. The segment generator's mean is E exactly for every term but flicker, whose 2n
+   spectral synthesis is within about 1 % of E up to an eighth of the segment (m' ≤ N_seg/64
+   here); that bias is shrunk by s, not grown. The scaled law keeps the segment's skewness (at
+   most that of about 100 EDF, ~0.3, where the record's law is nearly Gaussian: it moves the 5 %
+   and 95 % points by < 0.1 standard deviation).
 4. **Band boundaries.** The bands are independent simulations, so the correlation of estimates
    on either side of a boundary is lost (neighbouring octaves correlate by 0.3–0.8 in the
    full-rate law, 0 across a boundary). With the defaults a band spans a factor 128 of τ or more
