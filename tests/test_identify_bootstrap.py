@@ -166,3 +166,46 @@ def test_band_limited_white_spectrum_folds_every_alias() -> None:
         brute = np.sum(np.sinc(g / 200.0) ** 2 / (1.0 + (g / bw) ** (2 * order)), axis=0)
         got = _white_alias_sum(f, 200.0, (bw, order))
         np.testing.assert_allclose(got, brute, rtol=2e-5)
+
+
+# ---------------------------------------------------------------------------------------------
+# the test at a limit: a null whose Gauss-Markov time constant sits at the end of its search
+# ---------------------------------------------------------------------------------------------
+
+
+def _gauss_markov_plus_white(rng, n, rate, sigma, tc, density):
+    """A first-order Gauss-Markov process (σ, T) point-sampled by its exact AR(1) step, plus
+    white noise of density N (IEEE Std 952 Annex C: std N·√rate)."""
+    from scipy.signal import lfilter
+
+    phi = math.exp(-1.0 / (rate * tc))
+    drive = rng.standard_normal(n) * sigma * math.sqrt(1.0 - phi**2)
+    drive[0] = rng.standard_normal() * sigma
+    return lfilter([1.0], [1.0, -phi], drive) + white(rng, n, rate, density)
+
+
+def test_limit_test_flags_a_null_time_constant_at_the_end_of_its_search() -> None:
+    # T = 3000 s in 20 min at 2 Hz: the record resolves only T ≲ 60 s, so σ held at twice its
+    # estimate pushes the null's profiled T to the upper end of the search (the rising side
+    # fixes σ²/T): the result says so; a null inside the range (T = 30 s in 3 h) says nothing
+    from sensormodel import identify
+
+    rng = np.random.default_rng(32)
+    rate, n = 2.0, 2_400
+    y = _gauss_markov_plus_white(rng, n, rate, 2.4e-4, 3000.0, 2e-5)
+    idn = identify.fit(overlapping(y, rate), terms="white,gauss_markov", seed=5, n_boot=60)
+    gm = idn.term("gauss_markov")
+    test = identify.limit_test(idn, "gauss_markov", 2.0 * gm.estimate, seed=1)
+    codes = dict(test.reasons)
+    assert set(codes) == {"null_time_constant_at_search_edge"}
+    edge = codes["null_time_constant_at_search_edge"]
+    assert edge["edge"] == "upper" and edge["value"] == test.null_time_constant
+    assert edge["high"] < 0.25 * n / rate and edge["value"] > 0.8 * edge["high"]
+
+    rng = np.random.default_rng(31)
+    rate, n = 2.0, 21_600
+    y = _gauss_markov_plus_white(rng, n, rate, 2.4e-4, 30.0, 5e-4)
+    idn = identify.fit(overlapping(y, rate), terms="white,gauss_markov", seed=4, n_boot=60)
+    gm = idn.term("gauss_markov")
+    test = identify.limit_test(idn, "gauss_markov", gm.estimate, seed=1)
+    assert test.reasons == () and test.null_time_constant is not None

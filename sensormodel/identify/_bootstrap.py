@@ -1,257 +1,41 @@
-"""The parametric bootstrap: records of a fitted model and their overlapping Allan variance.
+"""The parametric bootstrap: the overlapping Allan variances at a curve's τ of records of a
+fitted model.
 
-Why the bootstrap has its own record generator beside :mod:`sensormodel.simulate`: a fit asks
-for hundreds of independent whole records of one fitted model per call, each of which must have
-the model's *exact* Allan variance at every τ = m/rate of the fit (the bases of
-:mod:`._design`), so that the spread of the refits is the estimator's and nothing else.
-:mod:`sensormodel.simulate` realises a sensor's state-space model sample by sample, for one
-long record of any length (streamed, with a stated sampling assumption per term); here every
-record is drawn at once by circulant spectral synthesis of the period means (:class:`_Simulator`),
-the white, quantization and flicker terms in one FFT, and the record length is fixed by the
-curve. The two meet in the theory they both follow (:mod:`sensormodel.terms`: the terms' PSD and
-Allan variance), which the tests check each generator against.
+Two paths, one loop (:func:`_bootstrap`):
 
-The Allan variance of each record is computed by the engine of
-:func:`sensormodel.allan.overlapping` (its block sums,
-:func:`sensormodel.allan.second_difference_sums`), on the phase of the record held in a
-per-thread buffer (:class:`_BootstrapAllan`).
+* records of fewer than :attr:`._bands._BandSettings.min_samples` samples are simulated whole at
+  their rate (:class:`._synthesis._Simulator`) and their Allan variance computed at every τ
+  (:class:`._synthesis._BootstrapAllan`): the exact joint law of the estimates;
+* longer records take the banded path (:mod:`._bands`): each band of τ is one simulation of a
+  bounded number of coarse samples, so the cost per record does not grow with its length.
+
+Both compute the Allan variance with the engine of :func:`sensormodel.allan.overlapping`
+(:func:`sensormodel.allan.second_difference_sums`).
 """
 
 from __future__ import annotations
 
-import math
 import threading
 from collections.abc import Callable, Mapping
 from concurrent.futures import ThreadPoolExecutor
 from dataclasses import dataclass
-from functools import lru_cache
 from typing import Any
 
 import numpy as np
 import numpy.typing as npt
 
 from .. import validate
-from ..allan import aligned_scratch, second_difference_sums
-from ..errors import AnalysisError
+from . import _bands
 from ._checks import _Curve
+from ._synthesis import _BootstrapAllan, _Simulator, _white_alias_sum
+
+__all__ = ["_BootstrapAllan", "_Simulator", "_white_alias_sum", "_bootstrap", "_Progress"]
 
 _FloatArray = npt.NDArray[np.float64]
 ProgressCallback = Callable[[int, int], Any]
 
-#: Records of at least this many samples are simulated on two threads in the bootstrap.
-_THREAD_MIN_SAMPLES = 1 << 18
-
-
-# ---------------------------------------------------------------------------------------------
-# Records of a fitted model
-# ---------------------------------------------------------------------------------------------
-
-
-class _Simulator:
-    """Records of ``n`` samples at ``rate`` of a fitted model, one at a time.
-
-    Each sample is the **mean of the continuous process over its period**, so the Allan
-    variance of a record is the model's exact Allan variance at τ = m/rate (the bases of the
-    fit). The stationary Gaussian terms are drawn together by spectral synthesis (random
-    Gaussian Fourier coefficients; J. Timmer & M. König, Astron. Astrophys. 300:707, 1995) over
-    L = 2n samples of which the first n are kept, with the one-sided PSD of the sample means
-    (0 < f ≤ rate/2, dt = 1/rate):
-
-    * white N: flat 2N² (variance N²·rate per sample; IEEE Std 952 Annex C); band-limited by
-      an output filter B (bandwidth, Butterworth order): 2N² Σ_k |B(f + k·rate)|²
-      sinc²((f + k·rate)·dt), the period means' spectrum folded into the band (integrate, then
-      sample; for B = 1 the sum is 1);
-    * quantization Q: 8Q²·rate·sin²(πf dt), the PSD of (e_{k+1} − e_k)/dt with e white of
-      variance Q² (its covariance is banded, so the circular embedding is exact on n samples);
-    * flicker B: (B²/(πf))·sinc²(f dt): the 1/f PSD B²/(πf) up to rate/2 (two-sided
-      B²/(2πf), Annex C) times sinc², the effect of averaging over a period (the band-limited
-      process does not alias). The power below the first bin, 0 < f < f_L = rate/(2L), shows
-      within the record as a slope; it is added as a random slope of variance
-      ∫ (B²/(πf))(2πf)² df = 2π B² f_L². The Allan variance then follows the exact form of
-      :meth:`sensormodel.terms.Flicker.allan_variance` within about 1 % for τ up to an
-      eighth of the record (tests/test_identify.py);
-    * random walk K: the mean of Brownian motion of intensity K² over a period is the mean of
-      its end values plus an independent N(0, K² dt/12) (the Brownian-bridge part); the end
-      values are a cumulative sum, the bridge part joins the white spectrum (flat K² dt²/6);
-    * ramp R: R·t at the period mid-points (its Allan variance R²τ²/2 is the same for either
-      sign of the slope);
-    * Gauss-Markov σ, T: the exact joint law of the state at the period ends and its integral
-      over the period, from a stationary start (:meth:`_gauss_markov`).
-    """
-
-    def __init__(
-        self,
-        params: Mapping[str, float],
-        time_constant: float | None,
-        n: int,
-        rate: float,
-        white_filter: tuple[float, int] | None = None,
-    ) -> None:
-        self.n = int(n)
-        self.rate = float(rate)
-        self.dt = 1.0 / self.rate
-        dt = self.dt
-        self.length = 2 * self.n
-        f = np.fft.rfftfreq(self.length, d=dt)
-        s1 = np.zeros(f.size)
-        w = params.get("white", 0.0)
-        k = params.get("random_walk", 0.0)
-        q = params.get("quantization", 0.0)
-        b = params.get("flicker", 0.0)
-        s1[1:] += k**2 * dt**2 / 6.0
-        s1[1:] += 2.0 * w**2 * _white_alias_sum(f[1:], self.rate, white_filter)
-        s1[1:] += 8.0 * q**2 * self.rate * np.sin(np.pi * f[1:] * dt) ** 2
-        s1[1:] += b**2 / (np.pi * f[1:]) * np.sinc(f[1:] * dt) ** 2
-        # E|Z_j|² = L·S1(f_j)/(2 dt): then Var y = Σ S1(f_j) Δf with Δf = 1/(L dt)
-        self.amp = np.sqrt(s1 * self.length / (4.0 * dt))
-        self.amp[-1] *= math.sqrt(2.0)  # the Nyquist bin is real: all its variance in one part
-        self.amp32 = self.amp.astype(np.float32)
-        self.spectral = bool(np.any(s1 > 0))
-        f_low = self.rate / (2.0 * self.length)
-        self.flicker_slope = b * math.sqrt(2.0 * math.pi) * f_low
-        self.rw_step = k * math.sqrt(dt)
-        self.mid = (np.arange(self.n) + 0.5) * dt
-        self.ramp = params.get("ramp", 0.0)
-        self.gm = (params.get("gauss_markov", 0.0), time_constant)
-
-    def record(self, rng: np.random.Generator) -> _FloatArray:
-        """One record [u].
-
-        The random draws and the FFT are in single precision (relative error ~1e-7, far below
-        the sampling noise of any Allan variance); the record and its phase are double.
-        """
-        from scipy import fft
-
-        n = self.n
-        if self.spectral:
-            nb = self.amp.size
-            z = rng.standard_normal(2 * nb, dtype=np.float32).view(np.complex64)
-            z[-1] = z[-1].real
-            z *= self.amp32
-            y = fft.irfft(z, n=self.length)[:n].astype(np.float64)
-        else:
-            y = np.zeros(n)
-        slope = self.ramp
-        if self.flicker_slope > 0:
-            slope = slope + self.flicker_slope * float(rng.standard_normal())
-        if slope != 0.0:
-            y += slope * self.mid
-        if self.rw_step > 0:
-            ends = np.empty(n + 1)
-            ends[0] = 0.0
-            np.cumsum(rng.standard_normal(n, dtype=np.float32), dtype=np.float64, out=ends[1:])
-            ends *= self.rw_step
-            y += 0.5 * (ends[1:] + ends[:-1])
-        sigma, tc = self.gm
-        if sigma > 0 and tc:
-            y += self._gauss_markov(sigma, tc, rng)
-        return y
-
-    def _gauss_markov(self, sigma: float, tc: float, rng: np.random.Generator) -> _FloatArray:
-        """Period means of a stationary first-order Gauss-Markov process (σ, T), exactly.
-
-        Over one step, x_{k+1} = φ x_k + w_k and the integral I_k = T(1 − φ) x_k + v_k, with
-        φ = e^(−dt/T) and (w_k, v_k) jointly Gaussian: var w = σ²(1 − φ²),
-        cov(w, v) = σ² T (1 − φ)², var v = σ² T [2 dt − T (1 − φ)(3 − φ)] (the transition of
-        the Ornstein-Uhlenbeck process and of its integral). The mean is I_k/dt.
-        """
-        from scipy.signal import lfilter
-
-        n, dt = self.n, self.dt
-        phi = math.exp(-dt / tc)
-        vw = sigma**2 * (1.0 - phi**2)
-        cwv = sigma**2 * tc * (1.0 - phi) ** 2
-        vv = sigma**2 * tc * (2.0 * dt - tc * (1.0 - phi) * (3.0 - phi))
-        g = cwv / vw if vw > 0 else 0.0
-        ve = max(vv - g * cwv, 0.0)
-        w = rng.standard_normal(n) * math.sqrt(vw)
-        drive = np.empty(n)
-        drive[0] = rng.standard_normal() * sigma  # x_0, stationary
-        drive[1:] = w[:-1]
-        x = lfilter([1.0], [1.0, -phi], drive)
-        integral = tc * (1.0 - phi) * x + g * w + rng.standard_normal(n) * math.sqrt(ve)
-        return integral / dt
-
-
-#: Aliases folded one by one into the band-limited white spectrum of the bootstrap (the rest
-#: as an integral).
-_ALIASES = 64
-
-
-def _white_alias_sum(
-    f: _FloatArray, rate: float, white_filter: tuple[float, int] | None
-) -> _FloatArray:
-    """Σ_k |B(f + k·rate)|² sinc²((f + k·rate)/rate) for 0 < f ≤ rate/2 (1 without a filter).
-
-    With x = f/rate, sinc²(x + k) = sin²(πx)/(π(x + k))² for every k, so the sum is
-    sin²(πx)/π² · Σ_k |B|²/(x + k)², |B(g)|² = 1/(1 + (g/bandwidth)^(2·order)) (Butterworth).
-    """
-    if white_filter is None:
-        return np.ones(f.shape)
-    return _alias_sum_cached(f.size, float(f[0]), float(f[-1]), rate, white_filter).copy()
-
-
-@lru_cache(maxsize=4)
-def _alias_sum_cached(
-    size: int, f_first: float, f_last: float, rate: float, white_filter: tuple[float, int]
-) -> _FloatArray:
-    from scipy.integrate import quad
-    from scipy.interpolate import CubicSpline
-
-    bw, order = white_filter
-    c = rate / bw
-    x = np.linspace(f_first, f_last, size) / rate
-    total = np.zeros(size)
-    for k in range(-_ALIASES, _ALIASES + 1):
-        g = x + k
-        total += 1.0 / (g * g * (1.0 + ((g * c) ** 2) ** order))
-
-    # the aliases beyond ±K by the midpoint rule, Σ_{k>K} h(x + k) ≈ ∫_{K+½}^∞ h(x + t) dt
-    # (error ~h'/24 ≈ 3e-7 of the sum at K = 64), the integral G tabulated on [K, K + 1]
-    def h(u: float) -> float:
-        return 1.0 / (u * u * (1.0 + (c * u) ** (2 * order)))
-
-    grid = np.linspace(_ALIASES, _ALIASES + 1.0, 17)
-    tail = CubicSpline(grid, [quad(h, u0, np.inf, epsabs=0.0, epsrel=1e-12)[0] for u0 in grid])
-    total += tail(_ALIASES + 0.5 + x) + tail(_ALIASES + 0.5 - x)
-    total *= (np.sin(np.pi * x) / np.pi) ** 2
-    total.setflags(write=False)
-    return total
-
-
-# ---------------------------------------------------------------------------------------------
-# Their overlapping Allan variance, with sensormodel.allan's engine
-# ---------------------------------------------------------------------------------------------
-
-
-class _BootstrapAllan:
-    """Overlapping Allan variance of records of ``n`` samples at the averaging factors ``m``.
-
-    The estimator of :func:`sensormodel.allan.overlapping` (NIST SP 1065 section 5.2.4 eq. (11))
-    on the phase x = τ0·cumsum(y − ȳ) with N = n + 1 points:
-    Σ (x[i+2m] − 2x[i+m] + x[i])²/(2 m² τ0² (N − 2m)), written here with τ0 cancelled. The sums
-    are that engine's block sums (:func:`sensormodel.allan.second_difference_sums`); the phase
-    is built one record at a time in a preallocated buffer, which one thread reuses for all its
-    records.
-    """
-
-    def __init__(self, n: int, m: npt.NDArray[np.int64]) -> None:
-        self.n = int(n)
-        self.m = np.asarray(m, dtype=np.int64)
-        if self.m.size == 0 or np.any(np.diff(self.m) <= 0):
-            raise AnalysisError("averaging factors not increasing", "increasing m", field="m")
-        self.x = np.empty(self.n + 1)
-        # at least the engine's block (a record's length suffices for any block size)
-        self.scratch = aligned_scratch(self.n + 1)
-        self.denominator = 2.0 * self.m * self.m * (self.n + 1 - 2 * self.m)
-
-    def __call__(self, y: _FloatArray) -> _FloatArray:
-        n, x = self.n, self.x
-        x[0] = 0.0
-        np.subtract(y, y.mean(), out=x[1:])
-        np.cumsum(x[1:], out=x[1:])
-        sums = second_difference_sums(x, self.m, 0, n + 1 - 2 * int(self.m[0]), self.scratch)
-        return np.asarray(sums / self.denominator, dtype=np.float64)
+#: Records (or bands) of at least this many samples in all are simulated on two threads.
+_THREAD_MIN_SAMPLES = 1 << 17
 
 
 # ---------------------------------------------------------------------------------------------
@@ -285,24 +69,30 @@ def _bootstrap(
     """Allan variances at the curve's τ of ``count`` records simulated from ``params``.
 
     Record i draws from its own generator, ``default_rng(seeds.spawn(count)[i])``, so the
-    result does not depend on how the records are shared among threads. Long records (2^18
-    samples or more) are simulated on up to two threads (numpy and scipy.fft release the GIL
-    in their loops); short ones in the calling thread.
+    result does not depend on how the records are shared among threads. Records of at least
+    :attr:`._bands._BandSettings.min_samples` samples take the banded path (:mod:`._bands`).
+    Where a record costs 2^17 simulated samples or more, the records are simulated on up to two
+    threads (numpy and scipy.fft release the GIL in their loops); else in the calling thread.
     """
     children = seeds.spawn(count)
     out = np.empty((count, c.m.size))
     chunk = max(1, min(max(1, progress.total // 50), 8))
-    workers = 1 if c.n < _THREAD_MIN_SAMPLES else min(2, validate.usable_cpus(), count)
+    settings = _bands._SETTINGS
     # read-only: shared by the threads
-    sim = _Simulator(params, time_constant, c.n, c.rate, white_filter)
+    draw: _bands._BandedDraw | _FullDraw
+    if c.n >= settings.min_samples:
+        draw = _bands._BandedDraw(params, time_constant, c, white_filter, settings)
+    else:
+        draw = _FullDraw(_Simulator(params, time_constant, c.n, c.rate, white_filter), c)
+    workers = 1 if draw.samples < _THREAD_MIN_SAMPLES else min(2, validate.usable_cpus(), count)
     local = threading.local()  # the Allan-variance buffers: one set per thread
 
     def run(indices: range) -> None:
         engine = getattr(local, "engine", None)
         if engine is None:
-            engine = local.engine = _BootstrapAllan(c.n, c.m)
+            engine = local.engine = draw.worker()
         for i in indices:
-            out[i] = engine(sim.record(np.random.default_rng(children[i])))
+            out[i] = engine(np.random.default_rng(children[i]))
 
     starts = range(0, count, chunk)
     if workers == 1:
@@ -316,3 +106,16 @@ def _bootstrap(
             fut.result()
             progress.report(min(count, i0 + chunk))
     return out
+
+
+class _FullDraw:
+    """The full-rate path: whole records at the curve's rate, their Allan variance at every τ
+    (``worker()`` gives one thread's callable ``rng -> avar`` with its own buffers)."""
+
+    def __init__(self, sim: _Simulator, c: _Curve) -> None:
+        self.sim, self.c, self.samples = sim, c, c.n
+
+    def worker(self) -> Callable[[np.random.Generator], _FloatArray]:
+        engine = _BootstrapAllan(self.c.n, self.c.m)
+        sim = self.sim
+        return lambda rng: engine(sim.record(rng))

@@ -14,7 +14,7 @@ from .. import validate
 from ..errors import AnalysisError
 from ._bootstrap import ProgressCallback, _bootstrap, _Progress
 from ._checks import _check_records
-from ._design import _fit_subset, _null_gauss_markov, _params, _phi, _RefitState
+from ._design import _chi2, _fit_subset, _irls, _null_gauss_markov, _params, _phi, _RefitState
 from ._names import PARAMETERS
 from ._results import Identification, LimitTest
 
@@ -105,6 +105,7 @@ def limit_test(
         _Progress(progress, 0, n_records),
         d.white_filter,
     )
+    reasons = _null_edge_reasons(state, mask, j, value**2, t_null)
     null_model = _phi(d, t_null) @ null
     stats = np.array([_fit_subset(a, d, mask, start=null_model)[0][j] for a in av])
     b = stats.size
@@ -118,6 +119,7 @@ def limit_test(
         n_records=b,
         null_parameters=params,
         null_time_constant=None if d.gm_index is None else t_null,
+        reasons=reasons,
     )
 
 
@@ -171,3 +173,39 @@ def _null_model(
                 t_null = t_fit
     null[j] = held
     return null, t_null
+
+
+def _null_edge_reasons(
+    state: _RefitState,
+    mask: npt.NDArray[np.bool_],
+    j: int,
+    held: float,
+    t_null: float | None,
+) -> tuple[tuple[str, dict[str, Any]], ...]:
+    """``null_time_constant_at_search_edge`` where the null model's Gauss-Markov time constant
+    [s] sits at an end of its search range: within the last (first) step of the grid with the
+    null's misfit no higher at the last (first) grid point than at the one before (after), the
+    rule of :func:`._design._time_constant_edge` applied to the null fit (term ``j`` held at
+    ``held``, variance scale, the other terms of ``mask`` refitted beside it)."""
+    d, c = state.design, state.curve
+    grid = d.gm_grid
+    if grid is None or d.gm_index is None or t_null is None or not mask[d.gm_index]:
+        return ()
+    others = np.flatnonzero(mask & (np.arange(mask.size) != j))
+
+    def misfit(t: float) -> float:
+        phi = d.with_gm(t)
+        offset = held * phi[:, j]
+        if others.size == 0:
+            return _chi2(c.avar, offset, c.edf)
+        return _irls(c.avar, phi[:, others], d.edf, None, offset)[1]
+
+    edge = None
+    if t_null > grid[-2] and misfit(grid[-1]) <= misfit(grid[-2]):
+        edge = "upper"
+    elif t_null < grid[1] and misfit(grid[0]) <= misfit(grid[1]):
+        edge = "lower"
+    if edge is None:
+        return ()
+    numbers = {"edge": edge, "value": float(t_null), "low": float(grid[0]), "high": float(grid[-1])}
+    return (("null_time_constant_at_search_edge", numbers),)

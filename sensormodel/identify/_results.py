@@ -283,6 +283,12 @@ class LimitTest:
     null_time_constant : float or None
         The Gauss-Markov time constant of that model [s] (profiled when the Gauss-Markov σ is
         the tested parameter); None without a Gauss-Markov term.
+    reasons : tuple of (str, dict)
+        Reason codes with their numbers: ``null_time_constant_at_search_edge`` (``edge``
+        ``"upper"`` or ``"lower"``, ``value`` [s], the searched range ``low``, ``high`` [s])
+        where the null model's profiled time constant sits at an end of its search range (at
+        the upper end the record does not resolve it: the null is then one of many models
+        with the same σ²/T, and the test's p-values are those of that one).
     """
 
     term: str
@@ -294,6 +300,7 @@ class LimitTest:
     n_records: int
     null_parameters: dict[str, float]
     null_time_constant: float | None = None
+    reasons: tuple[tuple[str, dict[str, Any]], ...] = ()
 
 
 def to_model(
