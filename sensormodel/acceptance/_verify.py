@@ -324,8 +324,9 @@ def _confirm_at_limit(
     # (1 + k)/(B + 1) may equal α exactly (3/60 at 90 %), which 0.5·(1 − 0.9) misses by an ulp
     confirmed = p <= alpha * (1.0 + 1e-9)
     record: dict[str, Any] = {"p_value": p, "n_records": test.n_records, "confirmed": confirmed}
+    noted = [(code, dict(values)) for code, values in test.reasons]  # e.g. the null's T at an edge
     if confirmed:
-        return verdict, low, high, record, []
+        return verdict, low, high, record, noted
     why = {
         "side": "above" if verdict == "fail" else "below",
         "p_value": p,
@@ -338,7 +339,7 @@ def _confirm_at_limit(
         low = min(low, limit)
     else:
         high = max(high, math.nextafter(limit, math.inf))
-    return "inconclusive", low, high, record, [("limit_test_not_confirmed", why)]
+    return "inconclusive", low, high, record, [("limit_test_not_confirmed", why), *noted]
 
 
 def _edf_at(curve: Any, tau: float, alpha: int, duration: float) -> float | None:

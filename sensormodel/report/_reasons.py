@@ -75,6 +75,11 @@ REASONS: dict[str, str | Callable[[Mapping[str, Any]], str]] = {
         "the limit"
     ),
     "within_limit": "already within the limit",
+    "null_time_constant_at_search_edge": (
+        "gauss_markov: the time constant of the model at the limit, {value:.4g} s, is at the "
+        "{edge} end of its search range ({low:.4g} to {high:.4g} s): the test at the limit holds "
+        "for that time constant only"
+    ),
     "bound_only": "bound only: upper bound ∝ duration^-1/4",
     "estimate_at_limit": "the estimate equals the limit: no record length decides it",
     "dof_scaling": "chi-square dof ∝ record length",
