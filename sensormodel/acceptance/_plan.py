@@ -12,11 +12,19 @@ import numpy as np
 import numpy.typing as npt
 
 from .. import validate
-from ..confidence import dof_for_precision, duration_for_edf
+from ..confidence import allan_edf, duration_for_edf, required_dof
 from ..datasheet import AxisSpec, Datasheet, load_datasheet
 from ..errors import AnalysisError, DatasheetError
-from ._limits import SpecLimit, Unverified, limit_channel, spec_limits
-from ._verdicts import DEFAULT_CONFIDENCE, DEFAULT_PRECISION
+from ._limits import (
+    SpecLimit,
+    Unverified,
+    _fit_reading,
+    fit_terms,
+    limit_channel,
+    output_filter,
+    spec_limits,
+)
+from ._verdicts import DEFAULT_CONFIDENCE, DEFAULT_POWER
 
 __all__ = ["Reading", "reading_tau", "PlanRow", "Plan", "plan"]
 
@@ -32,6 +40,9 @@ _PER_DECADE = 12
 #: its variance would be the difference of numbers at least ten times its own, so the model of
 #: the other terms would have to be exact to better than a tenth of the term.
 MIN_MASKED_SHARE = 0.1
+#: Default margin of the plan's promise: the unit whose decision it promises lies 25 % below
+#: its limit (:func:`plan`).
+DEFAULT_MARGIN = 0.25
 
 
 def _alpha_at(slope: float) -> int:
@@ -168,12 +179,162 @@ def reading_tau(
     )
 
 
+def _scaled(term: Any, factor: float) -> Any:
+    """The term with its compared quantity (its limited parameter, :func:`_fit_reading`)
+    multiplied by ``factor``."""
+    _, parameter, _ = _fit_reading(term.type, {term.type})
+    return replace(term, **{parameter: getattr(term, parameter) * factor})
+
+
 def _reading_at(tau: float, share: float, slope: float, rate: float, dof: float) -> Reading:
     """The reading of a term of this ``share`` at ``tau`` (noise type from the ``slope``)."""
     alpha = _alpha_at(slope)
     edf = dof / share**2
     dur = max(duration_for_edf(alpha, tau, edf, rate), _MIN_RECORD_OVER_TAU * tau)
     return Reading(tau, share, alpha, dof, edf, dur)
+
+
+# ---------------------------------------------------------------------------------------------
+# The precision of verify's fit, before any record
+# ---------------------------------------------------------------------------------------------
+
+
+def _parameter(term: Any) -> float:
+    """The term's limited parameter (:func:`_fit_reading`) [SI]."""
+    _, parameter, _ = _fit_reading(term.type, {term.type})
+    return float(getattr(term, parameter))
+
+
+class _FitModel:
+    """Verify's weighted fit of one channel, before any record: the octave τ grid (m = 2^k,
+    as :func:`sensormodel.allan.tau_grid` makes it) up to 10¹⁰ s, each term's Allan variance
+    and each fitted basis (identify's own, :func:`sensormodel.identify._design._basis`) on it,
+    computed once; a record of length D uses the grid's points with m ≤ (n − 1)/2."""
+
+    def __init__(
+        self,
+        terms: Sequence[Any],
+        fitted: Sequence[str],
+        *,
+        rate: float,
+        white_filter: tuple[float, int] | None,
+    ) -> None:
+        from ..identify._design import _basis
+
+        self.rate = rate
+        self.terms = list(terms)
+        self.fitted = list(fitted)
+        self.tau = 2.0 ** np.arange(0, int(math.log2(1e10 * rate)) + 1) / rate
+        self.parts = np.array([t.allan_variance(self.tau, sample_rate=rate) for t in terms])
+        gm = next((t for t in terms if t.type == "gauss_markov"), None)
+        self.gm = gm
+        cols = []
+        for name in fitted:
+            t_c = float(gm.time_constant) if name == "gauss_markov" and gm is not None else 1.0
+            cols.append(_basis(name, self.tau, rate, time_constant=t_c, white_filter=white_filter))
+        if gm is not None and "gauss_markov" in fitted:
+            # ∂AVAR/∂ln T at unit σ: the fit profiles T
+            h = 1e-3
+            up, down = (
+                _basis("gauss_markov", self.tau, rate, time_constant=gm.time_constant * math.exp(e))
+                for e in (h, -h)
+            )
+            cols.append((up - down) / (2.0 * h))
+        self.cols = np.array(cols)
+
+    def curve(self, index: int, factor: float) -> npt.NDArray[np.float64]:
+        """The unit's Allan variance on the grid with term ``index`` at ``factor`` of its
+        parameter."""
+        scale = np.ones(len(self.terms))
+        scale[index] = factor**2
+        return scale @ self.parts
+
+    def _grid(self, duration: float, model: npt.NDArray[np.float64]) -> tuple[Any, Any]:
+        """(points used, their EDF) for a record of ``duration`` s: Greenhall & Riley (2003)
+        at each τ (:func:`sensormodel.confidence.allan_edf`), noise type from the slope."""
+        n = int(duration * self.rate)
+        k = int(np.searchsorted(self.tau * self.rate, (n - 1) / 2.0, side="right"))
+        tau, m = self.tau[:k], model[:k]
+        slope = np.gradient(np.log(m), np.log(tau)) if k > 1 else np.zeros(k)
+        edf = np.array(
+            [allan_edf(_alpha_at(float(q)), float(t), duration, self.rate) for q, t in zip(slope, tau)]
+        )
+        return k, edf
+
+    def dof(self, index: int, factor: float, duration: float) -> tuple[float, float]:
+        """(effective degrees of freedom of term ``index``'s estimate, standard error of ln T
+        of the Gauss-Markov term or 0) for a record of ``duration`` s.
+
+        The fit weighs each τ by edf/(2·AVAR²) (identify's weights) and fits the bases'
+        coefficients c_k (variance scale, p_k²); their information is
+        J = Σ_τ w(τ)·∂m/∂θ·∂m/∂θᵀ (θ: the coefficients and ln T), their covariance J⁻¹
+        (the τ taken as independent), and ν = 2c²/Var(ĉ), the chi-square whose variance
+        matches (Var(χ²_ν/ν) = 2/ν)."""
+        model = self.curve(index, factor)
+        k, edf = self._grid(duration, model)
+        if k < 2:
+            return 0.0, math.inf
+        truth = {t.type: (t, factor if i == index else 1.0) for i, t in enumerate(self.terms)}
+        coef = [
+            (_parameter(truth[nm][0]) * truth[nm][1]) ** 2 if nm in truth else 0.0
+            for nm in self.fitted
+        ]
+        a = self.cols[:, :k].copy()
+        if a.shape[0] > len(self.fitted):
+            a[-1] *= coef[self.fitted.index("gauss_markov")]
+        ok = edf > 0
+        w = edf[ok] / (2.0 * model[:k][ok] ** 2)
+        j = (a[:, ok] * w) @ a[:, ok].T
+        scale = np.sqrt(np.maximum(np.diag(j), 1e-300))
+        cov = np.linalg.pinv(j / np.outer(scale, scale)) / np.outer(scale, scale)
+        c = self.fitted.index(self.terms[index].type)
+        var = float(cov[c, c])
+        nu = 2.0 * coef[c] ** 2 / var if var > 0 else math.inf
+        se = math.sqrt(max(float(cov[-1, -1]), 0.0)) if a.shape[0] > len(self.fitted) else 0.0
+        return nu, se
+
+    def resolvable(self, index: int, factor: float, duration: float) -> float:
+        """The longest Gauss-Markov time constant [s] a record of ``duration`` s resolves, by
+        the identification's rule (:func:`sensormodel.identify._design._resolvable_time_constant`,
+        its owner) on the octave curve with Greenhall-Riley EDF."""
+        from ..identify._design import _resolvable_time_constant
+
+        k, edf = self._grid(duration, self.curve(index, factor))
+        return float(_resolvable_time_constant(self.tau[:k], edf))
+
+    def duration(
+        self, index: int, factor: float, *, dof: float, confidence: float, shortest: float
+    ) -> float:
+        """The shortest record length [s] at which the fit gives term ``index`` ``dof``
+        effective degrees of freedom (:meth:`dof`) and, for a Gauss-Markov term, resolves its
+        time constant: the upper end of T's interval, T·exp(z·se(ln T)) with z the normal
+        quantile of the two-sided ``confidence``, within the longest time constant the record
+        resolves (:meth:`resolvable`). At least ``shortest``; infinite beyond 10¹⁰ s."""
+        from scipy.stats import norm
+
+        z = float(norm.ppf(0.5 * (1.0 + confidence)))
+        gm = self.terms[index] if self.terms[index].type == "gauss_markov" else None
+
+        def enough(d: float) -> bool:
+            nu, se = self.dof(index, factor, d)
+            if nu < dof:
+                return False
+            return gm is None or gm.time_constant * math.exp(z * se) <= self.resolvable(
+                index, factor, d
+            )
+
+        lo = max(shortest, 16.0 / self.rate)
+        if enough(lo):
+            return lo
+        hi = lo
+        while not enough(hi):
+            lo, hi = hi, hi * 2.0
+            if hi > 1e10:
+                return math.inf
+        while hi / lo > 1.01:
+            mid = math.sqrt(lo * hi)
+            lo, hi = (lo, mid) if enough(mid) else (mid, hi)
+        return hi
 
 
 @dataclass(frozen=True)
@@ -219,14 +380,37 @@ class PlanRow:
 
 @dataclass(frozen=True)
 class Plan:
-    """Recording lengths needed to verify a datasheet (see :func:`plan`)."""
+    """Recording lengths needed to verify a datasheet (see :func:`plan`).
+
+    Attributes
+    ----------
+    rows : tuple of PlanRow
+    unverified : tuple of Unverified
+    confidence : float
+        Two-sided confidence of verify's intervals the plan is made for.
+    power : float
+        The probability of a decided verdict the plan promises.
+    margin : float
+        How far the unit of the promise lies from each limit: its term at (1 − margin)·limit.
+    sample_rate : float
+        Sample rate of the planned record [Hz].
+    datasheet : dict
+        ``file``, ``sha256``.
+    """
 
     rows: tuple[PlanRow, ...]
     unverified: tuple[Unverified, ...]
     confidence: float
-    precision: float
+    power: float
+    margin: float
     sample_rate: float
     datasheet: dict[str, Any] = field(default_factory=dict)
+
+    @property
+    def dof(self) -> float:
+        """The effective degrees of freedom of a term's interval that decide it with
+        :attr:`power` (:func:`sensormodel.confidence.required_dof` at (1 − margin)·limit)."""
+        return plan_dof(self.margin, confidence=self.confidence, power=self.power)
 
     @property
     def duration(self) -> float:
@@ -248,30 +432,76 @@ class Plan:
         )
 
 
+#: The promise of :func:`plan`, as :mod:`sensormodel.report` and the ``plan`` command print it.
+PROMISE = (
+    "a unit whose term lies at (1 − margin)·limit, recorded for the planned length, gets a "
+    "decided verdict on that term (pass; a unit as far above, at limit/(1 − margin), fail) "
+    "with probability at least the power, by verify's decision: the term's two-sided "
+    "interval at the confidence wholly within or wholly beyond the limit"
+)
+
+
+def plan_dof(margin: float, *, confidence: float, power: float) -> float:
+    """Effective degrees of freedom of a term's interval with which a unit whose term lies at
+    (1 − ``margin``)·limit is decided ``pass`` with probability ``power`` by verify's decision
+    rule (:func:`sensormodel.confidence.required_dof`; the chi-square interval of the
+    deviation, NIST SP 1065 eq. 45).
+
+    The pass side binds: a unit as far above its limit, at limit/(1 − margin), is decided
+    ``fail`` with at least that probability at these degrees of freedom (the chi-square upper
+    tail is the longer one), which ``tests/test_acceptance_plan.py`` checks.
+    """
+    if not (isinstance(margin, (int, float)) and 0.0 < margin < 1.0):
+        raise AnalysisError(
+            f"margin = {margin!r}", "a fraction between 0 and 1, e.g. 0.25", field="margin"
+        )
+    nu = required_dof(1.0 - float(margin), 1.0, confidence=confidence, power=power)
+    assert nu is not None  # (1 − margin) ≠ 1
+    return nu
+
+
 def plan(
     datasheet: Datasheet | str,
     *,
     confidence: float = DEFAULT_CONFIDENCE,
-    precision: float = DEFAULT_PRECISION,
+    power: float = DEFAULT_POWER,
+    margin: float = DEFAULT_MARGIN,
     against: str = "max",
     sample_rate: float | None = None,
 ) -> Plan:
     """Recording length needed to verify each term of a datasheet, before any test.
 
-    For a unit exactly at its limits (the model of the ``max`` values; a term printed without
-    a max at its typical value), each term is read at the τ where a record reaches the
-    wanted precision soonest (:func:`reading_tau`): the interval's half-width at ``confidence``
-    is at most ``precision`` of the term's value (:func:`dof_for_precision`). A unit whose true
-    value lies more than about that fraction below (above) its limit is then decided ``pass``
-    (``fail``) in most records.
+    **The promise.** A unit whose term lies at (1 − ``margin``)·limit, recorded for the
+    planned length, gets a decided verdict on that term (``pass``; a unit as far above the
+    limit, at limit/(1 − margin), ``fail``) with probability at least ``power``, by the
+    decision :func:`sensormodel.acceptance.verify` makes: the term's two-sided interval at
+    ``confidence`` (identify's) wholly within or wholly beyond the limit
+    (:func:`sensormodel.acceptance.decide`). A unit exactly at its limit is decided in only
+    about (1 − confidence)/2 of records whatever the length; the margin says how close to it
+    the plan still promises a decision.
+
+    **How.** The interval of a term is taken as the chi-square interval of a deviation with ν
+    effective degrees of freedom (NIST SP 1065 eq. 45); ν = :func:`plan_dof` (from
+    :func:`sensormodel.confidence.required_dof`, the one owner of the decision model). The
+    other terms are at their limits (the model of the ``max`` values; a term printed without
+    a max at its typical value) and the term under test at (1 − margin)·limit. Each term is
+    read at the τ where it dominates the curve and a record reaches ν soonest
+    (:func:`reading_tau`: ν = edf(τ)·share(τ)², Greenhall & Riley 2003). A Gauss-Markov term
+    must also be *resolved*: its time constant T told apart from a longer one, which the
+    identification grants only when the Allan-deviation peak 1.8926·T lies where the curve
+    still has 4 degrees of freedom (:func:`sensormodel.identify._design._resolvable_time_constant`,
+    the one owner of that rule); its length is at least the one that resolves
+    :data:`GM_RESOLVE_FACTOR`·T (:func:`resolving_duration`).
 
     Parameters
     ----------
     datasheet : Datasheet or path
     confidence : float
-        Two-sided confidence (default 0.9).
-    precision : float
-        Wanted relative half-width of the interval (default 0.25).
+        Two-sided confidence of verify's intervals (default 0.9).
+    power : float
+        Probability of a decided verdict at the planned length (default 0.8, verify's).
+    margin : float
+        The unit of the promise lies at (1 − margin)·limit (default 0.25).
     against : {"max", "typ"}
         The datasheet column verified.
     sample_rate : float, optional
@@ -282,8 +512,9 @@ def plan(
     Plan
     """
     validate.probability(confidence, "confidence", example="0.9")
+    validate.probability(power, "power", example="0.8")
     ds = datasheet if isinstance(datasheet, Datasheet) else load_datasheet(datasheet)
-    nu = dof_for_precision(precision, confidence)
+    nu = plan_dof(margin, confidence=confidence, power=power)
     rows: list[PlanRow] = []
     skipped: list[Unverified] = []
     rate_used = 0.0
@@ -297,23 +528,46 @@ def plan(
         else:  # pragma: no cover - the datasheet schema requires a rate
             raise DatasheetError("no sample_rate", "a sample_rate", source=ds.source)
         rate_used = rate
-        rows.extend(_plan_channel(ax, limits, rate=rate, dof=nu, against=against))
+        rows.extend(
+            _plan_channel(
+                ax,
+                limits,
+                rate=rate,
+                dof=nu,
+                against=against,
+                margin=float(margin),
+                confidence=confidence,
+            )
+        )
     return Plan(
         rows=tuple(rows),
         unverified=tuple(skipped),
         confidence=float(confidence),
-        precision=float(precision),
+        power=float(power),
+        margin=float(margin),
         sample_rate=rate_used,
         datasheet={"file": ds.source, "sha256": ds.sha256},
     )
 
 
 def _plan_channel(
-    ax: AxisSpec, limits: list[SpecLimit], *, rate: float, dof: float, against: str
+    ax: AxisSpec,
+    limits: list[SpecLimit],
+    *,
+    rate: float,
+    dof: float,
+    against: str,
+    margin: float,
+    confidence: float,
 ) -> list[PlanRow]:
-    """The plan rows of one channel's limited terms, read on the model of its limits."""
+    """The plan rows of one channel's limited terms: each read on the model of the limits
+    with that term at (1 − ``margin``) of its limit."""
     terms = list(limit_channel(ax, rate=rate, against=against).terms)
-    curves = _term_curves(terms, rate=rate, tau_min=_MIN_TAU_SAMPLES / rate, tau_max=1e9)
+    bandwidth, order = output_filter(ax)
+    white_filter = None if bandwidth is None else (bandwidth, order or 1)
+    fit = _FitModel(terms, fit_terms(ax), rate=rate, white_filter=white_filter)
+    tau, parts = _term_curves(terms, rate=rate, tau_min=_MIN_TAU_SAMPLES / rate, tau_max=1e9)
+    factor = 1.0 - margin
     rows = []
     for spec in limits:
         idx = next(
@@ -321,7 +575,21 @@ def _plan_channel(
             for i, t in enumerate(terms)
             if t.type == spec.type and t.meta.get("datasheet", {}).get("field") == spec.field
         )
-        r = reading_tau(terms, idx, rate=rate, dof=dof, curves=curves)
+        unit_terms = list(terms)
+        unit_terms[idx] = _scaled(terms[idx], factor)
+        unit_parts = parts.copy()
+        unit_parts[idx] *= factor**2
+        r = reading_tau(unit_terms, idx, rate=rate, dof=dof, curves=(tau, unit_parts))
+        if math.isfinite(r.duration):
+            length = fit.duration(
+                idx,
+                factor,
+                dof=dof,
+                confidence=confidence,
+                shortest=_MIN_RECORD_OVER_TAU * r.tau,
+            )
+            edf = allan_edf(r.alpha, r.tau, length, rate) if math.isfinite(length) else math.inf
+            r = replace(r, duration=length, edf=edf)
         reasons: tuple[tuple[str, dict[str, Any]], ...] = ()
         if r.masked_by is not None:
             why = {
@@ -346,3 +614,4 @@ def _plan_channel(
             )
         )
     return rows
+
