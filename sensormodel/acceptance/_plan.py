@@ -12,7 +12,7 @@ import numpy as np
 import numpy.typing as npt
 
 from .. import validate
-from ..confidence import allan_edf, duration_for_edf, required_dof
+from ..confidence import allan_edf, duration_for_edf, edf, required_dof
 from ..datasheet import AxisSpec, Datasheet, load_datasheet
 from ..errors import AnalysisError, DatasheetError
 from ._limits import (
@@ -250,20 +250,50 @@ class _FitModel:
         return scale @ self.parts
 
     def _grid(self, duration: float, model: npt.NDArray[np.float64]) -> tuple[Any, Any]:
-        """(points used, their EDF) for a record of ``duration`` s: Greenhall & Riley (2003)
-        at each τ (:func:`sensormodel.confidence.allan_edf`), noise type from the slope."""
+        """(points used, their EDF) for a record of ``duration`` s: the overlapping estimator's
+        (:func:`sensormodel.confidence.edf`, Greenhall & Riley 2003), noise type from the
+        local slope of the unit's curve."""
         n = int(duration * self.rate)
         k = int(np.searchsorted(self.tau * self.rate, (n - 1) / 2.0, side="right"))
-        tau, m = self.tau[:k], model[:k]
-        slope = np.gradient(np.log(m), np.log(tau)) if k > 1 else np.zeros(k)
-        edf = np.array(
-            [allan_edf(_alpha_at(float(q)), float(t), duration, self.rate) for q, t in zip(slope, tau)]
-        )
-        return k, edf
+        m = model[:k]
+        slope = np.gradient(np.log(m), np.log(self.tau[:k])) if k > 1 else np.zeros(k)
+        edfs = np.array([edf(_alpha_at(float(q)), 1 << i, n + 1) for i, q in enumerate(slope)])
+        return k, edfs
 
-    def dof(self, index: int, factor: float, duration: float) -> tuple[float, float]:
-        """(effective degrees of freedom of term ``index``'s estimate, standard error of ln T
-        of the Gauss-Markov term or 0) for a record of ``duration`` s.
+    def _covariance(
+        self, index: int, factor: float, k: int, n: int
+    ) -> npt.NDArray[np.float64]:
+        """Covariance of the overlapping Allan-variance estimates at the first ``k`` τ of the
+        grid in a record of ``n`` samples [u⁴].
+
+        With d_i(t) the difference of adjacent averages over τ_i (transfer function
+        H_i(f) = (e^{i2πfτ} − 1)²/(i2πfτ), |H_i|² = 4 sin⁴(πfτ_i)/(πfτ_i)²) and
+        â_i = Σ_k d_i(k)²/(2M_i) over M_i = n − 2m_i overlapping differences, a Gaussian
+        record gives Cov(â_i, â_j) = Σ_k Σ_l ρ_ij(l − k)²/(2M_iM_j), ρ_ij the cross-covariance
+        of d_i and d_j; for records long against the differences' span this is
+        min(M_i, M_j)/(2M_iM_j)·Σ_n ρ_ij(n)², and by Parseval
+        Σ_n ρ_ij(n)² = rate·∫ S(f)²|H_i(f)|²|H_j(f)|² df (S the unit's two-sided PSD; the
+        aliases of the sampling neglected, exact for m ≫ 1). Where fτ > 20 the fast factor
+        sin⁴ is replaced by its mean 3/8. (The diagonal reproduces the EDF of white-noise
+        overlapping AVAR at large m, 1.5·M/m: NIST SP 1065 Table 5.)"""
+        rate = self.rate
+        tau = self.tau[:k]
+        f = np.geomspace(1e-4 / tau[-1], 1e3 * rate, int(400 * math.log10(1e7 * tau[-1] * rate)))
+        s = np.zeros_like(f)
+        for i, t in enumerate(self.terms):
+            part = np.asarray(t.psd(f, sample_rate=rate), dtype=np.float64)
+            s += part * (factor**2 if i == index else 1.0)
+        x = np.pi * np.outer(tau, f)
+        h2 = 4.0 * np.where(x < 20.0 * np.pi, np.sin(x) ** 4, 0.375) / x**2
+        w = np.gradient(f) * s**2
+        r = 2.0 * rate * (h2 * w) @ h2.T
+        m = np.maximum(float(n) - 2.0 * np.round(tau * rate), 1.0)
+        return np.minimum.outer(m, m) / (2.0 * np.outer(m, m)) * r
+
+    def dof(self, index: int, factor: float, duration: float) -> tuple[float, float, float]:
+        """(effective degrees of freedom ν of term ``index``'s estimate summed over τ, its
+        variance inflation factor Var(ĉ)·J_kk, standard error of ln T of the Gauss-Markov
+        term or 0) for a record of ``duration`` s.
 
         The fit weighs each τ by edf/(2·AVAR²) (identify's weights) and fits the bases'
         coefficients c_k (variance scale, p_k²); their information is
@@ -271,9 +301,9 @@ class _FitModel:
         (the τ taken as independent), and ν = 2c²/Var(ĉ), the chi-square whose variance
         matches (Var(χ²_ν/ν) = 2/ν)."""
         model = self.curve(index, factor)
-        k, edf = self._grid(duration, model)
+        k, edfs = self._grid(duration, model)
         if k < 2:
-            return 0.0, math.inf
+            return 0.0, math.inf, math.inf
         truth = {t.type: (t, factor if i == index else 1.0) for i, t in enumerate(self.terms)}
         coef = [
             (_parameter(truth[nm][0]) * truth[nm][1]) ** 2 if nm in truth else 0.0
@@ -282,16 +312,25 @@ class _FitModel:
         a = self.cols[:, :k].copy()
         if a.shape[0] > len(self.fitted):
             a[-1] *= coef[self.fitted.index("gauss_markov")]
-        ok = edf > 0
-        w = edf[ok] / (2.0 * model[:k][ok] ** 2)
+        ok = edfs > 0
+        w = edfs[ok] / (2.0 * model[:k][ok] ** 2)
         j = (a[:, ok] * w) @ a[:, ok].T
         scale = np.sqrt(np.maximum(np.diag(j), 1e-300))
         cov = np.linalg.pinv(j / np.outer(scale, scale)) / np.outer(scale, scale)
         c = self.fitted.index(self.terms[index].type)
+        # the sandwich: the weighted fit's estimate is B·â, B = J⁻¹AᵀW; its covariance BΣBᵀ
+        jinv = np.linalg.pinv(j / np.outer(scale, scale)) / np.outer(scale, scale)
+        b = jinv @ (a[:, ok] * w)
+        sig = self._covariance(index, factor, k, int(duration * self.rate))
+        # variances from the estimator's EDF (exact where the spectral form neglects aliasing,
+        # at τ of a few samples), correlations from the spectral form
+        fix = np.sqrt(2.0 * model[:k] ** 2 / edfs / np.diag(sig))
+        sig = (sig * np.outer(fix, fix))[np.ix_(ok, ok)]
+        cov = b @ sig @ b.T
         var = float(cov[c, c])
         nu = 2.0 * coef[c] ** 2 / var if var > 0 else math.inf
         se = math.sqrt(max(float(cov[-1, -1]), 0.0)) if a.shape[0] > len(self.fitted) else 0.0
-        return nu, se
+        return nu, max(1.0, var * float(j[c, c])), se
 
     def resolvable(self, index: int, factor: float, duration: float) -> float:
         """The longest Gauss-Markov time constant [s] a record of ``duration`` s resolves, by
@@ -299,24 +338,41 @@ class _FitModel:
         its owner) on the octave curve with Greenhall-Riley EDF."""
         from ..identify._design import _resolvable_time_constant
 
-        k, edf = self._grid(duration, self.curve(index, factor))
-        return float(_resolvable_time_constant(self.tau[:k], edf))
+        k, edfs = self._grid(duration, self.curve(index, factor))
+        return float(_resolvable_time_constant(self.tau[:k], edfs))
 
     def duration(
-        self, index: int, factor: float, *, dof: float, confidence: float, shortest: float
+        self,
+        index: int,
+        factor: float,
+        reading: Reading,
+        *,
+        dof: float,
+        confidence: float,
+        shortest: float,
     ) -> float:
-        """The shortest record length [s] at which the fit gives term ``index`` ``dof``
-        effective degrees of freedom (:meth:`dof`) and, for a Gauss-Markov term, resolves its
-        time constant: the upper end of T's interval, T·exp(z·se(ln T)) with z the normal
-        quantile of the two-sided ``confidence``, within the longest time constant the record
-        resolves (:meth:`resolvable`). At least ``shortest``; infinite beyond 10¹⁰ s."""
+        """The shortest record length D [s] that gives term ``index`` ``dof`` effective degrees
+        of freedom in verify's fit and, for a Gauss-Markov term, resolves its time constant.
+
+        The degrees of freedom are those of the term's ``reading`` (edf(τ, D)·share², the
+        other terms taken as known) divided by the variance inflation of the fit,
+        VIF = Var(ĉ)·J_kk ≥ 1 from :meth:`dof`: the loss from fitting the other terms beside
+        it, among them terms the unit lacks (verify fits white, flicker and random walk
+        always: a random walk's upper end moves with a flicker term fitted at zero). The
+        information summed over τ (:meth:`dof`'s ν) counts correlated τ as independent and
+        overstates it (several-fold in seeded studies), so only its ratio VIF is used.
+        The Gauss-Markov time constant is resolved when the upper end of T's interval,
+        T·exp(z·se(ln T)) (z the normal quantile of the two-sided ``confidence``; se from
+        :meth:`dof`, scaled by the same overstatement √(ν/ν_reading)), lies within the
+        longest time constant the record resolves (:meth:`resolvable`). At least
+        ``shortest``; infinite beyond 10¹⁰ s."""
         from scipy.stats import norm
 
         z = float(norm.ppf(0.5 * (1.0 + confidence)))
         gm = self.terms[index] if self.terms[index].type == "gauss_markov" else None
 
         def enough(d: float) -> bool:
-            nu, se = self.dof(index, factor, d)
+            nu, _, se = self.dof(index, factor, d)
             if nu < dof:
                 return False
             return gm is None or gm.time_constant * math.exp(z * se) <= self.resolvable(
@@ -584,9 +640,10 @@ def _plan_channel(
             length = fit.duration(
                 idx,
                 factor,
+                r,
                 dof=dof,
                 confidence=confidence,
-                shortest=_MIN_RECORD_OVER_TAU * r.tau,
+                shortest=max(2.0 * r.tau, 2.0 ** (len(fit.fitted) + 3) / rate) + 1.0 / rate,
             )
             edf = allan_edf(r.alpha, r.tau, length, rate) if math.isfinite(length) else math.inf
             r = replace(r, duration=length, edf=edf)
