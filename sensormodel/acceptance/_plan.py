@@ -240,6 +240,8 @@ class _FitModel:
             )
             cols.append((up - down) / (2.0 * h))
         self.cols = np.array(cols)
+        #: per number of τ: (frequencies, |H|² of each τ, each term's PSD) of _covariance
+        self._spectral: dict[int, Any] = {}
 
     def curve(self, index: int, factor: float) -> npt.NDArray[np.float64]:
         """The unit's Allan variance on the grid with term ``index`` at ``factor`` of its
@@ -275,14 +277,18 @@ class _FitModel:
         overlapping AVAR at large m, 1.5·M/m: NIST SP 1065 Table 5.)"""
         rate = self.rate
         tau = self.tau[:k]
-        f = np.geomspace(1e-4 / tau[-1], 1e3 * rate, int(400 * math.log10(1e7 * tau[-1] * rate)))
-        s = np.zeros_like(f)
-        for i, t in enumerate(self.terms):
-            part = np.asarray(t.psd(f, sample_rate=rate), dtype=np.float64)
-            s += part * (factor**2 if i == index else 1.0)
-        x = np.pi * np.outer(tau, f)
-        h2 = 4.0 * np.where(x < 20.0 * np.pi, np.sin(x) ** 4, 0.375) / x**2
-        w = np.gradient(f) * s**2
+        if k not in self._spectral:
+            f = np.geomspace(
+                1e-4 / tau[-1], 1e3 * rate, int(400 * math.log10(1e7 * tau[-1] * rate))
+            )
+            x = np.pi * np.outer(tau, f)
+            h2 = 4.0 * np.where(x < 20.0 * np.pi, np.sin(x) ** 4, 0.375) / x**2
+            psd = np.array([t.psd(f, sample_rate=rate) for t in self.terms], dtype=np.float64)
+            self._spectral[k] = (f, h2, psd)
+        f, h2, psd = self._spectral[k]
+        scale = np.ones(len(self.terms))
+        scale[index] = factor**2
+        w = np.gradient(f) * (scale @ psd) ** 2
         r = 2.0 * rate * (h2 * w) @ h2.T
         m = np.maximum(float(n) - 2.0 * np.round(tau * rate), 1.0)
         return np.minimum.outer(m, m) / (2.0 * np.outer(m, m)) * r
