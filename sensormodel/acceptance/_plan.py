@@ -26,7 +26,7 @@ from ._limits import (
 )
 from ._verdicts import DEFAULT_CONFIDENCE, DEFAULT_POWER
 
-__all__ = ["Reading", "reading_tau", "PlanRow", "Plan", "plan"]
+__all__ = ["Reading", "reading_tau", "PlanRow", "Plan", "plan", "plan_dof", "DEFAULT_MARGIN"]
 
 #: A record must be at least this many times the τ a term is read at (common practice: the
 #: longest τ of an Allan analysis is a small fraction of the record).
@@ -390,7 +390,8 @@ class _FitModel:
 
 @dataclass(frozen=True)
 class PlanRow:
-    """The recording length needed to verify one term of a unit exactly at its limits.
+    """The recording length after which verify decides one term of the plan's unit (the term at
+    (1 − margin)·limit, the others at their limits) with the plan's power.
 
     Attributes
     ----------
@@ -403,11 +404,15 @@ class PlanRow:
         The power-law noise type α at that τ (for the EDF; its name in
         :data:`sensormodel.allan.NOISE_NAMES`).
     dof : float
-        Effective degrees of freedom needed for the term.
+        Effective degrees of freedom of the term's estimate that decide it with the plan's
+        power (:func:`plan_dof`).
     edf : float
-        Equivalent degrees of freedom of the Allan variance needed at ``read_at`` (dof/share²).
+        Equivalent degrees of freedom of the Allan variance at ``read_at`` in a record of
+        ``duration`` (Greenhall & Riley 2003), for the table.
     duration : float
-        Record length needed [s].
+        Record length needed [s]: where verify's fit gives the term ``dof`` (and resolves a
+        Gauss-Markov time constant); infinite for a term masked below
+        :data:`MIN_MASKED_SHARE`.
     verified : bool
         False for a term printed without the verified column (shown for information, at the
         value printed).
