@@ -278,9 +278,9 @@ def plan_text(plan) -> str:
     lines = [
         f"recording length to verify {plan.datasheet.get('file')}, recorded at "
         f"{format_value(plan.sample_rate, 'Hz')}: a unit whose term lies "
-        f"{100 * plan.margin:.0f} % below its limit gets a decided verdict on it (pass; as far "
-        f"above, fail) with probability ≥ {100 * plan.power:.0f} % ({100 * c:.0f} % two-sided "
-        "intervals, verify's decision)",
+        f"{100 * plan.margin:.0f} % below its limit gets a decided verdict on it (pass; one at "
+        f"limit/{1 - plan.margin:.3g}, fail) with probability ≥ {100 * plan.power:.0f} % "
+        f"({100 * c:.0f} % two-sided intervals, verify's decision)",
         "",
     ]
     rows = [
