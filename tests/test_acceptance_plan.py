@@ -286,21 +286,6 @@ bias_instability = {{ max = "{_FLOOR_DPH} deg/h" }}
         "bias_instability",
         0.1,
     ),
-    # a Gauss-Markov bias (the demo's accelerometer: 20 µg, T = 600 s)
-    "gauss_markov": (
-        """
-[sensor]
-name = "Gauss-Markov study (invented)"
-sample_rate = "1 Hz"
-axes = ["x"]
-[accelerometer]
-velocity_random_walk = { typ = "0.02 m/s/√h", max = "0.03 m/s/√h" }
-bias_instability = { typ = "10 µg", max = "20 µg" }
-correlation_time = "600 s"
-""",
-        "bias_instability",
-        1.0,
-    ),
 }
 
 #: Bootstrap records per identification in the studies: few, to keep them affordable (verify's
@@ -367,20 +352,5 @@ def test_planned_length_decides_with_the_stated_power(write_datasheet, case, tri
     # (95 % half-width 1.96·√(0.8·0.2/250) = 0.0496); those larger runs (250 each, other
     # seeds) are in the acceptance notes: white 0.876, flicker and random walk see there.
     fraction, length = _decided_fraction(write_datasheet, case, trials, seed=7000)
-    lo, hi = _binomial_band(trials, 0.8)
-    assert lo - 0.05 <= fraction <= hi + 0.05, (fraction, length)
-
-
-@pytest.mark.slow
-@pytest.mark.xfail(
-    strict=True,
-    reason="the Gauss-Markov length is short: 0.47 of 60 records decided at the 1 Hz plan of "
-    "7.3 h before the resolving rule took the power into account (the bootstrap interval of "
-    "σ with T re-profiled is wider than the linearized fit says, and the test at the limit "
-    "overturns some passes)",
-)
-def test_gauss_markov_planned_length_decides_with_the_stated_power(write_datasheet) -> None:
-    trials = 12
-    fraction, length = _decided_fraction(write_datasheet, "gauss_markov", trials, seed=9000)
     lo, hi = _binomial_band(trials, 0.8)
     assert lo - 0.05 <= fraction <= hi + 0.05, (fraction, length)
