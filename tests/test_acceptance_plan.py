@@ -349,8 +349,8 @@ def test_planned_length_decides_with_the_stated_power(write_datasheet, case, tri
     # allows its central 99 % band (scipy.stats.binom) widened by ±5 % for the model's own
     # error (the sandwich covariance is linearized; the bootstrap interval, non-negativity
     # and the test at the limit are not modelled). The ±5 % alone needs about 250 runs
-    # (95 % half-width 1.96·√(0.8·0.2/250) = 0.0496); those larger runs (250 each, other
-    # seeds) are in the acceptance notes: white 0.876, flicker and random walk see there.
+    # (95 % half-width 1.96·√(0.8·0.2/250) = 0.0496); such runs (250 each, seeds 1000-1249,
+    # DEVELOPERS.md) gave white 0.876, the squeezed flicker 0.688, the random walk 0.796.
     fraction, length = _decided_fraction(write_datasheet, case, trials, seed=7000)
     lo, hi = _binomial_band(trials, 0.8)
     assert lo - 0.05 <= fraction <= hi + 0.05, (fraction, length)
