@@ -15,6 +15,7 @@ from .. import validate
 from ..confidence import allan_edf, duration_for_edf, edf, required_dof
 from ..datasheet import AxisSpec, Datasheet, load_datasheet
 from ..errors import AnalysisError, DatasheetError
+from ..identify._design import _basis, _resolvable_time_constant
 from ._limits import (
     SpecLimit,
     Unverified,
@@ -219,8 +220,6 @@ class _FitModel:
         rate: float,
         white_filter: tuple[float, int] | None,
     ) -> None:
-        from ..identify._design import _basis
-
         self.rate = rate
         self.terms = list(terms)
         self.fitted = list(fitted)
@@ -338,8 +337,6 @@ class _FitModel:
         """The longest Gauss-Markov time constant [s] a record of ``duration`` s resolves, by
         the identification's rule (:func:`sensormodel.identify._design._resolvable_time_constant`,
         its owner) on the octave curve with Greenhall-Riley EDF."""
-        from ..identify._design import _resolvable_time_constant
-
         k, edfs = self._grid(duration, self.curve(index, factor))
         return float(_resolvable_time_constant(self.tau[:k], edfs))
 
