@@ -285,29 +285,22 @@ def test_plan_t900(examples_dir) -> None:
     assert arw.duration < 60.0 < 1800.0 < bi.duration < rrw.duration
     assert p.driver is not None and p.driver.spec.key == "bias_instability"
     assert p.duration == max(r.duration for r in p.rows if r.verified)
-    # each row's length gives the needed EDF at its τ (the duration solves edf·share² = dof)
+    # each row's degrees of freedom are verify's decision at the plan's power and margin
     for r in p.rows:
-        edf = confidence.allan_edf(
-            r.noise_alpha,
-            r.read_at,
-            r.duration,
-            p.sample_rate,
+        assert r.dof == confidence.required_dof(
+            1 - p.margin, 1.0, confidence=p.confidence, power=p.power
         )
-        assert edf * r.share**2 >= r.dof * (1 - 1e-6)
     assert {u.key for u in p.unverified} == {"bias_repeatability"}
 
 
-def test_plan_precision_and_confidence(write_datasheet) -> None:
+def test_plan_margin_and_confidence(write_datasheet) -> None:
     sheet = write_datasheet(_SHEET)
     base = acc.plan(sheet)
-    tighter = acc.plan(sheet, precision=0.1)
+    closer = acc.plan(sheet, margin=0.1)
     surer = acc.plan(sheet, confidence=0.99)
-    assert tighter.duration > base.duration and surer.duration > base.duration
-    # the needed dof scale as 1/precision² for small precision (chi-square, large ν), and the
-    # length with them (edf ∝ record length)
-    assert tighter.duration / base.duration == pytest.approx((0.25 / 0.1) ** 2, rel=0.2)
-    with pytest.raises(AnalysisError, match="precision"):
-        acc.plan(sheet, precision=1.5)
+    assert closer.duration > base.duration and surer.duration > base.duration
+    with pytest.raises(AnalysisError, match="margin"):
+        acc.plan(sheet, margin=1.5)
 
 
 def test_plan_rejects_bad_datasheet(write_datasheet) -> None:

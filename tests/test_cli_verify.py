@@ -241,20 +241,22 @@ def test_plan_command(runner, examples_dir) -> None:
     result = runner.invoke(cli, ["plan", str(examples_dir / "bw-t900.toml")])
     assert result.exit_code == 0, result.output
     out = result.stdout
-    assert "read at τ" in out and "EDF needed" in out and "why:" in out
+    assert "read at τ" in out and "EDF at τ" in out and "why:" in out
     assert "longest: accelerometer.x bias_instability" in out  # Gauss-Markov: past its peak
     assert "rate_random_walk *" in out  # typ only: shown for information
     assert "not verifiable from a single run" in out
 
 
-def test_plan_precision_changes_length(runner, sheet) -> None:
+def test_plan_margin_changes_length(runner, sheet) -> None:
     a = runner.invoke(cli, ["plan", str(sheet)])
-    b = runner.invoke(cli, ["plan", str(sheet), "--precision", "0.1"])
+    b = runner.invoke(cli, ["plan", str(sheet), "--margin", "0.1", "--power", "0.9"])
     assert a.exit_code == b.exit_code == 0
-    assert a.stdout != b.stdout and "±10 %" in b.stdout
+    assert a.stdout != b.stdout and "10 % below its limit" in b.stdout and "≥ 90 %" in b.stdout
 
 
-@pytest.mark.parametrize("args", [["--precision", "2"], ["--confidence", "0"], ["--rate", "-1"]])
+@pytest.mark.parametrize(
+    "args", [["--margin", "2"], ["--power", "0"], ["--confidence", "0"], ["--rate", "-1"]]
+)
 def test_plan_bad_options(runner, sheet, args) -> None:
     result = runner.invoke(cli, ["plan", str(sheet), *args])
     assert result.exit_code == 2 and result.stderr.startswith("error: ")

@@ -56,12 +56,16 @@ proportion to the record length (the equivalent degrees of freedom of the overla
 variance at a fixed τ grow as the record length over τ; Greenhall & Riley 2003).
 :func:`sensormodel.confidence.required_duration` gives the length at which a unit whose true
 value is the present estimate would be decided with probability ``power`` (default 0.8).
-:func:`plan` does the same before any test, for a unit exactly at its limits, with the
-criterion that the interval's half-width is at most ``precision`` of the value
-(:func:`sensormodel.confidence.dof_for_precision`); it shows the τ each term is read at and the
-degrees of freedom needed there, which is why bias instability (read at τ of hundreds of
-seconds) and random walks (read at the longest τ) need hours of record while white noise needs
-minutes.
+:func:`plan` answers before any test, with one promise: a unit whose term lies at
+(1 − margin)·limit (default margin 0.25), recorded for the planned length, gets a decided verdict
+on that term (pass; a unit as far above, fail) with probability at least ``power`` (default
+0.8) by the decision above. The length is the shortest at which verify's weighted fit of the
+Allan curve gives the term the degrees of freedom of
+:func:`sensormodel.confidence.required_dof` (the fit's sandwich covariance, with the covariance
+of the Allan-variance estimates across τ from the unit's spectrum), and for a Gauss-Markov
+bias also resolves the time constant; it shows the τ each term is read at (where it dominates
+the curve), which is why bias instability (read at τ of hundreds of seconds) and random walks
+(read at the longest τ) need hours of record while white noise needs seconds to minutes.
 
 Modules (private; this package exports the public names): ``_limits`` (what the datasheet
 limits, the terms not verified, the model of the limits, what is fitted), ``_verdicts``
@@ -91,7 +95,7 @@ from ._limits import (
     output_filter,
     spec_limits,
 )
-from ._plan import Plan, PlanRow, Reading, plan, reading_tau
+from ._plan import DEFAULT_MARGIN, Plan, PlanRow, Reading, plan, plan_dof, reading_tau
 from ._verdicts import (
     DEFAULT_CONFIDENCE,
     DEFAULT_POWER,
@@ -134,4 +138,6 @@ __all__ = [
     "PlanRow",
     "Plan",
     "plan",
+    "plan_dof",
+    "DEFAULT_MARGIN",
 ]

@@ -99,27 +99,36 @@ def verify_command(recording_file: str, spec_file: str, against: str, confidence
 @click.command("plan", context_settings=CONTEXT, epilog=_ACCEPTANCE_HELP)
 @click.argument("datasheet", type=click.Path(dir_okay=False))
 @click.option("--confidence", type=Probability("0.9"), default=0.9, show_default=True,
-              help="Two-sided confidence of the intervals.")
-@click.option("--precision", type=Fraction("0.25"), default=0.25, show_default=True,
-              help="Wanted half-width of each term's interval, as a fraction of its value.")
+              help="Two-sided confidence of verify's intervals.")
+@click.option("--power", type=Probability("0.8"), default=0.8, show_default=True,
+              help="Probability with which the planned length decides a term.")
+@click.option("--margin", type=Fraction("0.25"), default=0.25, show_default=True,
+              help="The unit the plan promises a decision for lies this fraction below each "
+                   "limit (a term at (1 - M)·limit).")
 @click.option("--against", type=click.Choice(["max", "typ"]), default="max", show_default=True,
               help="The datasheet column to verify.")
 @click.option("--rate", type=RATE, default=None, metavar="HZ",
               help="Sample rate of the planned record [Hz] (default the datasheet's).")
 @guarded
-def plan_command(datasheet: str, confidence: float, precision: float, against: str,
+def plan_command(datasheet: str, confidence: float, power: float, margin: float, against: str,
                  rate: float | None) -> None:
     """Before any test: how long must a static record be to verify each datasheet term?
 
-    Shows, per term, the averaging time τ it is read at, the Allan-variance degrees of freedom
-    needed there and the record length that gives them, for a unit exactly at its limits.
+    The promise: a unit whose term lies at (1 - margin)·limit, recorded for the planned
+    length, gets a decided verdict on that term from verify (pass; a unit as far above the
+    limit, fail) with probability at least --power: its --confidence interval lies wholly
+    within (beyond) the limit. A unit exactly at its limit is decided in only about
+    (1 - C)/2 of records, whatever the length.
+
+    Shows, per term, the averaging time τ it is read at (where it dominates the curve), its
+    share of the Allan variance there and the record length verify's fit needs.
 
     \b
     Example:
       sensormodel plan examples/bw-t900.toml
-      sensormodel plan examples/bw-t900.toml --confidence 0.95 --precision 0.2
+      sensormodel plan examples/bw-t900.toml --power 0.9 --margin 0.1
     """
-    click.echo(plan_text(plan(datasheet, confidence=confidence, precision=precision,
+    click.echo(plan_text(plan(datasheet, confidence=confidence, power=power, margin=margin,
                               against=against, sample_rate=rate)))
 
 

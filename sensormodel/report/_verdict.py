@@ -295,9 +295,11 @@ def plan_text(plan) -> str:
     """The recording-length plan for the terminal, with the reason each length is what it is."""
     c = plan.confidence
     lines = [
-        f"recording length to verify {plan.datasheet.get('file')}: each term to "
-        f"±{100 * plan.precision:.0f} % ({100 * c:.0f} % two-sided) for a unit exactly at its "
-        f"limits, recorded at {format_value(plan.sample_rate, 'Hz')}",
+        f"recording length to verify {plan.datasheet.get('file')}, recorded at "
+        f"{format_value(plan.sample_rate, 'Hz')}: a unit whose term lies "
+        f"{100 * plan.margin:.0f} % below its limit gets a decided verdict on it (pass; one at "
+        f"limit/{1 - plan.margin:.3g}, fail) with probability ≥ {100 * plan.power:.0f} % "
+        f"({100 * c:.0f} % two-sided intervals, verify's decision)",
         "",
     ]
     rows = [
@@ -308,7 +310,7 @@ def plan_text(plan) -> str:
             "read at τ",
             "share",
             "noise at τ",
-            "EDF needed",
+            "EDF at τ",
             "record needed",
         )
     ]
@@ -347,16 +349,15 @@ def plan_text(plan) -> str:
         lines.extend(f"not verified: {key}: {why}" for key, why in seen)
     lines.append("")
     lines.append(
-        f"why: a term is read where it dominates the Allan curve (its share the largest), at "
-        f"the τ where a record reaches ±{100 * plan.precision:.0f} % soonest; that takes "
-        f"{plan.rows[0].dof if plan.rows else 0:.3g} effective degrees of freedom, i.e. "
-        "an Allan-variance EDF of that divided by the term's share² at τ. The "
-        "overlapping Allan variance gains roughly (record length)/τ of EDF (Greenhall & Riley "
-        "2003), so a term read at τ needs a record of about EDF × τ: white noise, read at "
-        "short τ, needs seconds to minutes; bias instability, read where it rises above the "
-        "white noise (τ of tens to thousands of seconds; a Gauss-Markov bias at or past its "
-        "peak, τ ≥ 1.89 T), needs hours; a random walk, read where it rises above the "
-        "bias-instability floor, needs the longest records."
+        f"why: that takes {plan.dof:.3g} effective degrees of freedom of the term's estimate "
+        "(the chi-square interval of the deviation); the length is where verify's weighted "
+        "fit of the Allan curve (its terms, octave τ, Greenhall & Riley 2003 EDF) reaches "
+        "them, and for a Gauss-Markov bias where the record also resolves its time constant. "
+        "A term is read where it dominates the Allan curve (its share the largest); the "
+        "overlapping Allan variance gains roughly (record length)/τ of EDF, so white noise "
+        "needs seconds to minutes, bias instability (read where it rises above the white "
+        "noise; a Gauss-Markov bias at or past its peak, τ ≥ 1.89 T) hours, and a random "
+        "walk, read where it rises above the bias-instability floor, the longest records."
     )
     driver = plan.driver
     if driver is not None:
