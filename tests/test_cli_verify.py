@@ -304,3 +304,9 @@ def test_verify_bootstrap_minimum_named_before_any_work(runner, sheet, tmp_path,
     assert "n_boot" not in result.stderr
     result = runner.invoke(cli, ["verify", "--help"])
     assert "40 at 0.9" in result.output
+
+
+def test_plan_help_lists_its_own_exit_codes(runner) -> None:
+    # plan --help once listed verify's exit codes (pass / fail / inconclusive)
+    out = runner.invoke(cli, ["plan", "--help"]).output
+    assert "0 the plan was made" in out and "1 a term fails" not in out

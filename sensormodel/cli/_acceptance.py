@@ -26,10 +26,14 @@ __all__ = ["COMMANDS", "EXIT_FAIL", "EXIT_INCONCLUSIVE"]
 EXIT_FAIL = 1
 EXIT_INCONCLUSIVE = 3
 
-_ACCEPTANCE_HELP = (
-    "Exit codes: 0 every term passes, 1 a term fails, 3 otherwise (inconclusive), 2 bad input. "
+_CAUTION = (
     "Caution: acceptance decisions follow the customer's contract and the applicable standards."
 )
+_ACCEPTANCE_HELP = (
+    "Exit codes: 0 every term passes, 1 a term fails, 3 otherwise (inconclusive), 2 bad input. "
+    + _CAUTION
+)
+_PLAN_HELP = "Exit codes: 0 the plan was made, 2 bad input. " + _CAUTION
 
 
 @click.command("verify", context_settings=CONTEXT, epilog=_ACCEPTANCE_HELP)
@@ -96,7 +100,7 @@ def verify_command(recording_file: str, spec_file: str, against: str, confidence
     click.get_current_context().exit(result.exit_code)
 
 
-@click.command("plan", context_settings=CONTEXT, epilog=_ACCEPTANCE_HELP)
+@click.command("plan", context_settings=CONTEXT, epilog=_PLAN_HELP)
 @click.argument("datasheet", type=click.Path(dir_okay=False))
 @click.option("--confidence", type=Probability("0.9"), default=0.9, show_default=True,
               help="Two-sided confidence of verify's intervals.")
