@@ -176,7 +176,7 @@ def _phases(
     """Pass 2: each record's phase into a temporary file in ``folder``; returns the paths."""
     paths, files, carry = [], [], []
     try:
-        for job in jobs:
+        for _ in jobs:
             fd, path = tempfile.mkstemp(prefix="sensormodel-phase-", suffix=".f64", dir=folder)
             paths.append(path)
             files.append(os.fdopen(fd, "wb"))
