@@ -785,3 +785,41 @@ def test_stream_limit_follows_memory_and_its_overrides(monkeypatch):
     assert _stream.stream_limit() == 1_000_000
     monkeypatch.setattr(_stream, "STREAM_ABOVE", 5)
     assert _stream.stream_limit() == 5
+
+
+def _rss_file_bytes() -> int:
+    """Resident pages of file mappings in this process [bytes] (Linux /proc)."""
+    with open("/proc/self/status") as fh:
+        for line in fh:
+            if line.startswith("RssFile:"):
+                return int(line.split()[1]) * 1024
+    pytest.skip("no RssFile in /proc/self/status")
+
+
+def test_release_lets_a_read_only_mapping_go_and_keeps_its_data(tmp_path):
+    data = np.random.default_rng(8).standard_normal((1 << 20, 2))  # 16 MiB
+    np.save(tmp_path / "big.npy", data)
+    mm = np.load(tmp_path / "big.npy", mmap_mode="r")
+    col = mm[:, 1]
+    before = _rss_file_bytes()
+    total = float(np.sum(col))  # touches every page of the file (rows are interleaved)
+    touched = _rss_file_bytes()
+    assert touched - before > 12 << 20
+    allan.release(col)
+    # the pages the column spans left the process; its values did not change
+    assert _rss_file_bytes() - before < 2 << 20
+    assert float(np.sum(col)) == total
+    np.testing.assert_array_equal(col, data[:, 1])
+
+
+def test_release_leaves_writable_and_in_memory_arrays_alone(tmp_path):
+    np.save(tmp_path / "w.npy", np.zeros(1 << 16))
+    for mode in ("r+", "c"):
+        mm = np.load(tmp_path / "w.npy", mmap_mode=mode)
+        mm[123] = 7.0  # a change in a copy-on-write page would be lost by dropping it
+        allan.release(mm)
+        assert mm[123] == 7.0, mode
+        del mm
+    y = np.ones(1000)
+    allan.release(y)
+    assert y.sum() == 1000.0

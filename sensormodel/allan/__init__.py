@@ -78,6 +78,7 @@ from ._engine import (
     second_difference_sums,
 )
 from ._noise import NOISE_NAMES, noise_alpha
+from ._stream import release
 from ._samples import averaging_factors, tau_grid
 
 __all__ = [
@@ -89,6 +90,7 @@ __all__ = [
     "noise_alpha",
     "second_difference_sums",
     "aligned_scratch",
+    "release",
     "chi2_interval",
     "curves_to_json",
     "curves_from_json",

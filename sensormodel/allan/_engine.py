@@ -289,7 +289,9 @@ class _Schedule:
     def _execute(kind: str, job: _Job, arg: Any, scratch: np.ndarray) -> Any:
         if kind == "build":
             mean = _check_finite_mean(job.arr, job.name)
-            return mean, _phase(job.arr, mean, job.scale, out=arg)
+            x = _phase(job.arr, mean, job.scale, out=arg)
+            _stream.release(job.arr)  # a mapped record's pages: one record's at a time
+            return mean, x
         assert job.x is not None
         if kind == "identify":
             return _identify_all(job.x, job.ms)

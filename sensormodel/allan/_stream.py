@@ -50,7 +50,7 @@ import numpy as np
 from ._noise import _identify_all
 from ._samples import _block_sumsq, _check_finite_mean, _too_large
 
-__all__: list[str] = []
+__all__ = ["release", "stream_limit", "run_streamed"]
 
 #: Samples per row chunk of the passes over the records (the in-memory phase's block, so the
 #: phase is built by the same carried sums).
@@ -92,15 +92,43 @@ def _available_memory() -> int:
 # ---------------------------------------------------------------------------------------------
 
 
-def _mapping(arr: np.ndarray) -> tuple[mmap.mmap, int] | None:
-    """The file mapping behind ``arr`` and its start address, or None (an array in memory)."""
+def _mapping(arr: Any) -> tuple[mmap.mmap, int] | None:
+    """The read-only file mapping behind ``arr`` and its start address, or None (an array in
+    memory, or a writable or copy-on-write mapping, whose pages must not be dropped)."""
     base: Any = arr
     while base is not None:
+        if isinstance(base, np.memmap) and getattr(base, "mode", None) != "r":
+            return None
         if isinstance(base, mmap.mmap):
             address = np.frombuffer(base, dtype=np.uint8).__array_interface__["data"][0]
             return base, int(address)
         base = getattr(base, "base", None)
     return None
+
+
+def _drop_pages(mapping: tuple[mmap.mmap, int], view: np.ndarray) -> None:
+    """Drop the pages of a read-only mapping that ``view`` (a 1-D view of it) spans from the
+    process (``madvise(MADV_DONTNEED)``: the data stay in the page cache and in the file)."""
+    n = view.shape[0]
+    if n == 0:
+        return
+    mm, start = mapping
+    lo = view.__array_interface__["data"][0] - start
+    hi = lo + (n - 1) * view.strides[0] + view.itemsize if view.strides[0] > 0 else lo + 1
+    lo -= lo % mmap.PAGESIZE
+    with contextlib.suppress(OSError, ValueError, AttributeError):
+        mm.madvise(mmap.MADV_DONTNEED, lo, min(len(mm), hi) - lo)
+
+
+def release(arr: Any) -> None:
+    """Let the pages of a read-only file mapping that ``arr`` (1-D) spans go from the process's
+    resident memory; nothing for an array in memory. They are read again from the page cache
+    when touched, so a record analysed channel by channel holds one channel's pages at a time.
+    """
+    if isinstance(arr, np.ndarray) and arr.ndim == 1:
+        mapping = _mapping(arr)
+        if mapping is not None:
+            _drop_pages(mapping, arr)
 
 
 class _Reader:
@@ -109,18 +137,12 @@ class _Reader:
     def __init__(self, arr: np.ndarray) -> None:
         self.arr = arr
         self.map = _mapping(arr)
-        self.page = mmap.PAGESIZE
 
     def read(self, i0: int, i1: int) -> np.ndarray:
         view = self.arr[i0:i1]
         out = np.array(view, dtype=np.float64)
-        if self.map is not None and i1 > i0:
-            mm, start = self.map
-            lo = view.__array_interface__["data"][0] - start
-            hi = lo + (i1 - i0 - 1) * view.strides[0] + view.itemsize
-            lo -= lo % self.page
-            with contextlib.suppress(OSError, ValueError):
-                mm.madvise(mmap.MADV_DONTNEED, lo, min(len(mm), hi) - lo)
+        if self.map is not None:
+            _drop_pages(self.map, view)
         return out
 
 

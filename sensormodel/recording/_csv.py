@@ -225,8 +225,11 @@ class TextSource(Source):
                     progress(b - self.data_offset, total)
             if sinks is not None:
                 sinks.commit()
-                return []
-        return _joined(parts)
+        if arrow is not None:
+            # the pool keeps a piece's worth of freed buffers for reuse: give them back
+            with contextlib.suppress(AttributeError):
+                arrow[0].default_memory_pool().release_unused()
+        return [] if folder is not None else _joined(parts)
 
     def _piece(
         self,
