@@ -78,8 +78,8 @@ from ._engine import (
     second_difference_sums,
 )
 from ._noise import NOISE_NAMES, noise_alpha
-from ._stream import release
 from ._samples import averaging_factors, tau_grid
+from ._stream import release
 
 __all__ = [
     "AllanCurve",
