@@ -32,9 +32,11 @@ random walk, seeded, in chunks): simulating 3.1 G samples with the full model wo
 about a quarter of an hour. Records are kept in ``--data`` (default
 ``$TMPDIR/sensormodel-bench``) and reused by later runs with the same settings.
 
-Each command runs in its own subprocess: its wall time, its own peak resident memory
-(``os.wait4``'s ``ru_maxrss``) and the peak of the sum over it and its children (sampled
-every 50 ms from /proc), so worker processes count. The load average (``os.getloadavg``) is
+Each command runs in its own subprocess: its wall time, the peak resident memory of the
+largest single process among it and its worker processes (``os.wait4``'s ``ru_maxrss``, which
+Linux takes over the process and its waited-for children) and the peak of the sum over the
+process and its children together (sampled every 50 ms from /proc), which the memory targets
+are held against. The load average (``os.getloadavg``) is
 printed before and after each part: on a shared machine the wall times follow it.
 """
 
@@ -306,7 +308,10 @@ def _verdict_line(stdout: str) -> str:
 
 
 def _fmt_mem(r: dict) -> str:
-    return f"peak RSS {r['peak'] / GB:.2f} GB (with its children {r['tree_peak'] / GB:.2f} GB)"
+    return (
+        f"peak RSS of the largest process {r['peak'] / GB:.2f} GB, of all together "
+        f"{r['tree_peak'] / GB:.2f} GB"
+    )
 
 
 # ---------------------------------------------------------------------------------------------
