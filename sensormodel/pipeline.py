@@ -186,6 +186,13 @@ def analyse(
     ids = _selected(recording, channels)
     segments = [analysed_segment(recording, cid) for cid in ids]
     samples = [recording.samples(cid, s) for cid, s in zip(ids, segments, strict=True)]
+    # the reader's checks touched every page of a memory-mapped record: let them go, so that
+    # each channel's pages come back only while it is analysed (allan.release; nothing for
+    # arrays in memory)
+    for cid in recording.channels:
+        allan.release(recording.data[cid])
+    if recording.time is not None:
+        allan.release(recording.time)
     curves = allan.overlapping_many(
         samples,
         recording.rate,
@@ -203,6 +210,7 @@ def analyse(
             psd = spectrum.log_bins(
                 spectrum.welch(np.asarray(y), recording.rate), per_decade=spectrum_bins
             )
+            allan.release(y)
         out.append(
             ChannelAnalysis(
                 channel=cid,

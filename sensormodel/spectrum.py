@@ -20,6 +20,7 @@ import numpy as np
 import numpy.typing as npt
 
 from . import validate
+from .allan import release
 from .errors import AnalysisError
 from .terms import Shaped
 
@@ -207,6 +208,7 @@ def welch(
     n = arr.shape[0]
     nperseg, noverlap = _segment_layout(n, nperseg, noverlap)
     _check_finite(arr)
+    release(arr)  # a memory-mapped record: its pages are read again chunk by chunk
 
     step = nperseg - noverlap
     n_seg = (n - noverlap) // step
@@ -229,6 +231,7 @@ def welch(
             scaling="density",
             average="mean",
         )
+        release(arr[a:b])  # (after the chunk is used: it may be a view of the mapping)
         total = p * k if total is None else total + p * k
     assert total is not None and f is not None
     return PSDResult(f=f, psd=total / n_seg, n_segments=n_seg, nperseg=nperseg)

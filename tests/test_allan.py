@@ -15,6 +15,7 @@ from __future__ import annotations
 import json
 import math
 import pathlib
+import tempfile
 import threading
 import tracemalloc
 
@@ -713,3 +714,112 @@ def test_curve_validates_itself():
     assert not c.tau.flags.writeable
     np.testing.assert_array_equal(c.n_clusters, c.n_samples + 1 - 2 * c.m)
     np.testing.assert_array_equal(c.n_independent, c.n_samples // c.m)
+
+
+# ---------------------------------------------------------------------------------------------
+# Larger than memory: the streamed path
+# ---------------------------------------------------------------------------------------------
+
+
+def _tiny_chunks(monkeypatch, tmp_path) -> None:
+    """Chunks, blocks, row chunks and the phase window far smaller than the record, so every
+    boundary of the streamed path is crossed many times; temporary files in ``tmp_path``."""
+    from sensormodel.allan import _engine, _stream
+
+    monkeypatch.setattr(_engine, "_CHUNK", 1 << 12)
+    monkeypatch.setattr(_engine, "_BLOCK", 1 << 8)
+    monkeypatch.setattr(_stream, "_ROWS", 1000)  # not a multiple of the phase's block
+    monkeypatch.setattr(_stream, "_WINDOW_EXTRA", 64)
+    monkeypatch.setattr(tempfile, "tempdir", str(tmp_path))
+
+
+@pytest.mark.parametrize("taus", ["octave", "5/decade"])
+def test_streamed_path_equals_the_in_memory_path(monkeypatch, tmp_path, taus):
+    from sensormodel.allan import _stream
+
+    rng = np.random.default_rng(77)
+    n = 50_001
+    # white + random-walk rate noise + an offset, three columns of one row-major file
+    walk = np.cumsum(rng.standard_normal((n, 3)), axis=0) * 2e-3
+    data = 0.5 + rng.standard_normal((n, 3)) + walk
+    np.save(tmp_path / "rec.npy", data)
+    mm = np.load(tmp_path / "rec.npy", mmap_mode="r")
+    cols = [mm[:, j] for j in range(3)] + [mm[:, 1].astype(np.float32)]
+    _tiny_chunks(monkeypatch, tmp_path)
+    expected = allan.overlapping_many(cols, RATE_LIB, taus=taus)
+    incr = allan.overlapping_many(cols[:1], RATE_LIB, taus=taus, increments=True)
+    seen = []
+    monkeypatch.setattr(_stream, "STREAM_ABOVE", 0)
+    got = allan.overlapping_many(cols, RATE_LIB, taus=taus, progress=lambda d, t: seen.append(d))
+    got_incr = allan.overlapping_many(cols[:1], RATE_LIB, taus=taus, increments=True)
+    for a, b in zip(expected + incr, got + got_incr, strict=True):
+        # the same estimator: equal to rounding (the mean is summed in row chunks here)
+        np.testing.assert_allclose(b.adev, a.adev, rtol=1e-12, atol=0)
+        np.testing.assert_array_equal(b.tau, a.tau)
+        np.testing.assert_array_equal(b.noise_alpha, a.noise_alpha)
+        np.testing.assert_array_equal(b.edf, a.edf)
+        np.testing.assert_allclose(b.ci_high, a.ci_high, rtol=1e-12, atol=0)
+    assert seen == sorted(seen) and len(seen) > 10
+    assert not list(tmp_path.glob("sensormodel-phase-*")), "temporary phase files left behind"
+
+
+def test_streamed_path_refuses_a_bad_sample_by_index(monkeypatch, tmp_path):
+    from sensormodel.allan import _stream
+
+    y = np.random.default_rng(5).standard_normal(20_000)
+    y[12_345] = np.inf
+    _tiny_chunks(monkeypatch, tmp_path)
+    monkeypatch.setattr(_stream, "STREAM_ABOVE", 0)
+    with pytest.raises(AnalysisError, match=r"^gyro\.x: sample 12345 is inf"):
+        allan.overlapping_many([y], RATE_LIB, channels=["gyro.x"])
+    assert not list(tmp_path.glob("sensormodel-phase-*"))
+
+
+def test_stream_limit_follows_memory_and_its_overrides(monkeypatch):
+    from sensormodel.allan import _stream
+
+    monkeypatch.delenv("SENSORMODEL_STREAM_ABOVE", raising=False)
+    auto = _stream.stream_limit()
+    assert 0 < auto <= _stream._available_memory()
+    monkeypatch.setenv("SENSORMODEL_STREAM_ABOVE", "1e6")
+    assert _stream.stream_limit() == 1_000_000
+    monkeypatch.setattr(_stream, "STREAM_ABOVE", 5)
+    assert _stream.stream_limit() == 5
+
+
+def _rss_file_bytes() -> int:
+    """Resident pages of file mappings in this process [bytes] (Linux /proc)."""
+    with open("/proc/self/status") as fh:
+        for line in fh:
+            if line.startswith("RssFile:"):
+                return int(line.split()[1]) * 1024
+    pytest.skip("no RssFile in /proc/self/status")
+
+
+def test_release_lets_a_read_only_mapping_go_and_keeps_its_data(tmp_path):
+    data = np.random.default_rng(8).standard_normal((1 << 20, 2))  # 16 MiB
+    np.save(tmp_path / "big.npy", data)
+    mm = np.load(tmp_path / "big.npy", mmap_mode="r")
+    col = mm[:, 1]
+    before = _rss_file_bytes()
+    total = float(np.sum(col))  # touches every page of the file (rows are interleaved)
+    touched = _rss_file_bytes()
+    assert touched - before > 12 << 20
+    allan.release(col)
+    # the pages the column spans left the process; its values did not change
+    assert _rss_file_bytes() - before < 2 << 20
+    assert float(np.sum(col)) == total
+    np.testing.assert_array_equal(col, data[:, 1])
+
+
+def test_release_leaves_writable_and_in_memory_arrays_alone(tmp_path):
+    np.save(tmp_path / "w.npy", np.zeros(1 << 16))
+    for mode in ("r+", "c"):
+        mm = np.load(tmp_path / "w.npy", mmap_mode=mode)
+        mm[123] = 7.0  # a change in a copy-on-write page would be lost by dropping it
+        allan.release(mm)
+        assert mm[123] == 7.0, mode
+        del mm
+    y = np.ones(1000)
+    allan.release(y)
+    assert y.sum() == 1000.0

@@ -145,3 +145,14 @@ def test_demo_out_is_a_file(tmp_path: pathlib.Path) -> None:
     f.write_text("x", encoding="utf-8")
     result = CliRunner().invoke(cli, ["demo", "--out", str(f)])
     assert result.exit_code == 2
+
+
+def test_demo_records_at_the_datasheets_own_rate_for_three_hours() -> None:
+    # the demo's record is as a receiving inspection makes it: the datasheet's output data
+    # rate (no reduced rate), at least 3 h
+    from sensormodel.datasheet import load_datasheet
+    from sensormodel.demo import DEMO_DATASHEET, _model_rate, build_model, example_path
+
+    model = build_model(load_datasheet(example_path(DEMO_DATASHEET)))
+    assert _model_rate(model) == DEMO_RATE == 400.0
+    assert DEMO_DURATION >= 3 * 3600.0

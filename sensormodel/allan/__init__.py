@@ -24,7 +24,15 @@ the bit. The noise identification runs beside the chunks. Several records
 (:func:`overlapping_many`) share one pool of workers: all take chunks of the earliest unfinished
 record, and the next record's phase is built by the first worker that runs out of chunks; at
 most one phase array per worker exists at a time, and a finished record's array is reused.
-Peak memory is the phase array (8 (n+1) bytes) plus a few blocks per thread.
+Peak memory is the phase array (8 (n+1) bytes) plus a few blocks per thread. The pages of a
+read-only memory-mapped record are let go after its phase is built (:func:`release`), so a
+mapped record does not stay in the process's memory after it is read.
+
+Records larger than memory (8 bytes per sample of all records together above half the
+available memory; ``SENSORMODEL_STREAM_ABOVE`` overrides) take the out-of-core path
+(``_stream``): the means and the phases in two passes over row chunks, the phases to temporary
+files, the sums chunk by chunk from buffered reads of the phase at the offsets each τ needs,
+with the same kernel and chunks, so the numbers are those of the in-memory path to rounding.
 
 Precision: the phase is formed exactly as ``allantools.frequency2phase`` forms it (mean removed,
 sequential cumulative sum, then scaled), so the second differences are bit-for-bit the same and
@@ -49,8 +57,9 @@ with the type of fewest degrees of freedom (the widest interval) where the slope
 undecided; or the noise type is given by the caller.
 
 Modules (private; this package exports the public names): ``_samples`` (sample checks, the
-phase, τ grids), ``_engine`` (second-difference sums, the schedule of records on worker
-threads, :func:`overlapping` and its siblings), ``_noise`` (the noise type at each τ),
+phase, the kernel of the sums, τ grids), ``_engine`` (second-difference sums, the schedule of
+records on worker threads, :func:`overlapping` and its siblings), ``_stream`` (the out-of-core
+path, :func:`release`), ``_noise`` (the noise type at each τ),
 ``_curve`` (:class:`AllanCurve` and its JSON/CSV files). The degrees of freedom and intervals
 are :mod:`sensormodel.confidence`'s.
 
@@ -79,6 +88,7 @@ from ._engine import (
 )
 from ._noise import NOISE_NAMES, noise_alpha
 from ._samples import averaging_factors, tau_grid
+from ._stream import release
 
 __all__ = [
     "AllanCurve",
@@ -89,6 +99,7 @@ __all__ = [
     "noise_alpha",
     "second_difference_sums",
     "aligned_scratch",
+    "release",
     "chi2_interval",
     "curves_to_json",
     "curves_from_json",

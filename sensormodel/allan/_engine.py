@@ -17,9 +17,10 @@ import numpy.typing as npt
 from .. import validate
 from ..confidence import DEFAULT_CONFIDENCE, chi2_interval, edf_cached
 from ..errors import AnalysisError
+from . import _stream
 from ._curve import AllanCurve
 from ._noise import _identify_all, _noise_types
-from ._samples import _as_samples, _check_finite_mean, _phase, averaging_factors
+from ._samples import _as_samples, _block_sumsq, _check_finite_mean, _phase, averaging_factors
 
 __all__ = [
     "overlapping",
@@ -44,11 +45,6 @@ ProgressCallback = Callable[[int, int], Any]
 # ---------------------------------------------------------------------------------------------
 # Second-difference sums
 # ---------------------------------------------------------------------------------------------
-
-
-def _sumsq(b: np.ndarray) -> float:
-    """Σ b² without BLAS (a threaded BLAS dot inside our own threads oversubscribes the cores)."""
-    return float(np.einsum("i,i->", b, b))
 
 
 def aligned_scratch(size: int) -> np.ndarray:
@@ -77,12 +73,9 @@ def second_difference_sums(
             e = min(i1, ends[k])
             if e <= i0:
                 break  # the factors are sorted, so the later ones end even earlier
-            b = buf[: e - i0]
-            # the textbook operation order, (x2 − 2·x1) + x0
-            np.multiply(x[i0 + m : e + m], 2.0, out=b)
-            np.subtract(x[i0 + 2 * m : e + 2 * m], b, out=b)
-            np.add(b, x0[: e - i0], out=b)
-            sums[k] += _sumsq(b)
+            sums[k] += _block_sumsq(
+                x0[: e - i0], x[i0 + m : e + m], x[i0 + 2 * m : e + 2 * m], buf[: e - i0]
+            )
     return np.array(sums)
 
 
@@ -296,7 +289,9 @@ class _Schedule:
     def _execute(kind: str, job: _Job, arg: Any, scratch: np.ndarray) -> Any:
         if kind == "build":
             mean = _check_finite_mean(job.arr, job.name)
-            return mean, _phase(job.arr, mean, job.scale, out=arg)
+            x = _phase(job.arr, mean, job.scale, out=arg)
+            _stream.release(job.arr)  # a mapped record's pages: one record's at a time
+            return mean, x
         assert job.x is not None
         if kind == "identify":
             return _identify_all(job.x, job.ms)
@@ -404,6 +399,10 @@ def _run(
     ]
     if count is None:
         count = _default_workers(jobs)
+    if 8 * sum(job.n for job in jobs) > _stream.stream_limit():
+        # larger than memory: the out-of-core path fills the sums, then the same finish
+        _stream.run_streamed(jobs, count, lambda: aligned_scratch(_BLOCK), request.progress)
+        return [_finish(job) for job in jobs]
     return _Schedule(jobs, count).run(request.progress)
 
 

@@ -42,8 +42,9 @@ def _as_samples(y: Any, name: str) -> np.ndarray:
     return arr
 
 
-def _check_finite_mean(arr: np.ndarray, name: str) -> float:
-    """The mean of the samples in float64; a non-finite sample is refused by index."""
+def _check_finite_mean(arr: np.ndarray, name: str, offset: int = 0) -> float:
+    """The mean of the samples in float64; a non-finite sample is refused by index (plus
+    ``offset``, the place of ``arr[0]`` in the record)."""
     mean = float(np.mean(arr, dtype=np.float64))
     if math.isfinite(mean):
         return mean
@@ -51,13 +52,18 @@ def _check_finite_mean(arr: np.ndarray, name: str) -> float:
         block = np.asarray(arr[i0 : i0 + (1 << 20)], dtype=np.float64)
         bad = np.flatnonzero(~np.isfinite(block))
         if bad.size:
-            i = i0 + int(bad[0])
+            i = offset + i0 + int(bad[0])
             raise AnalysisError(
                 f"sample {i} is {float(block[bad[0]])!r}",
                 "finite samples only (cut the record at gaps, or repair them, before the analysis)",
                 field=name,
             )
-    raise AnalysisError(
+    raise _too_large(name)
+
+
+def _too_large(name: str) -> AnalysisError:
+    """The refusal of finite samples whose float64 sum overflows."""
+    return AnalysisError(
         "the samples are too large to sum in float64", "samples below about 1e300", field=name
     )
 
@@ -90,6 +96,23 @@ def _phase(
         if scale != 1.0:
             seg *= scale
     return x
+
+
+def _sumsq(b: np.ndarray) -> float:
+    """Σ b² without BLAS (a threaded BLAS dot inside our own threads oversubscribes the cores)."""
+    return float(np.einsum("i,i->", b, b))
+
+
+def _block_sumsq(x0: np.ndarray, x1: np.ndarray, x2: np.ndarray, b: np.ndarray) -> float:
+    """Σ (x2 − 2·x1 + x0)² of equally long slices, formed in the scratch ``b`` (same length).
+
+    The one kernel of the second-difference sums (in memory and streamed), in the textbook
+    operation order (x2 − 2·x1) + x0.
+    """
+    np.multiply(x1, 2.0, out=b)
+    np.subtract(x2, b, out=b)
+    np.add(b, x0, out=b)
+    return _sumsq(b)
 
 
 # ---------------------------------------------------------------------------------------------

@@ -209,15 +209,12 @@ class TextSource(Source):
         parts: list[list[np.ndarray]] = [[] for _ in wanted]
         with contextlib.ExitStack() as stack:
             sinks = None if folder is None else stack.enter_context(ColumnSinks(folder, wanted))
-            arrow_file = None
-            if arrow is not None:
-                arrow_file = arrow[0].memory_map(str(self.path), "r")
-                stack.callback(arrow_file.close)
-            fh = stack.enter_context(open(self.path, "rb"))
+            fh = stack.enter_context(open(self.path, "rb", buffering=0))
             mm = stack.enter_context(mmap.mmap(fh.fileno(), 0, access=mmap.ACCESS_READ))
+            text = _PieceBuffer(fh)
             row = 0
             for a, b in self._pieces(mm):
-                cols = self._piece(mm, arrow, arrow_file, (a, b), row, wanted)
+                cols = self._piece(mm, arrow, text, (a, b), row, wanted)
                 row += len(cols[0])
                 for k, c in enumerate(cols):
                     if sinks is not None:
@@ -228,14 +225,17 @@ class TextSource(Source):
                     progress(b - self.data_offset, total)
             if sinks is not None:
                 sinks.commit()
-                return []
-        return [np.concatenate(p) if len(p) > 1 else p[0] for p in parts]
+        if arrow is not None:
+            # the pool keeps a piece's worth of freed buffers for reuse: give them back
+            with contextlib.suppress(AttributeError):
+                arrow[0].default_memory_pool().release_unused()
+        return [] if folder is not None else _joined(parts)
 
     def _piece(
         self,
         mm: mmap.mmap,
         arrow: Any,
-        arrow_file: Any,
+        text: _PieceBuffer,
         bounds: tuple[int, int],
         row: int,
         wanted: Sequence[int],
@@ -243,9 +243,10 @@ class TextSource(Source):
         """One piece by the first engine that reads it: pyarrow, numpy, the Python reader."""
         a, b = bounds
         cols = None
-        if arrow_file is not None:
-            arrow_file.seek(a)  # a zero-copy slice of pyarrow's memory map
-            buf = arrow_file.read_buffer(b - a)
+        if arrow is not None:
+            # read into one reused buffer, not through a file mapping: mapped pages of the
+            # text would count as the process's memory until the whole file is parsed
+            buf = arrow[0].py_buffer(text.read(a, b))
             cols = _arrow_piece(arrow, buf, self.n_fields, wanted, self.delimiter)
             del buf
         if cols is None:
@@ -300,6 +301,39 @@ class TextSource(Source):
         return list(out)
 
 
+class _PieceBuffer:
+    """One reusable byte buffer the pieces of the text are read into (buffered reads)."""
+
+    def __init__(self, fh: Any) -> None:
+        self.fh = fh
+        self.buf = bytearray()
+
+    def read(self, a: int, b: int) -> memoryview:
+        """Bytes ``a`` … ``b − 1`` of the file, a view of the buffer (valid until the next)."""
+        if len(self.buf) < b - a:
+            self.buf = bytearray(b - a)
+        view = memoryview(self.buf)[: b - a]
+        self.fh.seek(a)
+        got = 0
+        while got < b - a:
+            n = self.fh.readinto(view[got:])
+            if not n:
+                raise OSError("the file ended early")
+            got += n
+        return view
+
+
+def _joined(parts: list[list[np.ndarray]]) -> list[np.ndarray]:
+    """Each column's pieces as one array, column by column, each column's pieces let go as
+    soon as it is joined (at most one column is held twice)."""
+    out = []
+    for k in range(len(parts)):
+        p, parts[k] = parts[k], []
+        out.append(np.concatenate(p) if len(p) > 1 else p[0])
+        del p
+    return out
+
+
 def _arrow_piece(
     arrow: Any, buf: Any, n_fields: int, wanted: Sequence[int], delimiter: str
 ) -> list[np.ndarray] | None:
@@ -324,7 +358,8 @@ def _arrow_piece(
         )
     except (pa.ArrowInvalid, pa.ArrowTypeError, pa.ArrowNotImplementedError):
         return None
-    return [np.asarray(table.column(n).to_numpy(), dtype=np.float64) for n in keep]
+    # copies: numpy owns them, and pyarrow's pool reuses its buffers for the next piece
+    return [np.array(table.column(n).to_numpy(), dtype=np.float64) for n in keep]
 
 
 def _numpy_piece(
