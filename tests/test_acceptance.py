@@ -772,3 +772,10 @@ def test_whole_curve_check_single_tau_range_in_words() -> None:
     check = acc.curve_check(curve, np.full(3, 2.0), confidence=0.9)
     assert check.exceeded == ((315.0, 315.0),)
     assert report._verdict._curve_result(check, dash="-") == "exceeded with confidence at τ 315 s"
+
+
+def test_declared_ranges_from_the_datasheet(write_datasheet) -> None:
+    # the datasheet's measurement_range is the full scale a recording is checked against
+    ds = load_datasheet(write_datasheet(_SHEET + 'measurement_range = "450 deg/s"\n'))
+    assert acc.declared_ranges(ds) == {"gyro.z": pytest.approx(math.radians(450.0), rel=1e-12)}
+    assert acc.declared_ranges(load_datasheet(write_datasheet(_SHEET, name="b.toml"))) == {}

@@ -97,12 +97,12 @@ def test_default_constant_run_is_1000(tmp_path: pathlib.Path) -> None:
 def test_saturation_at_minimum_and_binary_positions(tmp_path: pathlib.Path) -> None:
     rng = np.random.default_rng(4)
     x = rng.normal(size=500)
-    x[300:320] = -5.0
+    x[300:320] = -50.0  # clipped at a full scale far beyond the noise
     path = tmp_path / "s.npz"
     np.savez(path, gyro_y=x)
     r = read_recording(path, rate=10.0, gaps="split")
     assert [(f.kind, f.where) for f in r.findings] == [("saturated", "indices 300-319")]
-    assert "at its minimum -5" in r.findings[0].detail
+    assert "at its minimum -50" in r.findings[0].detail
     assert [(s.start, s.stop) for s in r.segments["gyro.y"]] == [(0, 300), (320, 500)]
 
 
@@ -184,3 +184,47 @@ def test_unknown_channel_is_named(tmp_path: pathlib.Path) -> None:
         assert str(info.value) == (
             f"{path}:channel: no channel 'gyro.z' in the recording; expected one of gyro.x"
         )
+
+
+def test_coarse_counts_are_neither_saturated_nor_stuck(tmp_path: pathlib.Path) -> None:
+    # A coarsely quantized static channel (noise σ = 0.12 count on a bias wandering ±0.8 count)
+    # sits at its extreme count for a thousand samples and holds one count for thousands:
+    # neither is saturation nor a stuck sensor (its extremes are a count from the median; a
+    # live coarse channel holds one count while the bias sits between thresholds: noted). The
+    # same channel clipped at a full scale far beyond the noise is still found.
+    rng = np.random.default_rng(8)
+    n = 200_000
+    wander = 0.8 * np.sin(np.arange(n) * 2 * np.pi / 50_000)
+    counts = np.rint(rng.normal(0.0, 0.12, n) + wander).astype(np.int16)
+    path = tmp_path / "coarse.npy"
+    np.save(path, counts)
+
+    # the premise: the old rules (16 samples at an extreme; 1000 of one value) would fire
+    def longest(mask: np.ndarray) -> int:
+        edges = np.flatnonzero(np.diff(np.concatenate(([0], mask.astype(np.int8), [0]))))
+        return int(np.max(edges[1::2] - edges[::2])) if len(edges) else 0
+
+    assert longest(counts == counts.max()) >= 16
+    assert max(longest(counts == v) for v in np.unique(counts)) >= 1000
+    found = read_recording(path, rate=100.0).findings
+    assert [f.kind for f in found] == ["note"] and "coarsely quantized" in found[0].detail
+    clipped = counts.copy()
+    clipped[1000:1040] = 300
+    np.save(path, clipped)
+    kinds = [f.kind for f in read_recording(path, rate=100.0, gaps="split").findings]
+    assert "saturated" in kinds
+
+
+def test_saturation_against_a_declared_range(tmp_path: pathlib.Path) -> None:
+    # With a declared full scale (the datasheet's measurement_range, SI), a sample at or
+    # beyond it is saturation even where the data alone could not tell.
+    rng = np.random.default_rng(9)
+    x = rng.normal(0.0, 0.01, 2000)
+    x[700:703] = 4.0  # three samples at a 4 rad/s full scale
+    path = tmp_path / "r.npz"
+    np.savez(path, gyro_x=x)
+    assert read_recording(path, rate=10.0).findings == ()  # 3 samples: shorter than a run
+    r = read_recording(path, rate=10.0, gaps="split", ranges={"gyro.x": 4.0})
+    sat = [f for f in r.findings if f.kind == "saturated"]
+    assert [(f.position, f.length) for f in sat] == [(700, 3)]
+    assert "declared range ±4" in sat[0].detail

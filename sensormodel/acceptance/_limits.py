@@ -25,6 +25,7 @@ __all__ = [
     "spec_limits",
     "limit_channel",
     "limited_share",
+    "declared_ranges",
     "UNLIMITED_SHARE_MAX",
     "fit_terms",
     "output_filter",
@@ -216,6 +217,18 @@ def limit_channel(ax: AxisSpec, *, rate: float, against: str = "max") -> Any:
         sample_rate=rate,
         terms=tuple(t for t in terms if t.type != "random_constant"),
     )
+
+
+def declared_ranges(datasheet: Any) -> dict[str, float]:
+    """{channel id: full scale [SI]} of the channels whose datasheet prints a
+    ``measurement_range`` (its typical value, or its max where only that is printed): the range
+    a recording is checked against for saturation
+    (:func:`sensormodel.recording.read_recording` ``ranges``)."""
+    return {
+        ax.channel_id: float(ax.values["measurement_range"].pick("typ")[0])
+        for ax in datasheet.channels()
+        if "measurement_range" in ax.values
+    }
 
 
 def limited_share(

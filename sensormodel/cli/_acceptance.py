@@ -8,7 +8,7 @@ from __future__ import annotations
 import click
 
 from .._io import check_writable
-from ..acceptance import plan, verify
+from ..acceptance import declared_ranges, plan, verify
 from ..datasheet import load_datasheet
 from ..report import (
     check_verdict_html,
@@ -86,7 +86,7 @@ def verify_command(recording_file: str, spec_file: str, against: str, confidence
     if report_file:
         check_verdict_html(report_file, [ax.channel_id for ax in datasheet.channels()],
                            force=force)
-    recording = reading.read(recording_file)
+    recording = reading.read(recording_file, ranges=declared_ranges(datasheet))
     result = verify(recording, datasheet, confidence=confidence, against=against, power=power,
                     channels=list(only) or None, seed=seed, n_boot=n_boot, workers=2,
                     progress=lambda channel_id: status(f"analysing {channel_id}"))

@@ -67,8 +67,9 @@ class RecordingOptions:
     #: Notes on how the file was read, printed when the command ends without an input error.
     notes: list[str] = field(default_factory=list, compare=False, repr=False)
 
-    def read(self, path: str) -> Recording:
-        """Read ``path`` with these options, a progress bar on a terminal.
+    def read(self, path: str, **more: Any) -> Recording:
+        """Read ``path`` with these options (and ``more`` of read_recording's keyword
+        arguments, e.g. ``ranges``), a progress bar on a terminal.
 
         Prints on stderr how the columns were read when any was guessed (a channel from a
         common spelling, auxiliary columns, a time unit from the column's name); with
@@ -79,7 +80,7 @@ class RecordingOptions:
             f.name: getattr(self, f.name) for f in fields(self) if f.name not in _NOT_READER
         }
         with StderrBar("reading") as bar:
-            rec = read_recording(path, progress=bar, **arguments)
+            rec = read_recording(path, progress=bar, **arguments, **more)
         if self.layout:
             click.echo("\n".join(layout_lines(rec)))
             click.get_current_context().exit(0)

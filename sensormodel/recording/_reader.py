@@ -27,7 +27,14 @@ from ._formats import FORMATS_TEXT, fmt, format_of
 from ._results import Finding, Recording, Segment
 from ._sources import Hdf5Source, NpySource, NpzSource, Source
 from ._stamps import first_row, is_number, iso_nanoseconds, looks_iso
-from ._timebase import data_findings, fail_or_split, resolve_rate, sort_findings, time_base
+from ._timebase import (
+    data_findings,
+    fail_or_split,
+    range_findings,
+    resolve_rate,
+    sort_findings,
+    time_base,
+)
 
 __all__ = ["read_recording", "open_source"]
 
@@ -61,6 +68,7 @@ def read_recording(
     constant_run: int = 1000,
     saturation_run: int = 16,
     min_segment: int = 100,
+    ranges: Mapping[str, float] | None = None,
 ) -> Recording:
     """Read a recording file into SI arrays, check its time base and report its problems.
 
@@ -108,7 +116,14 @@ def read_recording(
         This many identical consecutive samples are a ``constant`` finding (0: no check).
     saturation_run : int
         This many consecutive samples at a column's maximum or minimum are ``saturated``
-        (0: no check).
+        (0: no check), where that extreme stands apart from the data
+        (:data:`~sensormodel.recording._timebase.APART_SIGMAS` robust σ from the median: a
+        coarsely quantized channel's extremes do not); a run of one value is ``constant`` only
+        where the value's own frequency makes it improbable
+        (:data:`~sensormodel.recording._timebase.STUCK_PROBABILITY`).
+    ranges : mapping, optional
+        {channel id: full scale [SI]} (e.g. the datasheet's ``measurement_range``): a sample
+        at or beyond ± its full scale is ``saturated``.
     min_segment : int
         With ``gaps="split"``, clean stretches shorter than this (≥ 2) are dropped (and
         reported).
@@ -144,7 +159,13 @@ def read_recording(
     time_name = None if plan.time_index is None else source.names[plan.time_index]
     final_rate = resolve_rate(option_rate, source.rate, clock.rate, time_name, src)
     channels = _channels(
-        source, plan, raw, final_rate, constant_run=constant_run, saturation_run=saturation_run
+        source,
+        plan,
+        raw,
+        final_rate,
+        constant_run=constant_run,
+        saturation_run=saturation_run,
+        ranges=ranges or {},
     )
     checked = _Checked(
         source,
@@ -288,6 +309,7 @@ def _channels(
     *,
     constant_run: int,
     saturation_run: int,
+    ranges: Mapping[str, float],
 ) -> _Channels:
     """Check each data column (in file units) and convert it to SI at ``rate`` [Hz]."""
     out = _Channels()
@@ -307,6 +329,12 @@ def _channels(
         # our own float copy, or a writable array the source hands over: scale it in place
         fresh = x.flags.writeable and (x is not x0 or getattr(source, "hands_over", False))
         out.data[pl.channel] = _readonly(to_si(x, pl, rate, in_place=fresh))
+        if pl.channel in ranges:  # the declared range, on the SI samples
+            found, at = range_findings(
+                out.data[pl.channel], float(ranges[pl.channel]), pl.name, pl.channel, source.where
+            )
+            out.findings += found
+            out.bad[pl.channel] = out.bad[pl.channel] | at
     return out
 
 

@@ -20,6 +20,9 @@ from ._results import FATAL_KINDS, MAX_FINDINGS, Finding, Segment
 
 __all__ = [
     "GAP_FACTOR",
+    "APART_SIGMAS",
+    "COARSE_STEPS",
+    "range_findings",
     "time_base",
     "data_findings",
     "resolve_rate",
@@ -29,6 +32,17 @@ __all__ = [
 
 #: A time step larger than this multiple of the median step is a gap.
 GAP_FACTOR = 1.5
+#: A run at the data's maximum or minimum is saturation only where that extreme stands this many
+#: robust standard deviations (1.4826 × the median absolute deviation; IEEE/ISO common practice
+#: for Gaussian data) from the median: a static record's noise reaches ~6 σ in 10⁹ samples,
+#: while a clipped output sits at full scale. A coarsely quantized channel's extremes are a
+#: few counts from its median: not saturation.
+APART_SIGMAS = 8.0
+#: A channel whose values lie on a lattice of step q with a robust spread below this many steps
+#: is coarsely quantized: its noise (and a slow bias wander) moves it by a count or two, so it
+#: holds one count for long stretches while live, and runs of one value are not judged as a
+#: stuck sensor there (the project's own rule; it is said in a note).
+COARSE_STEPS = 3.0
 
 _KIND_ORDER = {k: i for i, k in enumerate(FATAL_KINDS)}
 _SPLIT_HINT = "or --gaps split to analyse the clean segments"
@@ -184,12 +198,13 @@ def data_findings(
     hi = float(np.max(x, where=fin, initial=-np.inf))
     lo = float(np.min(x, where=fin, initial=np.inf))
     saturated_starts: list[np.ndarray] = []
+    spread = _Spread(x, fin)
     if saturation_run > 0 and hi > lo:
         for value, label in ((hi, "maximum"), (lo, "minimum")):
             starts, lengths = _runs(x == value)
             keep = lengths >= saturation_run
             starts, lengths = starts[keep], lengths[keep]
-            if len(starts):
+            if len(starts) and spread.apart(value):
                 saturated_starts.append(starts)
                 bad = bad | _mask(len(x), starts, lengths)
 
@@ -207,6 +222,20 @@ def data_findings(
         if saturated_starts:
             keep &= ~np.isin(starts, np.concatenate(saturated_starts))
         starts, lengths = starts[keep], lengths[keep]
+        if len(starts) and spread.coarse():  # a live coarse channel holds one count for long
+            findings.append(
+                Finding(
+                    "note",
+                    channel,
+                    int(starts[0]),
+                    f"column '{name}' is coarsely quantized (its spread is under "
+                    f"{COARSE_STEPS:g} counts): runs of one value, the longest "
+                    f"{int(lengths.max())} samples, are not judged as a stuck sensor",
+                    int(lengths.max()),
+                    where(int(starts[0]), int(lengths[0])),
+                )
+            )
+            starts, lengths = starts[:0], lengths[:0]
         if len(starts):
             bad = bad | _mask(len(x), starts, lengths)
 
@@ -218,6 +247,65 @@ def data_findings(
 
             _emit(findings, "constant", channel, (starts, lengths), stuck, where)
     return findings, bad
+
+
+class _Spread:
+    """The robust centre and spread of one column's finite samples, and the value counts,
+    computed only when a candidate run asks (they cost a pass over the record)."""
+
+    def __init__(self, x: np.ndarray, fin: np.ndarray) -> None:
+        self.x, self.fin = x, fin
+        self._centre: tuple[float, float] | None = None
+
+    def _stats(self) -> tuple[float, float]:
+        if self._centre is None:
+            v = self.x[self.fin]
+            med = float(np.median(v))
+            sigma = 1.4826 * float(np.median(np.abs(v - med)))
+            if sigma == 0.0:  # most samples on one count: the plain standard deviation
+                sigma = float(np.std(v))
+            self._centre = (med, sigma)
+        return self._centre
+
+    def apart(self, value: float) -> bool:
+        """Whether ``value`` stands :data:`APART_SIGMAS` robust σ from the median."""
+        med, sigma = self._stats()
+        return abs(value - med) > APART_SIGMAS * sigma
+
+    def coarse(self) -> bool:
+        """Whether the values lie on a lattice whose step is over 1/:data:`COARSE_STEPS` of the
+        robust spread (one value alone: not coarse, a constant column)."""
+        levels = np.unique(self.x[self.fin])
+        if len(levels) < 2 or len(levels) > 4096:
+            return False
+        steps = np.diff(levels)
+        step = float(steps.min())
+        on_lattice = np.allclose(steps / step, np.rint(steps / step), rtol=0.0, atol=1e-6)
+        return bool(on_lattice) and self._stats()[1] < COARSE_STEPS * step
+
+
+def range_findings(
+    x: np.ndarray,
+    full_scale: float,
+    name: str,
+    channel: str,
+    where: Callable[[int, int], str],
+) -> tuple[list[Finding], np.ndarray]:
+    """Saturation against a declared range: the samples at or beyond ±``full_scale`` (the same
+    unit as ``x``, e.g. the datasheet's ``measurement_range`` in SI), and their mask."""
+    at = np.abs(x) >= full_scale
+    if not at.any():
+        return [], at
+    findings: list[Finding] = []
+
+    def beyond(s: int, ln: int) -> str:
+        return (
+            f"column '{name}' is at or beyond the declared range ±{fmt(full_scale)} for {ln} "
+            "consecutive sample" + ("s" if ln != 1 else "") + " (saturation)"
+        )
+
+    _emit(findings, "saturated", channel, _runs(at), beyond, where)
+    return findings, at
 
 
 def _segments(
