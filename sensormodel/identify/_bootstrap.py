@@ -179,7 +179,7 @@ _ALIASES = 64
 
 
 def _white_alias_sum(
-    f: _FloatArray, rate: float, white_filter: tuple[float, int] | None
+    f: _FloatArray, rate: float, white_filter: tuple[Any, ...] | None
 ) -> _FloatArray:
     """Σ_k |B(f + k·rate)|² sinc²((f + k·rate)/rate) for 0 < f ≤ rate/2 (1 without a filter).
 
@@ -193,28 +193,36 @@ def _white_alias_sum(
 
 @lru_cache(maxsize=4)
 def _alias_sum_cached(
-    size: int, f_first: float, f_last: float, rate: float, white_filter: tuple[float, int]
+    size: int, f_first: float, f_last: float, rate: float, white_filter: tuple[Any, ...]
 ) -> _FloatArray:
     from scipy.integrate import quad
     from scipy.interpolate import CubicSpline
 
-    bw, order = white_filter
+    bw, order = white_filter[0], white_filter[1]
+    # point samples of the filtered output (identify._design.SAMPLING_POINT): Σ_k |B(f + k·rate)|²
+    # without the period mean's sinc² (|x + k|^-2 sin²(πx)/π²)
+    point = len(white_filter) > 2 and white_filter[2] == "point"
     c = rate / bw
     x = np.linspace(f_first, f_last, size) / rate
     total = np.zeros(size)
     for k in range(-_ALIASES, _ALIASES + 1):
         g = x + k
-        total += 1.0 / (g * g * (1.0 + ((g * c) ** 2) ** order))
+        total += 1.0 / ((1.0 if point else g * g) * (1.0 + ((g * c) ** 2) ** order))
 
     # the aliases beyond ±K by the midpoint rule, Σ_{k>K} h(x + k) ≈ ∫_{K+½}^∞ h(x + t) dt
     # (error ~h'/24 ≈ 3e-7 of the sum at K = 64), the integral G tabulated on [K, K + 1]
     def h(u: float) -> float:
-        return 1.0 / (u * u * (1.0 + (c * u) ** (2 * order)))
+        return 1.0 / ((1.0 if point else u * u) * (1.0 + (c * u) ** (2 * order)))
 
     grid = np.linspace(_ALIASES, _ALIASES + 1.0, 17)
     tail = CubicSpline(grid, [quad(h, u0, np.inf, epsabs=0.0, epsrel=1e-12)[0] for u0 in grid])
     total += tail(_ALIASES + 0.5 + x) + tail(_ALIASES + 0.5 - x)
-    total *= (np.sin(np.pi * x) / np.pi) ** 2
+    if point:  # normalized to 1 at f → 0: the white parameter is the delivered density
+        total /= 1.0 + 2.0 * sum(h(float(k)) for k in range(1, _ALIASES + 1)) + 2.0 * tail(
+            _ALIASES + 0.5
+        )
+    else:
+        total *= (np.sin(np.pi * x) / np.pi) ** 2
     total.setflags(write=False)
     return total
 

@@ -12,7 +12,7 @@ from __future__ import annotations
 
 import math
 from collections.abc import Sequence
-from dataclasses import dataclass
+from dataclasses import dataclass, replace
 from typing import Any
 
 import numpy as np
@@ -21,24 +21,41 @@ import numpy.typing as npt
 from .. import validate
 from ..errors import AnalysisError
 from ._bootstrap import ProgressCallback, _bootstrap, _Progress
-from ._checks import _check_curve, _check_n_boot, _check_terms, _check_white_filter, _Curve
+from ._checks import (
+    _check_count_step,
+    _check_curve,
+    _check_n_boot,
+    _check_terms,
+    _check_white_filter,
+    _Curve,
+)
 from ._design import (
     _GM_PEAK_RATIO,
+    SAMPLING_POINT,
+    _aliasing_factor,
     _chi2,
+    _choose_white_filter,
     _Design,
     _design,
     _fit_one,
-    _fit_range,
     _fit_subset,
     _params,
     _phi,
     _RefitState,
     _restrict,
+    _sampling,
     _time_constant_edge,
     _wls_matrix,
 )
 from ._names import DEFAULT_CONFIDENCE, DEFAULT_TERMS, PARAMETERS
-from ._readings import _notes, _reading_interval, _reading_points, slope_readings
+from ._readings import (
+    _count_step_reasons,
+    _filter_reasons,
+    _notes,
+    _reading_interval,
+    _reading_points,
+    slope_readings,
+)
 from ._results import FittedTerm, Identification
 from ._select import _RARE_LEVEL_DIVISOR, _TESTED_FIRST, _Gls, _quantile, _z
 
@@ -57,6 +74,8 @@ def fit(
     progress: ProgressCallback | None = None,
     bandwidth: float | None = None,
     filter_order: int | None = None,
+    count_step: float | None = None,
+    increments: bool = False,
 ) -> Identification:
     """Identify noise terms from an overlapping Allan-deviation curve.
 
@@ -91,6 +110,21 @@ def fit(
         band-limited record's first τ would be read as less white noise and more flicker.
     filter_order : int, optional
         Butterworth order of that filter (1 to 8; default 1 with a bandwidth).
+    count_step : float, optional
+        The record's count step [u] where its samples are integer multiples of one
+        (:func:`sensormodel.counts.count_step`; :func:`fit_recording` finds it from the
+        samples): its quantization is reported (reason codes ``count_step_white_floor`` /
+        ``count_step_quantization``, ``count_step_coarse``; package notes).
+    increments : bool
+        The curve was computed from increments (angle or velocity per sample,
+        :func:`sensormodel.allan.overlapping` with ``increments=True``): a count step is then
+        an angle/velocity quantization step (Q = step/√12), not a rate one.
+
+    Without ``bandwidth`` an output filter is fitted when the short-τ curve departs from white
+    noise and a 1- or 2-pole Butterworth accounts for it; with or without it, whether the
+    samples are means over the sample period or point samples of the filtered output is
+    decided from the short-τ curve where it can be (``Identification.sampling``,
+    ``sampling_origin``; :func:`._design._choose_white_filter`).
 
     Returns
     -------
@@ -105,12 +139,15 @@ def fit(
         (0, 1), too few bootstrap records.
     """
     names = _check_terms(terms)
-    white_filter = _check_white_filter(bandwidth, filter_order)
+    given = _check_white_filter(bandwidth, filter_order)
     confidence = validate.probability(confidence, "confidence")
     n_boot = _check_n_boot(n_boot, confidence)
     seed = validate.seed(seed, "seed")
+    step = _check_count_step(count_step)
     whole = _check_curve(curve, len(names))
-    fit_range = _fit_range(whole, names, white_filter)
+    choice = _choose_white_filter(whole, names, given)
+    white_filter = choice.white_filter
+    fit_range = choice.fit_range
     c = _restrict(whole, fit_range.start)
     alpha = 0.5 * (1.0 - confidence)
     n_pilot = max(int(math.ceil(2.0 / alpha - 1e-9)), n_boot // 2)
@@ -132,7 +169,12 @@ def fit(
     )
     boot, boot_t = _refits(av, full.design, sel, est.model)
     fitted = _fitted_terms(c, full, sel, est, boot, boot_t, confidence)
+    fitted = _white_details(fitted, white_filter, c.rate)
     readings, notes = slope_readings(whole.tau, whole.adev)
+    record_reasons = (
+        *_filter_reasons(choice, names),
+        *_count_step_reasons(step, whole, fitted, increments=increments),
+    )
     return Identification(
         channel=c.channel,
         unit=c.unit,
@@ -148,7 +190,12 @@ def fit(
         chi2=_chi2(c.avar, est.model, c.edf),
         n_boot=n_boot,
         seed=seed,
-        white_filter=white_filter,
+        white_filter=None if white_filter is None else (white_filter[0], white_filter[1]),
+        sampling=_sampling(white_filter),
+        white_filter_origin=choice.origin,
+        sampling_origin=choice.sampling_origin,
+        count_step=step,
+        record_reasons=record_reasons,
         refit_state=_RefitState(
             curve=c,
             design=full.design,
@@ -160,6 +207,29 @@ def fit(
         fit_range_reason=fit_range.reason,
         fit_range_departure=fit_range.departure,
     )
+
+
+def _white_details(
+    fitted: tuple[FittedTerm, ...], white_filter: tuple[Any, ...] | None, rate: float
+) -> tuple[FittedTerm, ...]:
+    """The fitted terms with a band-limited white term's filter in its details (``bandwidth``
+    [Hz], ``order``) and, for point samples, the aliasing factor A and the filter's input
+    density N/√A [u·√s] (the estimate is the delivered density,
+    :func:`._design._point_white_avar`)."""
+    if white_filter is None:
+        return fitted
+    out = []
+    for ft in fitted:
+        if ft.term == "white":
+            details = {**ft.details, "bandwidth": float(white_filter[0])}
+            details["order"] = float(white_filter[1])
+            if _sampling(white_filter) == SAMPLING_POINT:
+                alias = _aliasing_factor(rate, float(white_filter[0]), int(white_filter[1]))
+                details["aliasing_factor"] = alias
+                details["input_density"] = ft.estimate / math.sqrt(alias)
+            ft = replace(ft, details=details)
+        out.append(ft)
+    return tuple(out)
 
 
 # ---------------------------------------------------------------------------------------------
