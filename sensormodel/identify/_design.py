@@ -118,7 +118,7 @@ def _point_white_avar(
     a difference of means of a stationary sequence). Unlike the period means of
     :meth:`White.allan_variance`, point samples alias the filter's power above rate/2 into the
     band: their long-τ Allan variance is (r_0 + 2Σ r_k)/m = N²·A/τ with the aliasing factor
-    A = Σ_j |B(j·rate)|² ≥ 1 (1-pole at rate/4: A = 1.26; :func:`_aliasing_factor`).
+    A = Σ_j |B(j·rate)|² ≥ 1 (1-pole at rate/4: A = 1.198; :func:`_aliasing_factor`).
 
     The column is divided by A, so that its coefficient is the density of the **delivered**
     samples at low frequency, N_out = N·√A (their Allan deviation at τ ≫ 1/bandwidth is
@@ -190,6 +190,8 @@ class _Design:
     gm_grid: _FloatArray | None
     gm_columns: _FloatArray | None  # (n_grid, k)
     white_filter: _WhiteFilter | None = None  # the white term's band limit
+    # a fitted band limit: the bandwidth's search range [Hz], re-profiled by every fit
+    white_search: tuple[float, float] | None = None
 
     def with_gm(self, time_constant: float) -> _FloatArray:
         phi = self.phi.copy()
@@ -459,6 +461,36 @@ def _phi(d: _Design, time_constant: float | None) -> _FloatArray:
     return d.with_gm(time_constant) if (d.gm_index is not None and time_constant) else d.phi
 
 
+def _refilter(
+    avar: _FloatArray,
+    d: _Design,
+    mask: npt.NDArray[np.bool_],
+    *,
+    start: _FloatArray | None,
+    offset: _FloatArray | None,
+) -> _Design:
+    """The design with the white term's bandwidth of least χ² within ``d.white_search`` (a
+    bounded search in log bandwidth; the order and sampling kept)."""
+    from scipy.optimize import minimize_scalar
+
+    assert d.white_search is not None and d.white_filter is not None
+    j = d.names.index("white")
+    fixed = replace(d, white_search=None)
+
+    def with_bw(log_bw: float) -> _Design:
+        wf = (math.exp(log_bw), *d.white_filter[1:])
+        phi = d.phi.copy()
+        phi[:, j] = _basis("white", d.tau, d.rate, white_filter=wf)
+        return replace(fixed, phi=phi, white_filter=wf)
+
+    def misfit(log_bw: float) -> float:
+        return _fit_fixed(avar, with_bw(log_bw), mask, start=start, offset=offset)[1]
+
+    lo, hi = (math.log(b) for b in d.white_search)
+    res = minimize_scalar(misfit, bounds=(lo, hi), method="bounded", options={"xatol": 2e-3})
+    return with_bw(float(res.x))
+
+
 def _fit_subset(
     avar: _FloatArray,
     d: _Design,
@@ -468,7 +500,24 @@ def _fit_subset(
     offset: _FloatArray | None = None,
 ) -> tuple[_FloatArray, float | None]:
     """Fit with the terms where ``mask`` is True; the others get 0 (plus ``offset``, a fixed
-    part of the model)."""
+    part of the model). A fitted output filter (``d.white_search``) is profiled again
+    (:func:`_refilter`), so that the estimate, its bootstrap refits and a test at a limit carry
+    the filter's uncertainty."""
+    if d.white_search is not None and "white" in d.names and mask[d.names.index("white")]:
+        d = _refilter(avar, d, mask, start=start, offset=offset)
+    out, _chi2_v, t = _fit_fixed(avar, d, mask, start=start, offset=offset)
+    return out, t
+
+
+def _fit_fixed(
+    avar: _FloatArray,
+    d: _Design,
+    mask: npt.NDArray[np.bool_],
+    *,
+    start: _FloatArray | None,
+    offset: _FloatArray | None = None,
+) -> tuple[_FloatArray, float, float | None]:
+    """:func:`_fit_subset` with the design's filter as it is: coefficients, χ², GM T."""
     idx = np.flatnonzero(mask)
     gm = d.gm_index if (d.gm_index is not None and mask[d.gm_index]) else None
     sub = _Design(
@@ -482,10 +531,10 @@ def _fit_subset(
         gm_columns=d.gm_columns if gm is not None else None,
         white_filter=d.white_filter,
     )
-    c_sub, _chi2, t = _fit_one(avar, sub, start=start, offset=offset)
+    c_sub, chi2_v, t = _fit_one(avar, sub, start=start, offset=offset)
     out = np.zeros(len(d.names))
     out[idx] = c_sub
-    return out, t
+    return out, chi2_v, t
 
 
 # ---------------------------------------------------------------------------------------------

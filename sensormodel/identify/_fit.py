@@ -31,6 +31,7 @@ from ._checks import (
 )
 from ._design import (
     _GM_PEAK_RATIO,
+    FILTER_FITTED,
     SAMPLING_POINT,
     _aliasing_factor,
     _chi2,
@@ -154,7 +155,7 @@ def fit(
     total = n_pilot + n_boot
     seeds = np.random.SeedSequence(seed)
 
-    full = _fit_all_terms(c, names, white_filter)
+    full = _fit_all_terms(c, names, white_filter, _white_search(choice))
     sel = _select_terms(c, full, alpha, n_pilot, seeds.spawn(1)[0], _Progress(progress, 0, total))
     est = _estimate(c, full, sel)
     # the interval bootstrap: records from that estimate, the estimate repeated on each
@@ -284,11 +285,27 @@ class _Estimate:
     supported: npt.NDArray[np.bool_]
 
 
+def _white_search(choice: Any) -> tuple[float, float] | None:
+    """The bandwidth range [Hz] the fit's later steps search for a fitted output filter:
+    a factor :data:`_FILTER_SPAN` either side of the choice, within the profile's range."""
+    if choice.origin != FILTER_FITTED:
+        return None
+    bw = float(choice.white_filter[0])
+    return bw / _FILTER_SPAN, bw * _FILTER_SPAN
+
+
+#: A fitted output filter's bandwidth is searched again within this factor of its first value.
+_FILTER_SPAN = 2.0
+
+
 def _fit_all_terms(
-    c: _Curve, names: tuple[str, ...], white_filter: tuple[float, int] | None
+    c: _Curve,
+    names: tuple[str, ...],
+    white_filter: tuple[Any, ...] | None,
+    white_search: tuple[float, float] | None = None,
 ) -> _FullFit:
     """Step 1: every requested term, and the unconstrained estimate's matrix."""
-    d = _design(names, c, white_filter)
+    d = replace(_design(names, c, white_filter), white_search=white_search)
     coef, _chi2_full, t_full = _fit_one(c.avar, d)
     if not np.any(coef > 0):
         raise AnalysisError(

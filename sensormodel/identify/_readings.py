@@ -186,7 +186,8 @@ def _filter_reasons(choice: Any, names: tuple[str, ...]) -> tuple[tuple[str, dic
         out.append(("output_filter_not_resolved", {}))
     if wf is not None:
         code = "sampling_detected" if choice.sampling_origin == "detected" else "sampling_assumed"
-        out.append((code, {"sampling": str(wf[2]) if len(wf) > 2 else "average"}))
+        sampling = str(wf[2]) if len(wf) > 2 else "average"
+        out.append((code, {"sampling": sampling, "origin": str(choice.sampling_origin)}))
     return tuple(out)
 
 
