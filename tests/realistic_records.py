@@ -199,9 +199,15 @@ CASES: dict[str, dict[str, float]] = {
 
 
 def white_truth(case: str, truth: Truth = GYRO) -> float:
-    """The white density a datasheet prints for the case's unit [u·√s]: N, or for point
-    samples the delivered N·√A (:func:`delivered_density`)."""
+    """The white density a datasheet prints for the case's unit [u·√s], that of the delivered
+    samples: N, or for point samples N·√A (:func:`delivered_density`), with the count step's
+    quantization floor q²/(12·rate) added in variance (Sheppard; white while the noise dithers
+    the quantizer)."""
     kw = CASES.get(case, {})
+    n_out = truth.white
     if kw.get("point"):
-        return delivered_density(truth.white, int(kw["poles"]), float(kw.get("corner", RATE / 4)))
-    return truth.white
+        n_out = delivered_density(truth.white, int(kw["poles"]), float(kw.get("corner", RATE / 4)))
+    step = kw.get("count_step")
+    if step is not None:
+        n_out = math.sqrt(n_out**2 + step**2 / (12.0 * RATE))
+    return n_out

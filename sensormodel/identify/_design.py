@@ -487,7 +487,7 @@ def _refilter(
         return _fit_fixed(avar, with_bw(log_bw), mask, start=start, offset=offset)[1]
 
     lo, hi = (math.log(b) for b in d.white_search)
-    res = minimize_scalar(misfit, bounds=(lo, hi), method="bounded", options={"xatol": 2e-3})
+    res = minimize_scalar(misfit, bounds=(lo, hi), method="bounded", options={"xatol": 1e-2})
     return with_bw(float(res.x))
 
 
