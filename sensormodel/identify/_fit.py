@@ -107,8 +107,8 @@ def fit(
         The sensor's output filter [Hz] (−3 dB), when it rolls off within a few sample periods:
         the white term is then band-limited white (:class:`sensormodel.terms.White` with this
         bandwidth: its Allan variance falls below N²/τ at τ ≲ 1/bandwidth), in the fit and in
-        the bootstrap. Without it the samples are taken as unfiltered period means, and a
-        band-limited record's first τ would be read as less white noise and more flicker.
+        the bootstrap. Without it, where the shortest τ lie below white noise, the filter's
+        corner and order (1 or 2) are fitted (``Identification.white_filter_origin``).
     filter_order : int, optional
         Butterworth order of that filter (1 to 8; default 1 with a bandwidth).
     count_step : float, optional
@@ -121,11 +121,8 @@ def fit(
         :func:`sensormodel.allan.overlapping` with ``increments=True``): a count step is then
         an angle/velocity quantization step (Q = step/√12), not a rate one.
 
-    Without ``bandwidth`` an output filter is fitted when the short-τ curve departs from white
-    noise and a 1- or 2-pole Butterworth accounts for it; with or without it, whether the
-    samples are means over the sample period or point samples of the filtered output is
-    decided from the short-τ curve where it can be (``Identification.sampling``,
-    ``sampling_origin``; :func:`._design._choose_white_filter`).
+    Without ``bandwidth`` a 1- or 2-pole filter is fitted where the short-τ curve needs one;
+    the samples' sampling is told from that curve where it can be (package notes).
 
     Returns
     -------
@@ -147,35 +144,23 @@ def fit(
     step = _check_count_step(count_step)
     whole = _check_curve(curve, len(names))
     choice = _choose_white_filter(whole, names, given)
-    white_filter = choice.white_filter
-    fit_range = choice.fit_range
-    c = _restrict(whole, fit_range.start)
+    wf = choice.white_filter
+    c = _restrict(whole, choice.fit_range.start)
     alpha = 0.5 * (1.0 - confidence)
     n_pilot = max(int(math.ceil(2.0 / alpha - 1e-9)), n_boot // 2)
     total = n_pilot + n_boot
     seeds = np.random.SeedSequence(seed)
 
-    full = _fit_all_terms(c, names, white_filter, _white_search(choice))
+    full = _fit_all_terms(c, names, wf, _white_search(choice))
     sel = _select_terms(c, full, alpha, n_pilot, seeds.spawn(1)[0], _Progress(progress, 0, total))
     est = _estimate(c, full, sel)
     # the interval bootstrap: records from that estimate, the estimate repeated on each
-    av = _bootstrap(
-        _params(names, est.coef),
-        est.time_constant,
-        c,
-        n_boot,
-        seeds.spawn(1)[0],
-        _Progress(progress, n_pilot, total),
-        white_filter,
-    )
+    params = _params(names, est.coef)
+    progress_b = _Progress(progress, n_pilot, total)
+    av = _bootstrap(params, est.time_constant, c, n_boot, seeds.spawn(1)[0], progress_b, wf)
     boot, boot_t = _refits(av, full.design, sel, est.model)
-    fitted = _fitted_terms(c, full, sel, est, boot, boot_t, confidence)
-    fitted = _white_details(fitted, white_filter, c.rate)
+    fitted = _white_details(_fitted_terms(c, full, sel, est, boot, boot_t, confidence), wf, c.rate)
     readings, notes = slope_readings(whole.tau, whole.adev)
-    record_reasons = (
-        *_filter_reasons(choice, names),
-        *_count_step_reasons(step, whole, fitted, increments=increments),
-    )
     return Identification(
         channel=c.channel,
         unit=c.unit,
@@ -191,12 +176,6 @@ def fit(
         chi2=_chi2(c.avar, est.model, c.edf),
         n_boot=n_boot,
         seed=seed,
-        white_filter=None if white_filter is None else (white_filter[0], white_filter[1]),
-        sampling=_sampling(white_filter),
-        white_filter_origin=choice.origin,
-        sampling_origin=choice.sampling_origin,
-        count_step=step,
-        record_reasons=record_reasons,
         refit_state=_RefitState(
             curve=c,
             design=full.design,
@@ -204,10 +183,37 @@ def fit(
             coef=est.coef.copy(),
             time_constant=est.time_constant,
         ),
-        fit_range=(float(c.tau[0]), float(c.tau[-1])),
-        fit_range_reason=fit_range.reason,
-        fit_range_departure=fit_range.departure,
+        **_record_fields(choice, names, c, whole, fitted, step, increments),
     )
+
+
+def _record_fields(
+    choice: Any,
+    names: tuple[str, ...],
+    c: _Curve,
+    whole: _Curve,
+    fitted: tuple[FittedTerm, ...],
+    step: float | None,
+    increments: bool,
+) -> dict[str, Any]:
+    """The fields of an :class:`Identification` that describe the record: the τ range fitted
+    (``c``, of the ``whole`` curve), the output filter and sampling (``choice``, a
+    :class:`._design._FilterChoice`), the count step, and their reason codes."""
+    wf = choice.white_filter
+    return {
+        "white_filter": None if wf is None else (float(wf[0]), int(wf[1])),
+        "sampling": _sampling(wf),
+        "white_filter_origin": choice.origin,
+        "sampling_origin": choice.sampling_origin,
+        "count_step": step,
+        "record_reasons": (
+            *_filter_reasons(choice, names),
+            *_count_step_reasons(step, whole, fitted, increments=increments),
+        ),
+        "fit_range": (float(c.tau[0]), float(c.tau[-1])),
+        "fit_range_reason": choice.fit_range.reason,
+        "fit_range_departure": choice.fit_range.departure,
+    }
 
 
 def _white_details(
