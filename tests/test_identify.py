@@ -158,6 +158,18 @@ def test_band_limited_record_with_and_without_its_bandwidth() -> None:
         identify.fit(curve, terms=terms, count_step=-1.0)
 
 
+def test_band_limited_basis_table_matches_the_exact_form() -> None:
+    # the fit's table of the period means' band-limited shape against White.allan_variance
+    # (two matrix exponentials per τ), inside the table, beyond its end and below its start
+    from sensormodel.identify._design import _average_white_avar
+
+    tau = np.geomspace(1e-4, 1e6, 300)
+    for order in (1, 2, 4):
+        for bw in (0.3, 20.0, 190.0):
+            exact = White(density=1.0, bandwidth=bw, filter_order=order).allan_variance(tau)
+            assert np.allclose(_average_white_avar(tau, bw, order), exact, rtol=1e-6, atol=0)
+
+
 def _point_record(seed: int, n: int, rate: float, density: float, bw: float) -> np.ndarray:
     """Point samples of white noise (density N) through a 1-pole analog low-pass at ``bw``:
     the exact AR(1) with φ = e^(−2π·bw/rate) and variance N²·π·bw (stationary start)."""
