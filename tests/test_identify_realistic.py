@@ -2,8 +2,12 @@
 
 The records (:mod:`tests.realistic_records`): white noise + flicker at the level of an
 industrial MEMS gyro (0.035 °/s/√Hz, floor 25 °/h), 100 Hz, one hour, then an undeclared 1- or
-2-pole output filter at rate/4, integer coding with a count step of σ/7, a 2 Hz line, a mild
-thermal ramp, and combinations. The truth is what the datasheet prints: N and 0.6643·B.
+2-pole output filter at rate/4 (digital, or analog and point-sampled), integer coding with a
+count step of σ/7 or σ, a 2 Hz line, a mild thermal ramp, and combinations. Each is fitted as
+:func:`identify.fit_recording` fits a channel (the count step found from the samples; no
+bandwidth given). The truth is what the datasheet prints for the delivered samples: the white
+density √(N²·A + q²/(12·rate)) (A the aliasing of point samples, q the count step;
+:func:`realistic_records.white_truth`) and the floor 0.6643·B.
 
 Tolerances (the issue's acceptance numbers, argued here):
 
