@@ -170,6 +170,28 @@ def test_band_limited_basis_table_matches_the_exact_form() -> None:
             assert np.allclose(_average_white_avar(tau, bw, order), exact, rtol=1e-6, atol=0)
 
 
+def test_increment_record_count_step_is_angle_quantization() -> None:
+    # angle increments of a gyro that counts whole steps q of accumulated angle (white rate
+    # noise underneath): the quantization error of the angle is uniform, variance q²/12, so
+    # Q = q/√12 (IEEE Std 952 Annex C, AVAR 3Q²/τ²); the identification reports that Q beside
+    # the fitted quantization term, whose 90 % interval covers it
+    rng = np.random.default_rng(31)
+    rate, n, q = 100.0, 1 << 17, 2e-5
+    angle = np.cumsum(white(rng, n, rate, 2e-4)) / rate
+    increments = np.diff(np.concatenate([[0.0], np.round(angle / q) * q]))
+    curve = overlapping(increments, rate, increments=True, unit="rad/s", channel="gyro.z")
+    result = identify.fit(
+        curve, terms=("quantization", "white"), seed=2, n_boot=60, count_step=q, increments=True
+    )
+    codes = dict(result.record_reasons)
+    values = codes["count_step_quantization"]
+    assert values["coefficient"] == pytest.approx(q / math.sqrt(12.0), rel=1e-12)
+    quant = result.term("quantization")
+    assert quant.low <= values["coefficient"] <= quant.high, quant
+    assert values["fitted"] == quant.estimate
+    assert "count_step_white_floor" not in codes
+
+
 def _point_record(seed: int, n: int, rate: float, density: float, bw: float) -> np.ndarray:
     """Point samples of white noise (density N) through a 1-pole analog low-pass at ``bw``:
     the exact AR(1) with φ = e^(−2π·bw/rate) and variance N²·π·bw (stationary start)."""
