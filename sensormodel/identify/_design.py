@@ -102,7 +102,7 @@ def _white_term(density: float, white_filter: _WhiteFilter | None, **meta: Any) 
 #: :data:`_SHAPE_LOWEST` to :data:`_SHAPE_HIGHEST`, :data:`_SHAPE_PER_DECADE` points per decade.
 _SHAPE_LOWEST = 1e-2
 _SHAPE_HIGHEST = 1e6
-_SHAPE_PER_DECADE = 64
+_SHAPE_PER_DECADE = 128
 
 
 def _average_white_avar(tau: _FloatArray, bandwidth: float, order: int) -> _FloatArray:
@@ -113,12 +113,19 @@ def _average_white_avar(tau: _FloatArray, bandwidth: float, order: int) -> _Floa
     White noise through B(s/ωc) has AVAR(τ) = ωc·AVAR₁(ωc·τ) (ωc = 2π·bandwidth; the
     normalized filter's AVAR₁, :meth:`White.allan_variance`), so one table of
     h(x) = ln(x·AVAR₁(x)) per order serves every bandwidth (:func:`_average_shape`, exact values
-    from :mod:`sensormodel.terms`, cubic spline in ln x: relative error < 1e-6, tested). The
+    from :mod:`sensormodel.terms`, cubic spline in ln x: relative error < 1e-8, tested). One
+    pole is the first-order Gauss-Markov process (T = 1/ωc, σ² = N²·π·bandwidth) and takes its
+    closed form (:class:`GaussMarkov`, IEEE Std 952-1997 Annex C) instead. The
     fit evaluates this basis for many bandwidths (the filter's profile and its refits), where
     the exact form costs two matrix exponentials per τ. Beyond the table, x·AVAR₁(x) − 1
     falls as 1/x (the filter's variance deficit over N²/τ is fixed: AVAR = N²/τ − c/τ² + …),
     and it is continued so; below it, the exact form.
     """
+    if int(order) == 1:
+        # one pole: the Gauss-Markov process T = 1/ωc, σ² = N²·π·bandwidth, in closed form
+        sigma, tc = math.sqrt(math.pi * bandwidth), 0.5 / (math.pi * bandwidth)
+        gm = GaussMarkov(sigma=sigma, time_constant=tc)
+        return np.asarray(gm.allan_variance(tau), dtype=np.float64)
     wc = 2.0 * math.pi * bandwidth
     x = wc * tau
     spline, h_top = _average_shape(int(order))
