@@ -62,3 +62,32 @@ def test_bad_options_are_refused_before_any_work(tmp_path):
     rec = read_recording(_logger_csv(tmp_path, (3000,)))
     with pytest.raises(AnalysisError, match="n_boot"):
         identify.fit_recording(rec, n_boot=0)
+
+
+def test_an_integer_coded_log_has_its_count_step_found(tmp_path):
+    # the logger writes counts of 0.05 °/s (a MEMS gyro's output register) at two decimals,
+    # σ ≈ 7 counts; read back in rad/s, the step is 0.05 °/s in rad/s, and its quantization is
+    # reported as a white floor of density q/√(12·rate) (Sheppard), not subtracted
+    rng = np.random.default_rng(22)
+    step_deg = 0.05
+    counts = np.round(rng.normal(0.0, 7.0, 6000))
+    rows = ["time [ms],gyro_z [deg/s]"]
+    rows += [f"{1000.0 * i / RATE:.3f},{k * step_deg:.2f}" for i, k in enumerate(counts)]
+    path = tmp_path / "counts.csv"
+    path.write_text("\n".join(rows) + "\n")
+    rec = read_recording(path)
+    (result,) = identify.fit_recording(rec, terms="white", seed=4, n_boot=60)
+    step = np.deg2rad(step_deg)
+    assert result.count_step == pytest.approx(step, rel=1e-9)
+    (code, values), = [r for r in result.record_reasons if r[0].startswith("count_step")]
+    assert code == "count_step_white_floor"
+    assert values["density"] == pytest.approx(step / np.sqrt(12.0 * RATE), rel=1e-9)
+    # σ = 7 counts: the floor's share of the white variance is 1/(12·49) within the white
+    # estimate's interval
+    white = result.term("white")
+    assert values["share"] * (white.estimate / white.high) ** 2 <= 1.0 / 588.0
+    assert 1.0 / 588.0 <= values["share"] * (white.estimate / white.low) ** 2
+    # a step given by the caller is taken as it is; the estimates do not depend on it
+    (given,) = identify.fit_recording(rec, terms="white", seed=4, n_boot=60, count_step=2 * step)
+    assert given.count_step == 2 * step
+    assert given.terms == result.terms

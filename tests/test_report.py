@@ -338,6 +338,14 @@ def test_reason_codes_become_the_sentences_of_the_reports():
         "share": 0.24,
         "min_share": 0.1,
         "departure": 0.62,
+        "bandwidth": 24.7,
+        "order": 2,
+        "sampling": "point",
+        "origin": "detected",
+        "step": 8.7e-4,
+        "density": 2.5e-5,
+        "coefficient": 2.5e-4,
+        "ratio": 2.9,
     }
     for code in REASONS:
         text = reason_text(code, values)
@@ -508,3 +516,39 @@ def test_figures_mark_the_datasheet_and_show_the_amplitude_density(report) -> No
     # error in ASD is below 1/(2√K) ≈ 5 % for K ≥ 25 periodogram values: 15 % is > 3 σ)
     level = np.median(measured_asd.get_ydata())
     assert level == pytest.approx(0.5 * white.limit, rel=0.15)
+
+
+def test_identify_notes_say_what_the_record_is():
+    """The record's reason codes (output filter, sampling, count step) become notes, after the
+    fitted range and before the slope-reading notes."""
+    import dataclasses
+
+    base = _gauss_markov_identification(720.0)
+    record = (
+        ("output_filter_fitted", {"bandwidth": 24.7, "order": 2}),
+        ("sampling_detected", {"sampling": "point", "origin": "detected"}),
+        (
+            "count_step_white_floor",
+            {"step": 8.7e-4, "unit": "rad/s", "density": 2.5e-5, "share": 0.0017},
+        ),
+        ("count_step_coarse", {"step": 0.02, "sigma": 0.007, "unit": "rad/s", "ratio": 2.9}),
+    )
+    ident = dataclasses.replace(base, record_reasons=record)
+    notes = identify_notes(ident)
+    assert notes[0] == (
+        "the short-τ curve lies below white noise: an output filter was fitted, 2-pole "
+        "Butterworth at 24.7 Hz (no bandwidth was given)"
+    )
+    assert notes[1] == (
+        "the samples are point samples of the filtered output (told from the short-τ curve)"
+    )
+    assert notes[2].startswith("integer-coded record, count step 0.00087 rad/s")
+    assert "(0.2% of the fitted white variance), reported and not subtracted" in notes[2]
+    assert "2.9 times the sample-to-sample noise" in notes[3]
+    assumed = reason_text("sampling_assumed", {"sampling": "average", "origin": "default"})
+    assert assumed.startswith("the samples are taken as means over the sample period")
+    assert reason_text("output_filter_not_resolved", {}).endswith("left out of the fit")
+    q = reason_text(
+        "count_step_quantization", {"step": 1e-5, "unit": "rad", "coefficient": 2.9e-6}
+    )
+    assert "Q = step/√12 = 2.9e-06" in q

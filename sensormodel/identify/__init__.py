@@ -69,11 +69,21 @@ misses a true value below it in 10-13 % of records instead of α = 5 % (the othe
 conservative). A decision against a given value (a datasheet limit) therefore uses
 :func:`limit_test`, which simulates *at* that value.
 
-Assumptions: the samples are means over their sample period, of white noise that is either
-unfiltered or band-limited by a stated output filter (``bandwidth``, ``filter_order``: an
-unstated filter that rolls off within a few sample periods lowers the first points of the curve
-and is read as less white noise and more flicker); the terms are independent; a flicker term
-has its cut-off at the Nyquist frequency.
+Assumptions: the terms are independent; a flicker term has its cut-off at the Nyquist
+frequency; white noise is unfiltered or band-limited by an output filter, stated
+(``bandwidth``, ``filter_order``) or, where the short-τ curve lies below white noise and none is
+stated, fitted as a nuisance parameter (corner frequency, 1 or 2 Butterworth poles;
+``_design._choose_white_filter``). The samples of band-limited white noise are either means
+over their sample period or point samples of the filtered output; the short-τ curve tells
+them apart where it can (``Identification.sampling``, ``sampling_origin``), else the period
+mean is assumed. Point samples alias the filter's power above rate/2 into the band, and the
+white parameter is then the density of the delivered samples at low frequency (the Allan line
+a datasheet reads), the filter's input density beside it in the details
+(``_design._point_white_avar``), so the white estimate does not depend on the sampling
+assumption, the terms requested or whether the bandwidth was given. An integer-coded record's
+count step (:mod:`sensormodel.counts`) is reported with its quantization: a white floor
+q²/(12·rate) for a rate record (reported, not subtracted: it is part of the delivered output),
+Q = q/√12 for an increment record (``_readings._count_step_reasons``).
 
 Gauss-Markov time constant
 --------------------------

@@ -179,3 +179,15 @@ def _check_white_filter(bandwidth: Any, filter_order: Any) -> tuple[float, int] 
     if isinstance(order, bool) or not isinstance(order, (int, np.integer)) or not 1 <= order <= 8:
         raise AnalysisError(f"got {filter_order!r}", "a filter order 1 to 8", field="filter_order")
     return bw, int(order)
+
+
+def _check_count_step(count_step: Any) -> float | None:
+    """A record's count step [u] (a positive finite number), or None."""
+    if count_step is None:
+        return None
+    if isinstance(count_step, bool) or not isinstance(count_step, (int, float, np.floating)):
+        raise AnalysisError(f"got {count_step!r}", "a count step [u] > 0", field="count_step")
+    q = float(count_step)
+    if not math.isfinite(q) or q <= 0:
+        raise AnalysisError(f"got {count_step!r}", "a count step [u] > 0", field="count_step")
+    return q

@@ -12,7 +12,7 @@ from __future__ import annotations
 
 import math
 from collections.abc import Sequence
-from dataclasses import dataclass
+from dataclasses import dataclass, replace
 from typing import Any
 
 import numpy as np
@@ -21,24 +21,42 @@ import numpy.typing as npt
 from .. import validate
 from ..errors import AnalysisError
 from ._bootstrap import ProgressCallback, _bootstrap, _Progress
-from ._checks import _check_curve, _check_n_boot, _check_terms, _check_white_filter, _Curve
+from ._checks import (
+    _check_count_step,
+    _check_curve,
+    _check_n_boot,
+    _check_terms,
+    _check_white_filter,
+    _Curve,
+)
 from ._design import (
     _GM_PEAK_RATIO,
+    FILTER_FITTED,
+    SAMPLING_POINT,
+    _aliasing_factor,
     _chi2,
+    _choose_white_filter,
     _Design,
     _design,
     _fit_one,
-    _fit_range,
     _fit_subset,
     _params,
     _phi,
     _RefitState,
     _restrict,
+    _sampling,
     _time_constant_edge,
     _wls_matrix,
 )
 from ._names import DEFAULT_CONFIDENCE, DEFAULT_TERMS, PARAMETERS
-from ._readings import _notes, _reading_interval, _reading_points, slope_readings
+from ._readings import (
+    _count_step_reasons,
+    _filter_reasons,
+    _notes,
+    _reading_interval,
+    _reading_points,
+    slope_readings,
+)
 from ._results import FittedTerm, Identification
 from ._select import _RARE_LEVEL_DIVISOR, _TESTED_FIRST, _Gls, _quantile, _z
 
@@ -57,6 +75,8 @@ def fit(
     progress: ProgressCallback | None = None,
     bandwidth: float | None = None,
     filter_order: int | None = None,
+    count_step: float | None = None,
+    increments: bool = False,
 ) -> Identification:
     """Identify noise terms from an overlapping Allan-deviation curve.
 
@@ -87,10 +107,22 @@ def fit(
         The sensor's output filter [Hz] (−3 dB), when it rolls off within a few sample periods:
         the white term is then band-limited white (:class:`sensormodel.terms.White` with this
         bandwidth: its Allan variance falls below N²/τ at τ ≲ 1/bandwidth), in the fit and in
-        the bootstrap. Without it the samples are taken as unfiltered period means, and a
-        band-limited record's first τ would be read as less white noise and more flicker.
+        the bootstrap. Without it, where the shortest τ lie below white noise, the filter's
+        corner and order (1 or 2) are fitted (``Identification.white_filter_origin``).
     filter_order : int, optional
         Butterworth order of that filter (1 to 8; default 1 with a bandwidth).
+    count_step : float, optional
+        The record's count step [u] where its samples are integer multiples of one
+        (:func:`sensormodel.counts.count_step`; :func:`fit_recording` finds it from the
+        samples): its quantization is reported (reason codes ``count_step_white_floor`` /
+        ``count_step_quantization``, ``count_step_coarse``; package notes).
+    increments : bool
+        The curve was computed from increments (angle or velocity per sample,
+        :func:`sensormodel.allan.overlapping` with ``increments=True``): a count step is then
+        an angle/velocity quantization step (Q = step/√12), not a rate one.
+
+    Without ``bandwidth`` a 1- or 2-pole filter is fitted where the short-τ curve needs one;
+    the samples' sampling is told from that curve where it can be (package notes).
 
     Returns
     -------
@@ -105,33 +137,29 @@ def fit(
         (0, 1), too few bootstrap records.
     """
     names = _check_terms(terms)
-    white_filter = _check_white_filter(bandwidth, filter_order)
+    given = _check_white_filter(bandwidth, filter_order)
     confidence = validate.probability(confidence, "confidence")
     n_boot = _check_n_boot(n_boot, confidence)
     seed = validate.seed(seed, "seed")
+    step = _check_count_step(count_step)
     whole = _check_curve(curve, len(names))
-    fit_range = _fit_range(whole, names, white_filter)
-    c = _restrict(whole, fit_range.start)
+    choice = _choose_white_filter(whole, names, given)
+    wf = choice.white_filter
+    c = _restrict(whole, choice.fit_range.start)
     alpha = 0.5 * (1.0 - confidence)
     n_pilot = max(int(math.ceil(2.0 / alpha - 1e-9)), n_boot // 2)
     total = n_pilot + n_boot
     seeds = np.random.SeedSequence(seed)
 
-    full = _fit_all_terms(c, names, white_filter)
+    full = _fit_all_terms(c, names, wf, _white_search(choice))
     sel = _select_terms(c, full, alpha, n_pilot, seeds.spawn(1)[0], _Progress(progress, 0, total))
     est = _estimate(c, full, sel)
     # the interval bootstrap: records from that estimate, the estimate repeated on each
-    av = _bootstrap(
-        _params(names, est.coef),
-        est.time_constant,
-        c,
-        n_boot,
-        seeds.spawn(1)[0],
-        _Progress(progress, n_pilot, total),
-        white_filter,
-    )
+    params = _params(names, est.coef)
+    progress_b = _Progress(progress, n_pilot, total)
+    av = _bootstrap(params, est.time_constant, c, n_boot, seeds.spawn(1)[0], progress_b, wf)
     boot, boot_t = _refits(av, full.design, sel, est.model)
-    fitted = _fitted_terms(c, full, sel, est, boot, boot_t, confidence)
+    fitted = _white_details(_fitted_terms(c, full, sel, est, boot, boot_t, confidence), wf, c.rate)
     readings, notes = slope_readings(whole.tau, whole.adev)
     return Identification(
         channel=c.channel,
@@ -148,7 +176,6 @@ def fit(
         chi2=_chi2(c.avar, est.model, c.edf),
         n_boot=n_boot,
         seed=seed,
-        white_filter=white_filter,
         refit_state=_RefitState(
             curve=c,
             design=full.design,
@@ -156,10 +183,60 @@ def fit(
             coef=est.coef.copy(),
             time_constant=est.time_constant,
         ),
-        fit_range=(float(c.tau[0]), float(c.tau[-1])),
-        fit_range_reason=fit_range.reason,
-        fit_range_departure=fit_range.departure,
+        **_record_fields(choice, names, c, whole, fitted, step, increments),
     )
+
+
+def _record_fields(
+    choice: Any,
+    names: tuple[str, ...],
+    c: _Curve,
+    whole: _Curve,
+    fitted: tuple[FittedTerm, ...],
+    step: float | None,
+    increments: bool,
+) -> dict[str, Any]:
+    """The fields of an :class:`Identification` that describe the record: the τ range fitted
+    (``c``, of the ``whole`` curve), the output filter and sampling (``choice``, a
+    :class:`._design._FilterChoice`), the count step, and their reason codes."""
+    wf = choice.white_filter
+    return {
+        "white_filter": None if wf is None else (float(wf[0]), int(wf[1])),
+        "sampling": _sampling(wf),
+        "white_filter_origin": choice.origin,
+        "sampling_origin": choice.sampling_origin,
+        "count_step": step,
+        "record_reasons": (
+            *_filter_reasons(choice, names),
+            *_count_step_reasons(step, whole, fitted, increments=increments),
+        ),
+        "fit_range": (float(c.tau[0]), float(c.tau[-1])),
+        "fit_range_reason": choice.fit_range.reason,
+        "fit_range_departure": choice.fit_range.departure,
+    }
+
+
+def _white_details(
+    fitted: tuple[FittedTerm, ...], white_filter: tuple[Any, ...] | None, rate: float
+) -> tuple[FittedTerm, ...]:
+    """The fitted terms with a band-limited white term's filter in its details (``bandwidth``
+    [Hz], ``order``) and, for point samples, the aliasing factor A and the filter's input
+    density N/√A [u·√s] (the estimate is the delivered density,
+    :func:`._design._point_white_avar`)."""
+    if white_filter is None:
+        return fitted
+    out = []
+    for ft in fitted:
+        if ft.term == "white":
+            details = {**ft.details, "bandwidth": float(white_filter[0])}
+            details["order"] = float(white_filter[1])
+            if _sampling(white_filter) == SAMPLING_POINT:
+                alias = _aliasing_factor(rate, float(white_filter[0]), int(white_filter[1]))
+                details["aliasing_factor"] = alias
+                details["input_density"] = ft.estimate / math.sqrt(alias)
+            ft = replace(ft, details=details)
+        out.append(ft)
+    return tuple(out)
 
 
 # ---------------------------------------------------------------------------------------------
@@ -214,11 +291,27 @@ class _Estimate:
     supported: npt.NDArray[np.bool_]
 
 
+def _white_search(choice: Any) -> tuple[float, float] | None:
+    """The bandwidth range [Hz] the fit's later steps search for a fitted output filter:
+    a factor :data:`_FILTER_SPAN` either side of the choice, within the profile's range."""
+    if choice.origin != FILTER_FITTED:
+        return None
+    bw = float(choice.white_filter[0])
+    return bw / _FILTER_SPAN, bw * _FILTER_SPAN
+
+
+#: A fitted output filter's bandwidth is searched again within this factor of its first value.
+_FILTER_SPAN = 2.0
+
+
 def _fit_all_terms(
-    c: _Curve, names: tuple[str, ...], white_filter: tuple[float, int] | None
+    c: _Curve,
+    names: tuple[str, ...],
+    white_filter: tuple[Any, ...] | None,
+    white_search: tuple[float, float] | None = None,
 ) -> _FullFit:
     """Step 1: every requested term, and the unconstrained estimate's matrix."""
-    d = _design(names, c, white_filter)
+    d = replace(_design(names, c, white_filter), white_search=white_search)
     coef, _chi2_full, t_full = _fit_one(c.avar, d)
     if not np.any(coef > 0):
         raise AnalysisError(

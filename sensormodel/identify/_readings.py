@@ -6,6 +6,7 @@ from __future__ import annotations
 
 import math
 from dataclasses import dataclass
+from typing import Any
 
 import numpy as np
 import numpy.typing as npt
@@ -154,3 +155,88 @@ def _reading_interval(
     j, factor = point
     lo_hi = chi2_interval(float(adev[j]), float(edf[j]), confidence)
     return float(lo_hi[0]) * factor, float(lo_hi[1]) * factor
+
+
+# ---------------------------------------------------------------------------------------------
+# Reason codes of the record: its output filter, its sampling, its count step
+# ---------------------------------------------------------------------------------------------
+
+#: The leading term of a Gaussian's characteristic function at 2π/q, exp(−2π²σ²/q²), above
+#: which the quantization error is no longer uniform and independent of the signal (B. Widrow,
+#: I. Kollár, M.-C. Liu, "Statistical theory of quantization", IEEE Trans. Instrum. Meas.
+#: 45(2), 1996: Sheppard's q²/12 is exact when the input's characteristic function vanishes
+#: at the multiples of 2π/q). 1 %: q ≳ 2.07σ.
+_COARSE_LEVEL = 0.01
+
+
+def _filter_reasons(choice: Any, names: tuple[str, ...]) -> tuple[tuple[str, dict[str, Any]], ...]:
+    """The reason codes of the white term's band limit and sampling (``choice`` a
+    :class:`._design._FilterChoice`): ``output_filter_fitted`` (bandwidth [Hz], order: the
+    short-τ curve departs from white noise and this filter accounts for it),
+    ``output_filter_not_resolved`` (it departs, and no fitted filter describes it: the range
+    starts above), ``sampling_detected`` / ``sampling_assumed`` (the sampling assumption of a
+    band-limited white term, and whether the curve told it)."""
+    if "white" not in names:
+        return ()
+    out: list[tuple[str, dict[str, Any]]] = []
+    wf = choice.white_filter
+    if choice.origin == "fitted":
+        out.append(("output_filter_fitted", {"bandwidth": float(wf[0]), "order": int(wf[1])}))
+    elif wf is None and "start_without" in choice.details:
+        out.append(("output_filter_not_resolved", {}))
+    if wf is not None:
+        code = "sampling_detected" if choice.sampling_origin == "detected" else "sampling_assumed"
+        sampling = str(wf[2]) if len(wf) > 2 else "average"
+        out.append((code, {"sampling": sampling, "origin": str(choice.sampling_origin)}))
+    return tuple(out)
+
+
+def _count_step_reasons(
+    step: float | None, curve: Any, fitted: Any, *, increments: bool
+) -> tuple[tuple[str, dict[str, Any]], ...]:
+    """The reason codes of a record's count step q [u] (None: none found).
+
+    A rate record quantized with step q carries, per sample, an error of variance q²/12
+    (Sheppard; uniform and independent of the signal while the noise dithers the quantizer:
+    Widrow, Kollár & Liu 1996), white, so a known white floor of density
+    N_q = q/√(12·rate) [u·√s] (AVAR q²/(12·rate·τ)). It is **reported, not subtracted**: it is
+    part of the delivered output that a datasheet's density describes and that a user's filter
+    sees; ``count_step_white_floor`` gives N_q and its share N_q²/N̂² of the fitted white
+    variance (subtract in quadrature for the sensor before coding). An increment record
+    quantized with step q (angle or velocity per sample) has angle/velocity quantization noise
+    Q = q/√12 [u·s] (IEEE Std 952-1997 Annex C: AVAR 3Q²/τ²): ``count_step_quantization``
+    gives Q beside the fitted quantization term. ``count_step_coarse``: the step is coarse
+    against the sample-to-sample noise σ (σ ≈ the Allan deviation at the first τ times √m),
+    exp(−2π²σ²/q²) > :data:`_COARSE_LEVEL`: the error then follows the signal and q²/12 is
+    not its variance; the estimates near the shortest τ are to be read with care.
+    """
+    if step is None:
+        return ()
+    sigma = float(curve.adev[0]) * math.sqrt(float(curve.m[0]))
+    out: list[tuple[str, dict[str, Any]]] = []
+    if increments:
+        q_coef = step / math.sqrt(12.0)
+        ft = next((t for t in fitted if t.term == "quantization"), None)
+        values: dict[str, Any] = {"step": step, "unit": curve.unit, "coefficient": q_coef}
+        if ft is not None:
+            values["fitted"] = ft.estimate
+        out.append(("count_step_quantization", values))
+    else:
+        floor = step / math.sqrt(12.0 * curve.rate)
+        ft = next((t for t in fitted if t.term == "white"), None)
+        share = (floor / ft.estimate) ** 2 if ft is not None and ft.estimate > 0 else math.nan
+        out.append(
+            (
+                "count_step_white_floor",
+                {"step": step, "unit": curve.unit, "density": floor, "share": share},
+            )
+        )
+    lead = math.exp(-2.0 * math.pi**2 * sigma**2 / step**2)
+    if lead > _COARSE_LEVEL:
+        out.append(
+            (
+                "count_step_coarse",
+                {"step": step, "sigma": sigma, "unit": curve.unit, "ratio": step / sigma},
+            )
+        )
+    return tuple(out)

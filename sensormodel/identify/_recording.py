@@ -8,6 +8,7 @@ from collections.abc import Sequence
 from typing import Any
 
 from .. import validate
+from ..counts import count_step
 from ..pipeline import RecordingAnalysis, analyse
 from ._bootstrap import ProgressCallback
 from ._checks import _check_n_boot
@@ -43,7 +44,9 @@ def fit_recording(
         ``progress(done, total)`` over the bootstrap records of all channels.
     **options
         The keyword arguments of :func:`~sensormodel.identify.fit` (terms, confidence, seed,
-        n_boot, bandwidth, filter_order), the same for every channel.
+        n_boot, bandwidth, filter_order), the same for every channel. Each channel's count step
+        is found from its analysed samples (:func:`sensormodel.counts.count_step`) unless
+        ``count_step`` is given.
 
     Returns
     -------
@@ -64,5 +67,10 @@ def fit_recording(
             def sub(done: int, total: int, k: int = k) -> None:
                 progress(k * total + done, len(analysis) * total)
 
-        out.append(fit(ch.curve, progress=sub, **options))
+        step = None
+        if "count_step" not in options and analysis.recording is not None:
+            found = count_step(analysis.recording.samples(ch.channel, ch.segment))
+            step = None if found is None else found.step
+        extra = {} if "count_step" in options else {"count_step": step}
+        out.append(fit(ch.curve, progress=sub, **options, **extra))
     return out

@@ -18,7 +18,7 @@ from ..errors import AnalysisError
 from ..model import Channel, NoiseModel
 from ..quantities import INSTRUMENT_KIND, SI_LABEL
 from ..terms import Flicker, GaussMarkov, Quantization, Ramp, RandomWalk
-from ._design import _white_term
+from ._design import _basis, _white_term
 from ._readings import SlopeNote
 
 __all__ = ["FittedTerm", "Identification", "LimitTest", "to_model"]
@@ -144,6 +144,23 @@ class Identification:
         precision), ``fit_range_model_departs`` (no range passes the test: the whole curve).
     fit_range_departure : float
         The largest relative departure |AVAR̂/AVAR_fit − 1| of a left-out τ (0 if none).
+    sampling : str
+        How a sample relates to the band-limited white output: ``"average"`` (its mean over
+        the sample period) or ``"point"`` (the filtered output at the sample instant, which
+        aliases the power above rate/2 into the band); ``"average"`` without a filter.
+    white_filter_origin : str or None
+        ``"given"`` (the ``bandwidth`` argument), ``"fitted"`` (not given; the short-τ curve
+        departs from white noise and the filter accounts for it) or None (no filter).
+    sampling_origin : str
+        ``"detected"`` (the short-τ curve tells the two samplings apart) or ``"default"``.
+    count_step : float or None
+        The record's count step [u] where its samples are whole multiples of one
+        (:func:`sensormodel.counts.count_step`), else None.
+    record_reasons : tuple of (str, dict)
+        Reason codes about the record with their numbers (sentences in
+        :data:`sensormodel.report.REASONS`): ``output_filter_fitted``,
+        ``output_filter_not_resolved``, ``sampling_detected``, ``sampling_assumed``,
+        ``count_step_white_floor``, ``count_step_quantization``, ``count_step_coarse``.
     """
 
     channel: str
@@ -165,6 +182,11 @@ class Identification:
     fit_range: tuple[float, float] | None = None
     fit_range_reason: str = "fit_range_full"
     fit_range_departure: float = 0.0
+    sampling: str = "average"
+    white_filter_origin: str | None = None
+    sampling_origin: str = "default"
+    count_step: float | None = None
+    record_reasons: tuple[tuple[str, Mapping[str, Any]], ...] = field(default=(), compare=False)
 
     @property
     def term_reasons(self) -> tuple[tuple[str, Mapping[str, Any]], ...]:
@@ -228,7 +250,17 @@ class Identification:
         tau : array_like
             Averaging times [s], positive.
         """
-        return self._channel(supported_only=False).allan_deviation(tau)
+        avar = self._channel(supported_only=False).allan_deviation(tau) ** 2
+        white = self.term("white")
+        if self.sampling == "point" and self.white_filter is not None and white is not None:
+            # the channel's white term is the period-mean form; point samples have their own
+            wf = (*self.white_filter, "point")
+            t = np.asarray(tau, dtype=np.float64)
+            avar = avar + white.estimate**2 * (
+                _basis("white", t, self.sample_rate, white_filter=wf)
+                - _basis("white", t, self.sample_rate, white_filter=self.white_filter)
+            )
+        return np.sqrt(avar)
 
     def to_channel(self) -> Channel:
         """The identified channel as a :class:`sensormodel.model.Channel`.

@@ -26,6 +26,7 @@ from __future__ import annotations
 import math
 from collections.abc import Mapping
 from functools import lru_cache
+from typing import Any
 
 import numpy as np
 import numpy.typing as npt
@@ -86,7 +87,7 @@ class _Simulator:
         time_constant: float | None,
         n: int,
         rate: float,
-        white_filter: tuple[float, int] | None = None,
+        white_filter: tuple[Any, ...] | None = None,
         fine_rate: float | None = None,
     ) -> None:
         self.n = int(n)
@@ -103,6 +104,11 @@ class _Simulator:
         q = params.get("quantization", 0.0)
         b = params.get("flicker", 0.0)
         s1[1:] += k**2 * dt**2 / 6.0
+        if fold > 1 and white_filter is not None and len(white_filter) > 2:
+            # point-sampled output averaged over d ≥ 2 samples: at the band's τ ≥ 16·d/rate the
+            # coarse means follow the period-mean spectrum at the delivered density (the point
+            # basis is normalised to it); the two differ only near the coarse Nyquist frequency
+            white_filter = white_filter[:2]
         s1[1:] += 2.0 * w**2 * _white_alias_sum(f[1:], self.rate, white_filter)
         s1[1:] += 8.0 * q**2 * self.rate * np.sin(np.pi * f[1:] * dt) ** 2
         if b > 0:
@@ -198,12 +204,15 @@ _ALIASES = 64
 
 
 def _white_alias_sum(
-    f: _FloatArray, rate: float, white_filter: tuple[float, int] | None
+    f: _FloatArray, rate: float, white_filter: tuple[Any, ...] | None
 ) -> _FloatArray:
     """Σ_k |B(f + k·rate)|² sinc²((f + k·rate)/rate) for 0 < f ≤ rate/2 (1 without a filter).
 
     With x = f/rate, sinc²(x + k) = sin²(πx)/(π(x + k))² for every k, so the sum is
     sin²(πx)/π² · Σ_k |B|²/(x + k)², |B(g)|² = 1/(1 + (g/bandwidth)^(2·order)) (Butterworth).
+    ``white_filter`` = (bandwidth, order) or (bandwidth, order, "point"): point samples of the
+    filtered output, Σ_k |B(f + k·rate)|² without the sinc², normalised to 1 at f → 0 (the white
+    parameter is then the delivered density; identify._design's point basis).
     """
     if white_filter is None:
         return np.ones(f.shape)
@@ -212,28 +221,34 @@ def _white_alias_sum(
 
 @lru_cache(maxsize=4)
 def _alias_sum_cached(
-    size: int, f_first: float, f_last: float, rate: float, white_filter: tuple[float, int]
+    size: int, f_first: float, f_last: float, rate: float, white_filter: tuple[Any, ...]
 ) -> _FloatArray:
     from scipy.integrate import quad
     from scipy.interpolate import CubicSpline
 
-    bw, order = white_filter
+    bw, order = white_filter[0], white_filter[1]
+    point = len(white_filter) > 2 and white_filter[2] == "point"
     c = rate / bw
     x = np.linspace(f_first, f_last, size) / rate
     total = np.zeros(size)
     for k in range(-_ALIASES, _ALIASES + 1):
         g = x + k
-        total += 1.0 / (g * g * (1.0 + ((g * c) ** 2) ** order))
+        total += 1.0 / ((1.0 if point else g * g) * (1.0 + ((g * c) ** 2) ** order))
 
     # the aliases beyond ±K by the midpoint rule, Σ_{k>K} h(x + k) ≈ ∫_{K+½}^∞ h(x + t) dt
     # (error ~h'/24 ≈ 3e-7 of the sum at K = 64), the integral G tabulated on [K, K + 1]
     def h(u: float) -> float:
-        return 1.0 / (u * u * (1.0 + (c * u) ** (2 * order)))
+        return 1.0 / ((1.0 if point else u * u) * (1.0 + (c * u) ** (2 * order)))
 
     grid = np.linspace(_ALIASES, _ALIASES + 1.0, 17)
     tail = CubicSpline(grid, [quad(h, u0, np.inf, epsabs=0.0, epsrel=1e-12)[0] for u0 in grid])
     total += tail(_ALIASES + 0.5 + x) + tail(_ALIASES + 0.5 - x)
-    total *= (np.sin(np.pi * x) / np.pi) ** 2
+    if point:  # normalised to 1 at f → 0: the white parameter is the delivered density
+        total /= 1.0 + 2.0 * sum(h(float(k)) for k in range(1, _ALIASES + 1)) + 2.0 * tail(
+            _ALIASES + 0.5
+        )
+    else:
+        total *= (np.sin(np.pi * x) / np.pi) ** 2
     total.setflags(write=False)
     return total
 

@@ -57,6 +57,19 @@ def _term_masked(values: Mapping[str, Any]) -> str:
     return head + "; planned there, where its estimate rests on the model of the other terms"
 
 
+def _sampling_sentence(values: Mapping[str, Any]) -> str:
+    """The sampling assumption of a band-limited white term: detected from the curve or the
+    default."""
+    how = (
+        "means over the sample period"
+        if values["sampling"] == "average"
+        else "point samples of the filtered output"
+    )
+    if "detected" in values.get("origin", ""):
+        return f"the samples are {how} (told from the short-τ curve)"
+    return f"the samples are taken as {how} (the default: the short-τ curve does not tell)"
+
+
 #: The sentence of each reason code: a ``str.format`` template over the reason's values (a
 #: tuple of names is written as a comma-separated list) or a function of the values.
 REASONS: dict[str, str | Callable[[Mapping[str, Any]], str]] = {
@@ -117,6 +130,31 @@ REASONS: dict[str, str | Callable[[Mapping[str, Any]], str]] = {
         "fitted over the whole curve, τ {low:.4g} s to {high:.4g} s, although no range of it "
         "fits the terms within its intervals (worst departure {departure:.0%} of the Allan "
         "variance): read the estimates with care"
+    ),
+    # the record behind an identification (identify.Identification.record_reasons)
+    "output_filter_fitted": (
+        "the short-τ curve lies below white noise: an output filter was fitted, "
+        "{order}-pole Butterworth at {bandwidth:.4g} Hz (no bandwidth was given)"
+    ),
+    "output_filter_not_resolved": (
+        "the short-τ curve lies below the terms, and no 1- or 2-pole output filter describes "
+        "it: those τ are left out of the fit"
+    ),
+    "sampling_detected": _sampling_sentence,
+    "sampling_assumed": _sampling_sentence,
+    "count_step_white_floor": (
+        "integer-coded record, count step {step:.4g} {unit}: its quantization is white noise of "
+        "density {density:.4g} {unit}·√s ({share:.1%} of the fitted white variance), reported "
+        "and not subtracted (it is part of the delivered output)"
+    ),
+    "count_step_quantization": (
+        "integer-coded increments, count step {step:.4g}: quantization Q = step/√12 = "
+        "{coefficient:.4g} (IEEE Std 952 Annex C)"
+    ),
+    "count_step_coarse": (
+        "the count step {step:.4g} {unit} is {ratio:.2g} times the sample-to-sample noise "
+        "({sigma:.4g} {unit}): the quantization error follows the signal, step²/12 is not its "
+        "variance; read the shortest τ with care"
     ),
     # a channel's analysis (pipeline.ChannelAnalysis.reasons; a verdict report's notes)
     "segments_left_out": _segments_left_out,

@@ -306,15 +306,17 @@ def _time_constant_row(ft: Any) -> list[str]:
 
 def identify_notes(ident: Any) -> list[str]:
     """The notes of one identified channel: the τ range fitted where it is not the whole curve,
-    how the slope readings were taken, then the sentences of its fitted terms' reason codes
+    the record's output filter, sampling and count step (``record_reasons``), how the slope
+    readings were taken, then the sentences of its fitted terms' reason codes
     (:data:`REASONS`)."""
     fitted = []
     if ident.fit_range_reason != "fit_range_full" and ident.fit_range is not None:
         low, high = ident.fit_range
         values = {"low": low, "high": high, "departure": ident.fit_range_departure}
         fitted.append(reason_text(ident.fit_range_reason, values))
+    record = [reason_text(code, values) for code, values in ident.record_reasons]
     terms = (reason_text(code, values) for code, values in ident.term_reasons)
-    return [*fitted, *ident.notes, *terms]
+    return [*fitted, *record, *ident.notes, *terms]
 
 
 def _columns(head: list[str], rows: list[list[str]], indent: str = "  ") -> list[str]:
