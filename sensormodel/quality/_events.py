@@ -1,0 +1,282 @@
+"""Steps and spikes, and their exclusion as short gaps (private to :mod:`sensormodel.quality`).
+
+Rules (stated; the thresholds are in the results):
+
+* **Spikes**: the Hampel identifier in its moving-window form (F. R. Hampel, J. Amer. Statist.
+  Assoc. 69 (1974) 383-393; R. K. Pearson, "Outliers in process modeling and identification",
+  IEEE Trans. Control Syst. Technol. 10 (2002) 55-63): r_i = y_i − median(y_{i−h} … y_{i+h})
+  (h = 5 by default), σ̂ = 1.4826·MAD(r) over the record; a sample with |r_i| > c·σ̂ is a
+  spike sample, c the Bonferroni threshold for the n samples at the false-alarm probability
+  (default 1 %, so a clean Gaussian record raises a false spike at most about that often).
+  Spike samples closer than h are one event. A moving median follows a step, so a step is
+  not a spike.
+* **Steps**: the two-window mean test on the record with its spikes replaced by the moving
+  median: d_i = mean(y_i … y_{i+w−1}) − mean(y_{i−w} … y_{i−1}) at every sample boundary i,
+  w samples of ``step_window`` seconds (default 10 s). Its variance is exactly 2σ²_A(w/rate),
+  the Allan variance at the window length (NIST SP 1065 §5.2.2), for any of the noise types,
+  so d_i/(√2 σ_A) is a standard normal statistic: from the noise model when given, else from
+  the record (1.4826·MAD of the non-overlapping d, over √2, robust to the few steps). A step is
+  a run of |d_i| above the Bonferroni threshold for the n boundaries; its position is the
+  boundary of largest |d_i|, its size d_i there.
+
+Positions are 0-based sample indices in the array given, and times from its start plus
+``start_time``; the caller adds a segment's offset and turns indices into file lines.
+"""
+
+from __future__ import annotations
+
+import math
+from dataclasses import dataclass, field
+from typing import Any
+
+import numpy as np
+
+from .. import validate
+from ..errors import AnalysisError
+from ._windows import (
+    Reason,
+    as_record,
+    bonferroni_threshold,
+    mean_sigma,
+    robust_sigma,
+    window_samples,
+)
+
+__all__ = ["Event", "Events", "detect_events", "exclusion_mask", "clean_segments"]
+
+#: Half width h of the moving median of the spike rule [samples].
+SPIKE_HALF_WIDTH = 5
+#: Window of the step test [s].
+DEFAULT_STEP_WINDOW = 10.0
+
+
+@dataclass(frozen=True)
+class Event:
+    """A spike or a step.
+
+    Attributes
+    ----------
+    kind : str
+        ``spike`` or ``step``.
+    index : int
+        First sample of a spike; the first sample after a step [0-based].
+    length : int
+        Samples of a spike; 0 for a step.
+    time : float
+        Time of ``index`` [s] (``start_time`` + index/rate).
+    size : float
+        A spike's largest departure from the moving median; a step's change of level [unit].
+    statistic : float
+        |size| over its noise (σ̂ of the residual for a spike, √2 σ_A for a step) [-].
+    """
+
+    kind: str
+    index: int
+    length: int
+    time: float
+    size: float
+    statistic: float
+
+
+@dataclass(frozen=True)
+class Events:
+    """The spikes and steps of a record and the rules' numbers.
+
+    Attributes
+    ----------
+    spikes, steps : tuple of Event
+    spike_threshold, step_threshold : float
+        The Bonferroni thresholds [-].
+    spike_sigma : float
+        σ̂ of the Hampel residual [unit].
+    step_sigma : float
+        √2·σ_A(step window), the noise of d_i [unit].
+    step_sigma_source : str
+        ``model`` or ``record``.
+    half_width : int
+        h of the moving median [samples].
+    step_window : int
+        w [samples].
+    reasons : tuple
+        ``spikes_found`` and ``steps_found`` where there are any.
+    """
+
+    spikes: tuple[Event, ...]
+    steps: tuple[Event, ...]
+    spike_threshold: float
+    step_threshold: float
+    spike_sigma: float
+    step_sigma: float
+    step_sigma_source: str
+    half_width: int
+    step_window: int
+    reasons: tuple[Reason, ...] = field(default=())
+
+
+def _runs(flags: np.ndarray, join: int) -> list[tuple[int, int]]:
+    """(start, stop) of the runs of True, runs closer than ``join`` samples merged."""
+    idx = np.flatnonzero(flags)
+    if idx.size == 0:
+        return []
+    breaks = np.flatnonzero(np.diff(idx) > join)
+    starts = np.concatenate([[idx[0]], idx[breaks + 1]])
+    stops = np.concatenate([idx[breaks], [idx[-1]]]) + 1
+    return [(int(a), int(b)) for a, b in zip(starts, stops, strict=True)]
+
+
+def _spikes(
+    arr: np.ndarray, h: int, false_alarm: float
+) -> tuple[np.ndarray, list[tuple[int, int]], float, float, np.ndarray]:
+    """Moving median, spike runs, σ̂, threshold, residual."""
+    from scipy.ndimage import median_filter
+
+    med = median_filter(arr, size=2 * h + 1, mode="nearest")
+    r = arr - med
+    sigma = robust_sigma(r)
+    if sigma <= 0.0:  # integer counts whose residual is mostly 0
+        sigma = float(np.std(r))
+    threshold = bonferroni_threshold(false_alarm, arr.shape[0])
+    flags = np.abs(r) > threshold * sigma if sigma > 0.0 else np.zeros(arr.shape, bool)
+    return med, _runs(flags, h), sigma, threshold, r
+
+
+def _steps(
+    clean: np.ndarray, w: int, sigma_d: float, threshold: float
+) -> list[tuple[int, float, float]]:
+    """(index, size, statistic) of each step of the two-window test."""
+    c = np.concatenate([[0.0], np.cumsum(clean - float(np.mean(clean)))])
+    i = np.arange(w, clean.shape[0] - w + 1)
+    d = (c[i + w] - 2.0 * c[i] + c[i - w]) / w
+    out = []
+    for a, b in _runs(np.abs(d) > threshold * sigma_d, w):
+        j = a + int(np.argmax(np.abs(d[a:b])))
+        out.append((int(i[j]), float(d[j]), abs(float(d[j])) / sigma_d))
+    return out
+
+
+def detect_events(
+    y: Any,
+    rate: float,
+    *,
+    model: Any = None,
+    start_time: float = 0.0,
+    half_width: int = SPIKE_HALF_WIDTH,
+    step_window: float = DEFAULT_STEP_WINDOW,
+    false_alarm: float = 0.01,
+) -> Events:
+    """Spikes (Hampel identifier) and steps (two-window mean test) of a record; the rules of
+    the module notes.
+
+    Parameters
+    ----------
+    y : array_like
+        Rate samples of one clean segment [unit], finite.
+    rate : float
+        Sample rate [Hz].
+    model : sensormodel.model.Channel, optional
+        Noise model: σ_A at the step window from its exact Allan variance.
+    start_time : float
+        Time of the first sample [s].
+    half_width : int
+        h of the moving median [samples] (default 5).
+    step_window : float
+        w of the step test [s] (default 10 s; at most a quarter of the record).
+    false_alarm : float
+        Probability of a false spike, and of a false step, on a clean Gaussian record
+        (Bonferroni bound; default 0.01).
+
+    Returns
+    -------
+    Events
+
+    Raises
+    ------
+    AnalysisError
+        Fewer than 4 step windows in the record, a bad rate, width or probability.
+    """
+    rate = validate.rate(rate)
+    h = validate.whole_number(half_width, "half_width")
+    arr = as_record(y)
+    n = arr.shape[0]
+    w = window_samples(step_window, rate, n, "step_window")
+    if n < 4 * w:
+        raise AnalysisError(
+            f"{n} samples hold fewer than 4 step windows of {w} samples",
+            "a shorter step_window or a longer record",
+            field="step_window",
+        )
+    med, runs, sigma, spike_thr, r = _spikes(arr, h, false_alarm)
+    clean = arr.copy()
+    spikes = []
+    for a, b in runs:
+        clean[a:b] = med[a:b]
+        j = a + int(np.argmax(np.abs(r[a:b])))
+        size = float(r[j])
+        spikes.append(Event("spike", a, b - a, start_time + a / rate, size, abs(size) / sigma))
+    if model is not None:
+        sigma_a, source = mean_sigma(clean, rate, w, model)
+    else:
+        c = np.concatenate([[0.0], np.cumsum(clean - float(np.mean(clean)))])
+        i = np.arange(w, n - w + 1, 2 * w)
+        sigma_a = robust_sigma((c[i + w] - 2.0 * c[i] + c[i - w]) / w) / math.sqrt(2.0)
+        source = "record"
+    sigma_d = math.sqrt(2.0) * sigma_a
+    step_thr = bonferroni_threshold(false_alarm, n - 2 * w + 1)
+    steps = [
+        Event("step", i, 0, start_time + i / rate, size, stat)
+        for i, size, stat in (_steps(clean, w, sigma_d, step_thr) if sigma_d > 0 else [])
+    ]
+    reasons: list[Reason] = []
+    if spikes:
+        reasons.append(("spikes_found", _found(spikes, spike_thr)))
+    if steps:
+        reasons.append(("steps_found", _found(steps, step_thr)))
+    return Events(
+        tuple(spikes),
+        tuple(steps),
+        spike_thr,
+        step_thr,
+        sigma,
+        sigma_d,
+        source,
+        h,
+        w,
+        tuple(reasons),
+    )
+
+
+def _found(events: list[Event], threshold: float) -> dict[str, Any]:
+    return {
+        "count": len(events),
+        "indices": tuple(e.index for e in events),
+        "times": tuple(round(e.time, 6) for e in events),
+        "largest": max(e.statistic for e in events),
+        "threshold": threshold,
+    }
+
+
+def exclusion_mask(n: int, events: Events, *, guard: int | None = None) -> np.ndarray:
+    """Samples kept (True) when the events are excluded as short gaps.
+
+    A spike takes its samples and ``guard`` on each side (default the moving median's h); a
+    step the step window w on each side of its position (its place is known to about w), so
+    no cluster of a pooled Allan variance spans the change of level.
+    """
+    keep = np.ones(int(n), dtype=bool)
+    g = events.half_width if guard is None else int(guard)
+    for e in events.spikes:
+        keep[max(0, e.index - g) : e.index + e.length + g] = False
+    for e in events.steps:
+        keep[max(0, e.index - events.step_window) : e.index + events.step_window] = False
+    return keep
+
+
+def clean_segments(keep: np.ndarray, *, min_length: int = 100) -> list[tuple[int, int]]:
+    """(start, stop) of the runs of kept samples of at least ``min_length`` samples (the
+    reader's shortest segment is 100 samples)."""
+    flags = np.asarray(keep, dtype=bool)
+    edges = np.diff(np.concatenate([[0], flags.astype(np.int8), [0]]))
+    starts, stops = np.flatnonzero(edges == 1), np.flatnonzero(edges == -1)
+    return [
+        (int(a), int(b)) for a, b in zip(starts, stops, strict=True) if b - a >= int(min_length)
+    ]
