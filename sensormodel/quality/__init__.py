@@ -12,7 +12,7 @@ and steps excluded as short gaps, to be pooled by :func:`sensormodel.allan.overl
   ``criterion``·σ_A (``_settling``).
 * :func:`temperature_sensitivity` / :func:`remove_temperature`: least-squares slope of the
   channel's window means on the temperature's, its interval from the noise model's variogram
-  (exact for correlated noise) or an AR(1) correction without one (``_temperature``).
+  (exact for correlated noise) or the variogram estimated from the record (``_temperature``).
 * :func:`detect_events` / :func:`exclusion_mask` / :func:`clean_segments`: the Hampel
   identifier for spikes and the two-window mean test (normalized by the Allan deviation at the
   window) for steps, Bonferroni thresholds (``_events``).

@@ -2,17 +2,21 @@
 
 Rules (stated; the thresholds are in the results):
 
-* **Spikes**: the Hampel identifier in its moving-window form (F. R. Hampel, J. Amer. Statist.
-  Assoc. 69 (1974) 383-393; R. K. Pearson, "Outliers in process modeling and identification",
-  IEEE Trans. Control Syst. Technol. 10 (2002) 55-63): r_i = y_i − median(y_{i−h} … y_{i+h})
-  (h = 5 by default), σ̂ = 1.4826·MAD(r) over the record; a sample with |r_i| > c·σ̂ is a
-  spike sample, c the Bonferroni threshold for the n samples at the false-alarm probability
-  (default 1 %, so a clean Gaussian record raises a false spike at most about that often).
-  Spike samples closer than h are one event. A moving median follows a step, so a step is
-  not a spike.
-* **Steps**: the two-window mean test on the record with its spikes replaced by the moving
-  median: d_i = mean(y_i … y_{i+w−1}) − mean(y_{i−w} … y_{i−1}) at every sample boundary i,
-  w samples of ``step_window`` seconds (default 10 s). Its variance is exactly 2σ²_A(w/rate),
+* **Spikes**: a jump and a jump back. The first differences d_i = y_(i+1) − y_i of Gaussian
+  noise are normal (their scale, 1.4826·MAD(d), is consistent for any noise type and robust
+  to the spikes themselves: F. R. Hampel, J. Amer. Statist. Assoc. 69 (1974) 383-393; the
+  outlier rule in the spirit of the Hampel identifier, R. K. Pearson, "Outliers in process
+  modeling and identification", IEEE Trans. Control Syst. Technol. 10 (2002) 55-63). A jump is
+  |d_i| above the Bonferroni threshold for the n − 1 differences at the false-alarm
+  probability (default 1 %); a spike is a jump followed within h samples (default 5) by a
+  jump of the other sign, and its samples are those between them. A false spike needs two
+  false jumps, so the stated probability is a loose upper bound; a step has no jump back and
+  is not a spike. The size is the largest departure from the mean of the samples on either
+  side; the statistic is |size| over σ̂/√2 (the sample σ of white noise).
+* **Steps**: the two-window mean test on the record with its spikes replaced (below):
+  d_i = mean(y_i … y_{i+w−1}) − mean(y_{i−w} … y_{i−1}) at every sample boundary i,
+  w samples of ``step_window`` seconds (default 10 s), spike samples replaced by the straight
+  line between their neighbours. Its variance is exactly 2σ²_A(w/rate),
   the Allan variance at the window length (NIST SP 1065 §5.2.2), for any of the noise types,
   so d_i/(√2 σ_A) is a standard normal statistic: from the noise model when given, else from
   the record (1.4826·MAD of the non-overlapping d, over √2, robust to the few steps). A step is
@@ -44,7 +48,7 @@ from ._windows import (
 
 __all__ = ["Event", "Events", "detect_events", "exclusion_mask", "clean_segments"]
 
-#: Half width h of the moving median of the spike rule [samples].
+#: The longest spike h (a jump back within h samples) [samples].
 SPIKE_HALF_WIDTH = 5
 #: Window of the step test [s].
 DEFAULT_STEP_WINDOW = 10.0
@@ -65,9 +69,9 @@ class Event:
     time : float
         Time of ``index`` [s] (``start_time`` + index/rate).
     size : float
-        A spike's largest departure from the moving median; a step's change of level [unit].
+        A spike's largest departure from its neighbours' mean; a step's change of level [unit].
     statistic : float
-        |size| over its noise (σ̂ of the residual for a spike, √2 σ_A for a step) [-].
+        |size| over its noise (the sample σ for a spike, √2 σ_A for a step) [-].
     """
 
     kind: str
@@ -88,13 +92,13 @@ class Events:
     spike_threshold, step_threshold : float
         The Bonferroni thresholds [-].
     spike_sigma : float
-        σ̂ of the Hampel residual [unit].
+        σ̂ of the first differences [unit].
     step_sigma : float
         √2·σ_A(step window), the noise of d_i [unit].
     step_sigma_source : str
         ``model`` or ``record``.
     half_width : int
-        h of the moving median [samples].
+        h, the longest spike [samples].
     step_window : int
         w [samples].
     reasons : tuple
@@ -126,18 +130,30 @@ def _runs(flags: np.ndarray, join: int) -> list[tuple[int, int]]:
 
 def _spikes(
     arr: np.ndarray, h: int, false_alarm: float
-) -> tuple[np.ndarray, list[tuple[int, int]], float, float, np.ndarray]:
-    """Moving median, spike runs, σ̂, threshold, residual."""
-    from scipy.ndimage import median_filter
-
-    med = median_filter(arr, size=2 * h + 1, mode="nearest")
-    r = arr - med
-    sigma = robust_sigma(r)
-    if sigma <= 0.0:  # integer counts whose residual is mostly 0
-        sigma = float(np.std(r))
-    threshold = bonferroni_threshold(false_alarm, arr.shape[0])
-    flags = np.abs(r) > threshold * sigma if sigma > 0.0 else np.zeros(arr.shape, bool)
-    return med, _runs(flags, h), sigma, threshold, r
+) -> tuple[list[tuple[int, int, float]], float, float]:
+    """Spike runs (start, stop, size), σ̂ of the first differences, threshold (module notes)."""
+    d = np.diff(arr)
+    sigma = robust_sigma(d)
+    if sigma <= 0.0:  # integer counts whose differences are mostly 0
+        sigma = float(np.std(d))
+    threshold = bonferroni_threshold(false_alarm, d.shape[0])
+    if sigma <= 0.0:
+        return [], sigma, threshold
+    jumps = np.flatnonzero(np.abs(d) > threshold * sigma)
+    runs: list[tuple[int, int, float]] = []
+    k = 0
+    while k < jumps.size:
+        i = int(jumps[k])
+        back = [int(j) for j in jumps[k + 1 :] if j <= i + h and np.sign(d[j]) != np.sign(d[i])]
+        if not back:
+            k += 1
+            continue
+        j = back[0]
+        base = 0.5 * (arr[i] + arr[j + 1])
+        part = arr[i + 1 : j + 1] - base
+        runs.append((i + 1, j + 1, float(part[int(np.argmax(np.abs(part)))])))
+        k = int(np.searchsorted(jumps, j, side="right"))
+    return runs, sigma, threshold
 
 
 def _steps(
@@ -164,7 +180,7 @@ def detect_events(
     step_window: float = DEFAULT_STEP_WINDOW,
     false_alarm: float = 0.01,
 ) -> Events:
-    """Spikes (Hampel identifier) and steps (two-window mean test) of a record; the rules of
+    """Spikes (a jump and a jump back) and steps (two-window mean test) of a record; the rules of
     the module notes.
 
     Parameters
@@ -178,7 +194,7 @@ def detect_events(
     start_time : float
         Time of the first sample [s].
     half_width : int
-        h of the moving median [samples] (default 5).
+        The longest spike h [samples] (default 5).
     step_window : float
         w of the step test [s] (default 10 s; at most a quarter of the record).
     false_alarm : float
@@ -205,14 +221,13 @@ def detect_events(
             "a shorter step_window or a longer record",
             field="step_window",
         )
-    med, runs, sigma, spike_thr, r = _spikes(arr, h, false_alarm)
+    runs, sigma, spike_thr = _spikes(arr, h, false_alarm)
     clean = arr.copy()
     spikes = []
-    for a, b in runs:
-        clean[a:b] = med[a:b]
-        j = a + int(np.argmax(np.abs(r[a:b])))
-        size = float(r[j])
-        spikes.append(Event("spike", a, b - a, start_time + a / rate, size, abs(size) / sigma))
+    for a, b, size in runs:
+        clean[a:b] = np.linspace(arr[a - 1], arr[b], b - a + 2)[1:-1]
+        stat = abs(size) / (sigma / math.sqrt(2.0))
+        spikes.append(Event("spike", a, b - a, start_time + a / rate, size, stat))
     if model is not None:
         sigma_a, source = mean_sigma(clean, rate, w, model)
     else:
@@ -258,7 +273,7 @@ def _found(events: list[Event], threshold: float) -> dict[str, Any]:
 def exclusion_mask(n: int, events: Events, *, guard: int | None = None) -> np.ndarray:
     """Samples kept (True) when the events are excluded as short gaps.
 
-    A spike takes its samples and ``guard`` on each side (default the moving median's h); a
+    A spike takes its samples and ``guard`` on each side (default h, the longest spike); a
     step the step window w on each side of its position (its place is known to about w), so
     no cluster of a pooled Allan variance spans the change of level.
     """

@@ -44,6 +44,7 @@ from ._windows import (
     as_record,
     bonferroni_threshold,
     mean_sigma,
+    record_variogram,
     window_means,
     window_samples,
 )
@@ -113,14 +114,7 @@ def _variogram(tail: np.ndarray, tau: float, model: Any, sigma: float, count: in
     if model is not None:
         d = window_variogram(model, tau, lags)
     else:
-        j = np.arange(1, max(2, tail.shape[0] // 2) + 1)
-        est = np.array([np.mean((tail[i:] - tail[:-i]) ** 2) for i in j])
-        x = np.log(j.astype(float))
-        weight = tail.shape[0] - j
-        slope = max(
-            0.0, float(np.sum(weight * x * (est - 2.0 * sigma**2)) / np.sum(weight * x * x))
-        )
-        d = 2.0 * sigma**2 + slope * np.log(np.maximum(np.arange(count + 1), 1.0))
+        d = record_variogram(tail, sigma, count)
     d[0] = 0.0
     return d
 

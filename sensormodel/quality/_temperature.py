@@ -21,12 +21,11 @@ D(h) = ∫₀^∞ S(f)·sinc²(fτ)·2(1 − cos 2πfh) df (τ the window length
 Allan variance, IEEE Std 952-1997 Annex C). Gaussian noise makes b̂ normal: the interval is
 b̂ ± Φ⁻¹((1 + c)/2)·√Var(b̂).
 
-Interval, without a model: the residuals' lag-1 autocorrelation r₁ shrinks the number of
-windows to n_eff = n(1 − r₁)/(1 + r₁) (B. D. Santer et al., "Statistical significance of trends
-and trend differences in layer-average atmospheric temperature time series", J. Geophys. Res.
-105 (2000) 7337-7356, from memory) and Student's t with n_eff − 2 degrees of freedom is used.
-This is approximate for flicker noise, whose correlation is longer than one lag (reason
-``temperature_interval_approximate``).
+Interval, without a model: the same variance with the variogram estimated from the
+regression's residual window means (:func:`record_variogram`: 2σ²_A + b·ln j, the form of white
+plus flicker noise, fitted to the classical estimator), reason
+``temperature_interval_approximate``: the estimated long-lag variogram is uncertain, and
+random-walk rate noise is outside the form.
 """
 
 from __future__ import annotations
@@ -40,7 +39,15 @@ import numpy as np
 from .. import validate
 from ..confidence import DECISION_CONFIDENCE
 from ..errors import AnalysisError
-from ._windows import Reason, as_record, normal_quantile, window_means, window_samples
+from ._windows import (
+    Reason,
+    as_record,
+    normal_quantile,
+    record_variogram,
+    robust_sigma,
+    window_means,
+    window_samples,
+)
 
 __all__ = [
     "TemperatureEffect",
@@ -69,7 +76,7 @@ class TemperatureEffect:
     standard_error : float
         √Var(b̂) [unit/K].
     basis : str
-        ``noise_model`` (the variogram of the model) or ``residual_ar1`` (no model).
+        ``noise_model`` (the variogram of the model) or ``record_variogram`` (no model).
     window : float
         Window length [s].
     n_windows : int
@@ -181,8 +188,8 @@ def temperature_sensitivity(
     rate : float
         Sample rate [Hz].
     model : sensormodel.model.Channel, optional
-        The channel's noise model: the interval from its variogram (else the approximate
-        AR(1) interval).
+        The channel's noise model: the interval from its variogram (else from the variogram
+        estimated from the record, approximate).
     window : float, optional
         Window of the low-pass means [s] (default: the record in 100 windows).
     confidence : float
@@ -245,16 +252,14 @@ def temperature_sensitivity(
         half = normal_quantile(0.5 * (1.0 + c)) * se
         basis = "noise_model"
     else:
-        from scipy.stats import t as student
-
-        resid = ym - float(np.mean(ym)) - b * dt
-        r1 = float(resid[1:] @ resid[:-1] / (resid @ resid)) if resid @ resid > 0 else 0.0
-        r1 = min(max(r1, 0.0), 0.99)
-        n_eff = max(3.0, k * (1.0 - r1) / (1.0 + r1))
-        se = math.sqrt(float(resid @ resid) / (k - 2) / s_tt * k / n_eff)
-        half = float(student.ppf(0.5 * (1.0 + c), n_eff - 2.0)) * se
-        basis = "residual_ar1"
-        reasons.append(("temperature_interval_approximate", {"lag1": r1, "n_eff": n_eff}))
+        resid = ym - b * dt
+        sigma = robust_sigma(np.diff(resid)) / math.sqrt(2.0)
+        d = record_variogram(resid, sigma, k)
+        lag = np.abs(np.arange(k)[:, None] - np.arange(k)[None, :])
+        se = math.sqrt(max(0.0, -0.5 * float(w @ d[lag] @ w)))
+        half = normal_quantile(0.5 * (1.0 + c)) * se
+        basis = "record_variogram"
+        reasons.append(("temperature_interval_approximate", {"windows": k}))
     low, high = b - half, b + half
     values = {
         "sensitivity": b,

@@ -100,3 +100,20 @@ def bonferroni_threshold(false_alarm: Any, tests: int) -> float:
     with probability at most ``false_alarm`` (Bonferroni's inequality)."""
     alpha = validate.probability(false_alarm, "false_alarm", example="0.01")
     return normal_quantile(1.0 - alpha / (2.0 * max(1, int(tests))))
+
+
+def record_variogram(means: np.ndarray, sigma: float, count: int) -> np.ndarray:
+    """D(jτ), j = 0 … count, of consecutive window means estimated from the record: the form
+    of white plus flicker noise, 2σ²_A + b·ln j (b ≥ 0), its b fitted by least squares weighted
+    by the pair counts to the classical estimator (G. Matheron 1963: the mean squared difference
+    at each lag j up to half the windows); D(0) = 0. Random-walk rate noise is not in the form
+    (its variogram grows like j): an approximation, stated by the callers' reasons."""
+    k = means.shape[0]
+    j = np.arange(1, max(2, k // 2) + 1)
+    est = np.array([np.mean((means[i:] - means[:-i]) ** 2) for i in j])
+    x = np.log(j.astype(float))
+    weight = k - j
+    slope = float(np.sum(weight * x * (est - 2.0 * sigma**2)) / np.sum(weight * x * x))
+    d = 2.0 * sigma**2 + max(0.0, slope) * np.log(np.maximum(np.arange(count + 1), 1.0))
+    d[0] = 0.0
+    return d
