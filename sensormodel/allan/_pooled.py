@@ -8,7 +8,8 @@ that straddles a gap is not (its phase difference spans unknown samples, and a l
 across the gap would enter it). The pooled estimate takes every valid cluster of every segment:
 
     AVAR(τ = m τ0) = Σ_s Σ_i (x_s[i+2m] − 2 x_s[i+m] + x_s[i])² / (2 m² τ0² Σ_s M_s),
-    M_s = N_s − 2m  (N_s = n_s + 1 phase points of segment s; segments with M_s < 1 give none)
+    M_s = N_s − 2m  (N_s = n_s + 1 phase points of segment s; as in the engine, a segment
+    enters at a τ where it holds at least two clusters, M_s ≥ 2)
 
 the overlapping estimator of NIST SP 1065 eq. (11) with the sum running over the clusters that
 the gaps leave whole. This is the "gap-skipping" treatment of missing data in the Allan
@@ -101,7 +102,7 @@ def pooled_sums(
         Σ_s Σ_i (x_s[i+2m] − 2x_s[i+m] + x_s[i])² per m [unit²·s²] (from
         :func:`sensormodel.allan.second_difference_sums`, the engine's one kernel).
     counts : ndarray of int
-        Σ_s max(0, N_s − 2m) per m: the clusters in the sum.
+        Σ_s (N_s − 2m) over the segments with N_s − 2m ≥ 2, per m: the clusters in the sum.
     """
     mlist = np.asarray(ms, dtype=np.int64)
     sums = np.zeros(mlist.shape[0])
@@ -109,7 +110,7 @@ def pooled_sums(
     buf = aligned_scratch(_BLOCK)
     for i, seg in enumerate(_segments(segments)):
         n_phase = seg.shape[0] + 1
-        fits = mlist[n_phase - 2 * mlist >= 1]
+        fits = mlist[n_phase - 2 * mlist >= 2]
         if fits.size == 0:
             continue
         arr = _as_samples(seg, f"segments[{i}]")
@@ -127,7 +128,7 @@ def _pooled_edf(lengths: list[int], ms: np.ndarray, alphas: np.ndarray) -> np.nd
         total, denom = 0.0, 0.0
         for n in lengths:
             big_m = n + 1 - 2 * int(m)
-            if big_m < 1:
+            if big_m < 2:
                 continue
             total += big_m
             denom += big_m * big_m / edf_cached(int(a), int(m), n + 1)

@@ -13,9 +13,10 @@ and steps excluded as short gaps, to be pooled by :func:`sensormodel.allan.overl
 * :func:`temperature_sensitivity` / :func:`remove_temperature`: least-squares slope of the
   channel's window means on the temperature's, its interval from the noise model's variogram
   (exact for correlated noise) or the variogram estimated from the record (``_temperature``).
-* :func:`detect_events` / :func:`exclusion_mask` / :func:`clean_segments`: the Hampel
-  identifier for spikes and the two-window mean test (normalized by the Allan deviation at the
-  window) for steps, Bonferroni thresholds (``_events``).
+* :func:`detect_events` / :func:`exclusion_mask` / :func:`clean_segments`: a jump and a
+  jump back (robust scale of the first differences) for spikes, the two-window mean test
+  (normalized by the Allan deviation at the window) for steps, Bonferroni thresholds
+  (``_events``).
 * :func:`assess` → :class:`RecordQuality`: all three on one channel (``_record``).
 
 Computation is in the channel's unit (SI from a :class:`~sensormodel.recording.Recording`);
