@@ -95,7 +95,6 @@ def test_pooled_within_the_unbroken_interval():
         assert np.all(pooled.edf >= longest.edf * (1 - 1e-9))
         same = pooled.noise_alpha == unbroken.noise_alpha  # the EDF depends on the type
         assert np.all(pooled.edf[same] <= unbroken.edf[same] * 1.05)
-    print("inside", np.sum(inside), len(inside))
     assert np.mean(inside) >= 0.9, (np.sum(inside), len(inside))
 
 

@@ -21,7 +21,9 @@ Rules (stated; the thresholds are in the results):
   so d_i/(√2 σ_A) is a standard normal statistic: from the noise model when given, else from
   the record (1.4826·MAD of the non-overlapping d, over √2, robust to the few steps). A step is
   a run of |d_i| above the Bonferroni threshold for the n boundaries; its position is the
-  boundary of largest |d_i|, its size d_i there.
+  boundary of largest |d_i|; its size the difference of the means over up to ten windows on
+  each side (short of the neighbouring steps), which is more precise than d_i where white
+  noise dominates.
 
 Positions are 0-based sample indices in the array given, and times from its start plus
 ``start_time``; the caller adds a segment's offset and turns indices into file lines.
@@ -46,7 +48,15 @@ from ._windows import (
     window_samples,
 )
 
-__all__ = ["Event", "Events", "detect_events", "exclusion_mask", "clean_segments"]
+__all__ = [
+    "Event",
+    "Events",
+    "detect_events",
+    "exclusion_mask",
+    "clean_segments",
+    "levelled",
+    "found_values",
+]
 
 #: The longest spike h (a jump back within h samples) [samples].
 SPIKE_HALF_WIDTH = 5
@@ -69,7 +79,8 @@ class Event:
     time : float
         Time of ``index`` [s] (``start_time`` + index/rate).
     size : float
-        A spike's largest departure from its neighbours' mean; a step's change of level [unit].
+        A spike's largest departure from its neighbours' mean; a step's change of level (means
+        over up to ten step windows on each side) [unit].
     statistic : float
         |size| over its noise (the sample σ for a spike, √2 σ_A for a step) [-].
     """
@@ -237,15 +248,20 @@ def detect_events(
         source = "record"
     sigma_d = math.sqrt(2.0) * sigma_a
     step_thr = bonferroni_threshold(false_alarm, n - 2 * w + 1)
-    steps = [
-        Event("step", i, 0, start_time + i / rate, size, stat)
-        for i, size, stat in (_steps(clean, w, sigma_d, step_thr) if sigma_d > 0 else [])
-    ]
+    found = _steps(clean, w, sigma_d, step_thr) if sigma_d > 0 else []
+    places = [0] + [i for i, _, _ in found] + [n]
+    steps = []
+    for k, (i, _, stat) in enumerate(found):
+        # the size from means over up to ten windows on each side, short of the next steps
+        before = max(places[k], i - 10 * w)
+        after = min(places[k + 2], i + 10 * w)
+        size = float(np.mean(clean[i:after]) - np.mean(clean[before:i]))
+        steps.append(Event("step", i, 0, start_time + i / rate, size, stat))
     reasons: list[Reason] = []
     if spikes:
-        reasons.append(("spikes_found", _found(spikes, spike_thr)))
+        reasons.append(("spikes_found", found_values(spikes, spike_thr)))
     if steps:
-        reasons.append(("steps_found", _found(steps, step_thr)))
+        reasons.append(("steps_found", found_values(steps, step_thr)))
     return Events(
         tuple(spikes),
         tuple(steps),
@@ -260,7 +276,7 @@ def detect_events(
     )
 
 
-def _found(events: list[Event], threshold: float) -> dict[str, Any]:
+def found_values(events: list[Event], threshold: float) -> dict[str, Any]:
     return {
         "count": len(events),
         "indices": tuple(e.index for e in events),
@@ -268,6 +284,19 @@ def _found(events: list[Event], threshold: float) -> dict[str, Any]:
         "largest": max(e.statistic for e in events),
         "threshold": threshold,
     }
+
+
+def levelled(y: Any, events: Events) -> np.ndarray:
+    """A copy of the record with its spikes replaced by the straight line between their
+    neighbours and each step's change of level taken off the samples after it: the record the
+    slow tests (settling, temperature) are run on, so that a bump is not read as a drift."""
+    arr = np.array(y, dtype=np.float64)
+    for e in events.spikes:
+        a, b = e.index, e.index + e.length
+        arr[a:b] = np.linspace(arr[a - 1], arr[min(b, arr.shape[0] - 1)], b - a + 2)[1:-1]
+    for e in events.steps:
+        arr[e.index :] -= e.size
+    return arr
 
 
 def exclusion_mask(n: int, events: Events, *, guard: int | None = None) -> np.ndarray:

@@ -18,6 +18,8 @@ from ._events import (
     clean_segments,
     detect_events,
     exclusion_mask,
+    found_values,
+    levelled,
 )
 from ._settling import (
     DEFAULT_SETTLING_WINDOW,
@@ -92,30 +94,27 @@ class RecordQuality:
         return [self.samples[a:b] for a, b in self.segments]
 
 
-def _shift(events: Events, offset: int, rate: float) -> Events:
-    """Events of a trimmed record in the whole record's indices and times."""
-
-    def move(e: Any) -> Any:
-        return dataclasses.replace(e, index=e.index + offset, time=e.time + offset / rate)
-
-    spikes = tuple(move(e) for e in events.spikes)
-    steps = tuple(move(e) for e in events.steps)
-    reasons = tuple(
-        (
-            code,
-            dict(
-                v,
-                indices=tuple(i + offset for i in v["indices"]),
-                times=tuple(round(t + offset / rate, 6) for t in v["times"]),
-            ),
-        )
-        for code, v in events.reasons
-    )
-    return dataclasses.replace(events, spikes=spikes, steps=steps, reasons=reasons)
+def _after(events: Events, start: int, rate: float) -> Events:
+    """The events from sample ``start`` on (those in a trimmed warm-up dropped), their
+    reasons rebuilt."""
+    spikes = tuple(e for e in events.spikes if e.index >= start)
+    steps = tuple(e for e in events.steps if e.index >= start)
+    reasons: list[Reason] = []
+    if spikes:
+        reasons.append(("spikes_found", found_values(list(spikes), events.spike_threshold)))
+    if steps:
+        reasons.append(("steps_found", found_values(list(steps), events.step_threshold)))
+    return dataclasses.replace(events, spikes=spikes, steps=steps, reasons=tuple(reasons))
 
 
 def _settling(
-    arr: np.ndarray, rate: float, trim: Any, model: Any, window: float, false_alarm: float
+    arr: np.ndarray,
+    rate: float,
+    trim: Any,
+    model: Any,
+    window: float,
+    false_alarm: float,
+    temp: np.ndarray | None,
 ) -> tuple[int, Settling | None, list[Reason]]:
     """The trim and the settling detection (judged wherever the record is long enough)."""
     reasons: list[Reason] = []
@@ -126,10 +125,12 @@ def _settling(
                 None,
                 [("settling_not_judged", {"duration": arr.shape[0] / rate, "window": window})],
             )
-        found = detect_settling(arr, rate, model=model, window=window, false_alarm=false_alarm)
+        found = detect_settling(
+            arr, rate, model=model, window=window, false_alarm=false_alarm, temperature=temp
+        )
         return 0, found, list(found.reasons)
     start, found = settling_trim(
-        arr, rate, trim, model=model, window=window, false_alarm=false_alarm
+        arr, rate, trim, model=model, window=window, false_alarm=false_alarm, temperature=temp
     )
     if found is not None:
         reasons.extend(found.reasons)
@@ -161,11 +162,12 @@ def assess(
 ) -> RecordQuality:
     """Judge one channel's static record and prepare it for the Allan analysis.
 
-    In order: the warm-up (:func:`detect_settling`; cut with ``trim``), the temperature
-    sensitivity on what remains (:func:`temperature_sensitivity`; removed with
-    ``remove_temperature_effect``), spikes and steps (:func:`detect_events`; excluded as short
-    gaps with ``exclude_events``, leaving clean segments for
-    :func:`sensormodel.allan.overlapping_pooled`).
+    In order: spikes and steps (:func:`detect_events`), the warm-up (:func:`detect_settling` on
+    the record with its spikes and steps levelled and the temperature as a second regressor;
+    cut with ``trim``), the temperature sensitivity on what remains
+    (:func:`temperature_sensitivity`, levelled too; removed with ``remove_temperature_effect``),
+    and the events after the trim excluded as short gaps with ``exclude_events``, leaving clean
+    segments for :func:`sensormodel.allan.overlapping_pooled`.
 
     Parameters
     ----------
@@ -219,50 +221,40 @@ def assess(
             "a temperature column (or no removal)",
             field="temperature",
         )
-    start, settling, reasons = _settling(arr, rate, trim, model, settling_window, false_alarm)
-    kept = arr[start:]
+    temp = None if temperature is None else as_record(temperature, "temperature")
+    if temp is not None and temp.shape[0] != n:
+        raise AnalysisError(
+            f"the temperature has {temp.shape[0]} samples, the channel {n}",
+            "one temperature per sample",
+            field="temperature",
+        )
+    # events first: a step is not a transient, and a slow transient or a temperature drift
+    # does not disturb the two-window test
+    found = detect_events(
+        arr, rate, model=model,
+        start_time=start_time, step_window=step_window, false_alarm=false_alarm,
+    )  # fmt: skip
+    level = levelled(arr, found)
+    start, settling, reasons = _settling(
+        level, rate, trim, model, settling_window, false_alarm, temp
+    )  # fmt: skip
+    events = _after(found, start, rate)
     samples = arr
     effect = None
     removed = False
-    if temperature is not None:
-        temp = as_record(temperature, "temperature")
-        if temp.shape[0] != n:
-            raise AnalysisError(
-                f"the temperature has {temp.shape[0]} samples, the channel {n}",
-                "one temperature per sample",
-                field="temperature",
-            )
+    if temp is not None:
         effect = temperature_sensitivity(
-            kept,
-            temp[start:],
-            rate,
-            model=model,
-            window=temperature_window,
-            confidence=confidence,
-            datasheet=datasheet_sensitivity,
-            unit=unit,
-        )
+            level[start:], temp[start:], rate, model=model, window=temperature_window,
+            confidence=confidence, datasheet=datasheet_sensitivity, unit=unit,
+        )  # fmt: skip
         reasons.extend(effect.reasons)
         if remove_temperature_effect:
             samples = arr.copy()
-            samples[start:] = remove_temperature(kept, temp[start:], rate, effect)
-            kept = samples[start:]
+            samples[start:] = remove_temperature(arr[start:], temp[start:], rate, effect)
             removed = True
             reasons.append(
                 ("temperature_removed", {"sensitivity": effect.sensitivity, "unit": unit})
             )
-    events = _shift(
-        detect_events(
-            kept,
-            rate,
-            model=model,
-            start_time=start_time,
-            step_window=step_window,
-            false_alarm=false_alarm,
-        ),
-        start,
-        rate,
-    )
     reasons.extend(events.reasons)
     if exclude_events and (events.spikes or events.steps):
         keep = exclusion_mask(n, events)

@@ -18,7 +18,9 @@ Criterion (stated; the reasons carry its numbers):
    standard normal statistic z(T) = Â/se(Â) when there is no transient. A transient is
    **detected** when max |z(T)| over a log grid of T (half a window to half the record)
    exceeds the Bonferroni threshold for the grid at the false-alarm probability
-   ``false_alarm`` (default 1 %; conservative, the z(T) being strongly correlated).
+   ``false_alarm`` (default 1 %; conservative, the z(T) being strongly correlated). With a
+   temperature column, the differences of its window means are a second regressor of the same
+   generalized least squares, so a linear temperature effect is not read as a transient.
 3. T̂ is the T of largest |z| (the maximum-likelihood T for the given noise), Â its amplitude.
    The **settling time** is when the fitted transient has decayed to ``criterion`` (default 1)
    times σ_A: t_s = T̂·ln(|Â|/(criterion·σ_A)), i.e. when it is no larger than the noise of
@@ -126,24 +128,48 @@ def _difference_covariance(d: np.ndarray, k: int) -> np.ndarray:
 
 
 def _gls_profile(
-    means: np.ndarray, centres: np.ndarray, cov: np.ndarray, grid: np.ndarray
-) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
-    """z(T) and Â(T) on the grid of T, and the Cholesky factor of ``cov`` (module notes)."""
+    means: np.ndarray,
+    centres: np.ndarray,
+    cov: np.ndarray,
+    grid: np.ndarray,
+    temps: np.ndarray | None,
+) -> tuple[np.ndarray, np.ndarray, np.ndarray, np.ndarray]:
+    """z(T), Â(T) and the temperature coefficient ĉ(T) on the grid of T, and the Cholesky
+    factor of ``cov`` (module notes); with ``temps`` the temperature's window means are a
+    second regressor, so that a temperature drift is not read as a transient."""
     from scipy.linalg import cho_solve, cholesky
 
-    factor = cholesky(cov + np.eye(cov.shape[0]) * 1e-12 * np.trace(cov) / cov.shape[0],
-                      lower=True)  # fmt: skip
+    jitter = np.eye(cov.shape[0]) * 1e-12 * np.trace(cov) / cov.shape[0]
+    factor = cholesky(cov + jitter, lower=True)
     diffs = np.diff(means)
     z = np.empty(grid.shape[0])
     amp = np.empty(grid.shape[0])
+    coef = np.zeros(grid.shape[0])
     for i, tc in enumerate(grid):
-        dg = np.diff(np.exp(-centres / tc))
-        a = cho_solve((factor, True), dg)
-        den = float(a @ dg)
-        num = float(a @ diffs)
-        amp[i] = num / den
-        z[i] = num / math.sqrt(den)
-    return z, amp, factor
+        cols = [np.diff(np.exp(-centres / tc))]
+        if temps is not None:
+            cols.append(np.diff(temps))
+        x = np.column_stack(cols)
+        cx = cho_solve((factor, True), x)
+        info = x.T @ cx
+        inv = np.linalg.inv(info)
+        beta = inv @ (cx.T @ diffs)
+        amp[i] = beta[0]
+        z[i] = beta[0] / math.sqrt(inv[0, 0])
+        if temps is not None:
+            coef[i] = beta[1]
+    return z, amp, coef, factor
+
+
+def _temperature_means(temperature: Any, n: int, m: int) -> np.ndarray:
+    temp = as_record(temperature, "temperature")
+    if temp.shape[0] != n:
+        raise AnalysisError(
+            f"the temperature has {temp.shape[0]} samples, the channel {n}",
+            "one temperature per sample",
+            field="temperature",
+        )
+    return window_means(temp, m)[0]
 
 
 def detect_settling(
@@ -154,6 +180,7 @@ def detect_settling(
     window: float = DEFAULT_SETTLING_WINDOW,
     criterion: float = 1.0,
     false_alarm: float = 0.01,
+    temperature: Any = None,
 ) -> Settling:
     """Detect the warm-up transient at the start of a record and its settling time.
 
@@ -176,6 +203,9 @@ def detect_settling(
         The transient counts as settled below ``criterion``·σ_A (default 1).
     false_alarm : float
         Probability of detecting a transient in a settled record (default 0.01).
+    temperature : array_like, optional
+        The temperature at each sample: its window means enter the fit as a second regressor
+        (a linear temperature effect is then not read as a transient).
 
     Returns
     -------
@@ -210,13 +240,16 @@ def detect_settling(
     d = _variogram(means[half:], m / rate, model, sigma, k)
     cov = _difference_covariance(d, k)
     grid = np.geomspace(0.5 * m / rate, 0.5 * duration, 40)
-    z, amps, factor = _gls_profile(means, centres, cov, grid)
+    temps = None if temperature is None else _temperature_means(temperature, arr.shape[0], m)
+    z, amps, coefs, factor = _gls_profile(means, centres, cov, grid, temps)
     best = int(np.argmax(np.abs(z)))
     threshold = bonferroni_threshold(false_alarm, grid.shape[0])
     statistic = float(abs(z[best]))
     common = {"window": m / rate, "statistic": statistic, "threshold": threshold}
     amp, tc = float(amps[best]), float(grid[best])
     transient = amp * np.exp(-centres / tc)
+    if temps is not None:
+        transient = transient + float(coefs[best]) * (temps - float(np.mean(temps[half:])))
     level = float(np.mean(means[half:] - transient[half:]))
     if statistic <= threshold:
         return Settling(
@@ -258,13 +291,14 @@ def settling_trim(
     window: float = DEFAULT_SETTLING_WINDOW,
     criterion: float = 1.0,
     false_alarm: float = 0.01,
+    temperature: Any = None,
 ) -> tuple[int, Settling | None]:
     """The samples to cut from the start of a record: ``"auto"`` (the settling time of
     :func:`detect_settling`, rounded up to whole samples) or a time in seconds.
 
     Parameters
     ----------
-    y, rate, model, window, criterion, false_alarm
+    y, rate, model, window, criterion, false_alarm, temperature
         As for :func:`detect_settling`.
     trim : "auto" or float
         ``"auto"`` or the time to cut [s], 0 ≤ trim < the record's length.
@@ -290,8 +324,9 @@ def settling_trim(
     duration = n / rate
     if isinstance(trim, str) and trim.strip().lower() == "auto":
         found = detect_settling(
-            y, rate, model=model, window=window, criterion=criterion, false_alarm=false_alarm
-        )
+            y, rate, model=model, window=window, criterion=criterion, false_alarm=false_alarm,
+            temperature=temperature,
+        )  # fmt: skip
         if found.settling_time > 0.5 * duration:
             raise AnalysisError(
                 f"the record has not settled: its settling time {found.settling_time:.4g} s is "
