@@ -28,7 +28,12 @@ from ._settling import (
     detect_settling,
     settling_trim,
 )
-from ._temperature import TemperatureEffect, remove_temperature, temperature_sensitivity
+from ._temperature import (
+    TemperatureEffect,
+    paired_arrays,
+    remove_temperature,
+    temperature_sensitivity,
+)
 from ._windows import Reason, as_record
 
 __all__ = ["RecordQuality", "assess"]
@@ -140,6 +145,29 @@ def _settling(
     return start, found, reasons
 
 
+def _temperature(
+    arr: np.ndarray,
+    level: np.ndarray,
+    temp: np.ndarray,
+    start: int,
+    rate: float,
+    model: Any,
+    remove: bool,
+    options: dict[str, Any],
+) -> tuple[TemperatureEffect, np.ndarray, list[Reason]]:
+    """The sensitivity on the levelled record after the trim, and the samples with its effect
+    removed when asked (else ``arr`` itself)."""
+    effect = temperature_sensitivity(level[start:], temp[start:], rate, model=model, **options)
+    reasons = list(effect.reasons)
+    samples = arr
+    if remove:
+        samples = arr.copy()
+        samples[start:] = remove_temperature(arr[start:], temp[start:], rate, effect)
+        values = {"sensitivity": effect.sensitivity, "unit": options["unit"]}
+        reasons.append(("temperature_removed", values))
+    return effect, samples, reasons
+
+
 def assess(
     y: Any,
     rate: float,
@@ -221,13 +249,7 @@ def assess(
             "a temperature column (or no removal)",
             field="temperature",
         )
-    temp = None if temperature is None else as_record(temperature, "temperature")
-    if temp is not None and temp.shape[0] != n:
-        raise AnalysisError(
-            f"the temperature has {temp.shape[0]} samples, the channel {n}",
-            "one temperature per sample",
-            field="temperature",
-        )
+    temp = None if temperature is None else paired_arrays(arr, temperature)[1]
     # events first: a step is not a transient, and a slow transient or a temperature drift
     # does not disturb the two-window test
     found = detect_events(
@@ -239,22 +261,14 @@ def assess(
         level, rate, trim, model, settling_window, false_alarm, temp
     )  # fmt: skip
     events = _after(found, start, rate)
-    samples = arr
-    effect = None
-    removed = False
+    effect, samples = None, arr
     if temp is not None:
-        effect = temperature_sensitivity(
-            level[start:], temp[start:], rate, model=model, window=temperature_window,
-            confidence=confidence, datasheet=datasheet_sensitivity, unit=unit,
+        effect, samples, more = _temperature(
+            arr, level, temp, start, rate, model, remove_temperature_effect,
+            {"window": temperature_window, "confidence": confidence,
+             "datasheet": datasheet_sensitivity, "unit": unit},
         )  # fmt: skip
-        reasons.extend(effect.reasons)
-        if remove_temperature_effect:
-            samples = arr.copy()
-            samples[start:] = remove_temperature(arr[start:], temp[start:], rate, effect)
-            removed = True
-            reasons.append(
-                ("temperature_removed", {"sensitivity": effect.sensitivity, "unit": unit})
-            )
+        reasons.extend(more)
     reasons.extend(events.reasons)
     if exclude_events and (events.spikes or events.steps):
         keep = exclusion_mask(n, events)
@@ -268,15 +282,6 @@ def assess(
     used = sum(b - a for a, b in segments)
     reasons.append(("record_fraction_used", {"fraction": used / n, "used": used, "total": n}))
     return RecordQuality(
-        channel,
-        rate,
-        n,
-        settling,
-        start,
-        effect,
-        removed,
-        events,
-        tuple(segments),
-        tuple(reasons),
-        samples,
-    )
+        channel, rate, n, settling, start, effect, samples is not arr, events, tuple(segments),
+        tuple(reasons), samples,
+    )  # fmt: skip

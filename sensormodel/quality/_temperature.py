@@ -165,6 +165,33 @@ def _call(low: float, high: float, limit: float) -> str:
     return "inconclusive"
 
 
+def paired_arrays(y: Any, temperature: Any) -> tuple[np.ndarray, np.ndarray]:
+    """The channel and its temperature as finite arrays of one length."""
+    arr = as_record(y)
+    temp = as_record(temperature, "temperature")
+    if temp.shape[0] != arr.shape[0]:
+        raise AnalysisError(
+            f"the temperature has {temp.shape[0]} samples, the channel {arr.shape[0]}",
+            "one temperature per sample",
+            field="temperature",
+        )
+    return arr, temp
+
+
+def _standard_error(
+    model: Any, ym: np.ndarray, dt: np.ndarray, w: np.ndarray, centres: np.ndarray, tau: float
+) -> float:
+    """√Var(b̂) from the model's variogram, else from the residuals' (module notes)."""
+    if model is not None:
+        return math.sqrt(_slope_variance_model(model, centres, w, tau))
+    resid = ym - float(w @ ym) * dt
+    sigma = robust_sigma(np.diff(resid)) / math.sqrt(2.0)
+    k = ym.shape[0]
+    d = record_variogram(resid, sigma, k)
+    lag = np.abs(np.arange(k)[:, None] - np.arange(k)[None, :])
+    return math.sqrt(max(0.0, -0.5 * float(w @ d[lag] @ w)))
+
+
 def temperature_sensitivity(
     y: Any,
     temperature: Any,
@@ -211,14 +238,7 @@ def temperature_sensitivity(
     """
     rate = validate.rate(rate)
     c = validate.probability(confidence, "confidence", example="0.9")
-    arr = as_record(y)
-    temp = as_record(temperature, "temperature")
-    if temp.shape[0] != arr.shape[0]:
-        raise AnalysisError(
-            f"the temperature has {temp.shape[0]} samples, the channel {arr.shape[0]}",
-            "one temperature per sample",
-            field="temperature",
-        )
+    arr, temp = paired_arrays(y, temperature)
     n = arr.shape[0]
     m = (
         max(1, n // DEFAULT_TEMPERATURE_WINDOWS)
@@ -247,18 +267,10 @@ def temperature_sensitivity(
     w = dt / s_tt
     b = float(w @ ym)
     reasons: list[Reason] = []
-    if model is not None:
-        se = math.sqrt(_slope_variance_model(model, (starts + 0.5 * m) / rate, w, m / rate))
-        half = normal_quantile(0.5 * (1.0 + c)) * se
-        basis = "noise_model"
-    else:
-        resid = ym - b * dt
-        sigma = robust_sigma(np.diff(resid)) / math.sqrt(2.0)
-        d = record_variogram(resid, sigma, k)
-        lag = np.abs(np.arange(k)[:, None] - np.arange(k)[None, :])
-        se = math.sqrt(max(0.0, -0.5 * float(w @ d[lag] @ w)))
-        half = normal_quantile(0.5 * (1.0 + c)) * se
-        basis = "record_variogram"
+    se = _standard_error(model, ym, dt, w, (starts + 0.5 * m) / rate, m / rate)
+    half = normal_quantile(0.5 * (1.0 + c)) * se
+    basis = "noise_model" if model is not None else "record_variogram"
+    if model is None:
         reasons.append(("temperature_interval_approximate", {"windows": k}))
     low, high = b - half, b + half
     values = {
@@ -277,21 +289,9 @@ def temperature_sensitivity(
         call = _call(low, high, limit)
         reasons.append((f"temperature_sensitivity_{call}", dict(values, limit=limit)))
     return TemperatureEffect(
-        b,
-        low,
-        high,
-        c,
-        se,
-        basis,
-        m / rate,
-        k,
-        t_ref,
-        float(np.min(tm)),
-        float(np.max(tm)),
-        limit,
-        call,
-        tuple(reasons),
-    )
+        b, low, high, c, se, basis, m / rate, k, t_ref, float(np.min(tm)), float(np.max(tm)),
+        limit, call, tuple(reasons),
+    )  # fmt: skip
 
 
 def remove_temperature(
@@ -309,14 +309,7 @@ def remove_temperature(
     from scipy.ndimage import uniform_filter1d
 
     rate = validate.rate(rate)
-    arr = as_record(y)
-    temp = as_record(temperature, "temperature")
-    if temp.shape[0] != arr.shape[0]:
-        raise AnalysisError(
-            f"the temperature has {temp.shape[0]} samples, the channel {arr.shape[0]}",
-            "one temperature per sample",
-            field="temperature",
-        )
+    arr, temp = paired_arrays(y, temperature)
     size = max(1, min(arr.shape[0], int(round(effect.window * rate))))
     smooth = uniform_filter1d(temp, size=size, mode="nearest")
     return arr - effect.sensitivity * (smooth - effect.reference_temperature)
