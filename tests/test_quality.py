@@ -375,6 +375,38 @@ def test_bench_record_assessed_and_prepared():
     assert _within(pooled, reference, (HOURS2 - q.trim_start) / rate / 8.0) >= 0.9
 
 
+def test_bench_record_with_a_dropped_second():
+    """The reader's clean segments (a dropped second, its samples NaN here, and a NaN in the
+    thermometer there): the tests run on the segments joined, positions come back in the
+    record's indices, and no used segment spans the gap, so the pooled curve lies within the
+    68 % interval of the same noise without the gap at ≥ 90 % of τ up to an eighth."""
+    rate = SLOW_RATE
+    model = _model(QUIET, rate)
+    noise, y, _ = _warm(22)
+    t = np.arange(HOURS2) / rate
+    temp = 25.0 + 5.0 * t / t[-1]
+    y = y + 20.0 * _DEG_H * (temp - 25.0)
+    gap = (80_000, 80_020)  # one second at 20 Hz
+    y[gap[0] : gap[1]] = np.nan
+    temp = temp.copy()
+    temp[gap[0] + 3] = np.nan
+    y[120_000] += 50.0 * QUIET.white * math.sqrt(rate)
+    q = quality.assess(
+        y, rate, model=model, temperature=temp, trim="auto", exclude_events=True,
+        remove_temperature_effect=True, segments=[(0, gap[0]), (gap[1], HOURS2)],
+    )  # fmt: skip
+    assert [e.index for e in q.events.spikes] == [120_000]
+    assert q.events.spikes[0].time == pytest.approx(120_000 / rate)
+    assert abs(q.trim_start / rate / TRUE_SETTLING - 1.0) <= 0.4  # one record (see above)
+    assert all(not (a < gap[1] and b > gap[0]) for a, b in q.segments)
+    assert len(q.segments) == 3 and q.segments[0][0] == q.trim_start
+    pooled = overlapping_pooled(q.segment_arrays(), rate)
+    reference = overlapping(noise[q.trim_start :], rate, taus=pooled.tau)
+    assert _within(pooled, reference, (HOURS2 - q.trim_start) / rate / 8.0) >= 0.9
+    with pytest.raises(AnalysisError, match="in order, not overlapping"):
+        quality.assess(y, rate, segments=[(gap[1], HOURS2), (0, gap[0])])
+
+
 def test_assess_refusals():
     y = _noise(4, 24_000, SLOW_RATE, QUIET)
     with pytest.raises(AnalysisError, match="without a temperature column"):

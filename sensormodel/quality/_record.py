@@ -28,12 +28,7 @@ from ._settling import (
     detect_settling,
     settling_trim,
 )
-from ._temperature import (
-    TemperatureEffect,
-    paired_arrays,
-    remove_temperature,
-    temperature_sensitivity,
-)
+from ._temperature import TemperatureEffect, remove_temperature, temperature_sensitivity
 from ._windows import Reason, as_record
 
 __all__ = ["RecordQuality", "assess"]
@@ -99,17 +94,82 @@ class RecordQuality:
         return [self.samples[a:b] for a, b in self.segments]
 
 
-def _after(events: Events, start: int, rate: float) -> Events:
-    """The events from sample ``start`` on (those in a trimmed warm-up dropped), their
+def _after(events: Events, start: int, pos: np.ndarray, rate: float, t0: float) -> Events:
+    """The events from joined sample ``start`` on (those in a trimmed warm-up dropped), in the
+    record's own indices and times (``pos`` maps a joined index to the record's), their
     reasons rebuilt."""
-    spikes = tuple(e for e in events.spikes if e.index >= start)
-    steps = tuple(e for e in events.steps if e.index >= start)
+
+    def place(e: Any) -> Any:
+        return dataclasses.replace(e, index=int(pos[e.index]), time=t0 + pos[e.index] / rate)
+
+    spikes = tuple(place(e) for e in events.spikes if e.index >= start)
+    steps = tuple(place(e) for e in events.steps if e.index >= start)
     reasons: list[Reason] = []
     if spikes:
         reasons.append(("spikes_found", found_values(list(spikes), events.spike_threshold)))
     if steps:
         reasons.append(("steps_found", found_values(list(steps), events.step_threshold)))
     return dataclasses.replace(events, spikes=spikes, steps=steps, reasons=tuple(reasons))
+
+
+def _temperature_column(
+    temperature: Any, n: int, pos: np.ndarray, remove: bool
+) -> np.ndarray | None:
+    """The temperature at the joined samples (None without one); a removal asked without a
+    temperature is refused."""
+    if temperature is None:
+        if remove:
+            raise AnalysisError(
+                "the removal of the temperature effect was asked without a temperature column",
+                "a temperature column (or no removal)",
+                field="temperature",
+            )
+        return None
+    column = np.asarray(temperature, dtype=np.float64)
+    if column.ndim != 1 or column.shape[0] != n:
+        raise AnalysisError(
+            f"the temperature has shape {column.shape}, the channel {n} samples",
+            "one temperature per sample",
+            field="temperature",
+        )
+    return as_record(column[pos], "temperature")
+
+
+def _joined(y: Any, segments: Any) -> tuple[np.ndarray, np.ndarray, np.ndarray, int]:
+    """(the clean segments joined end to end, the record index of each joined sample, the
+    joined index where each segment starts, the record's length)."""
+    full = np.asarray(y, dtype=np.float64)
+    n = int(full.shape[0]) if full.ndim == 1 else 0
+    bounds = [(0, n)] if segments is None else [(int(a), int(b)) for a, b in segments]
+    last = 0
+    for a, b in bounds:
+        if not (last <= a < b <= n):
+            raise AnalysisError(
+                f"got segment ({a}, {b}) of a record of {n} samples",
+                "(start, stop) sample ranges in order, not overlapping, within the record",
+                field="segments",
+            )
+        last = b
+    if not bounds:
+        raise AnalysisError("got no segments", "at least one clean segment", field="segments")
+    joined = as_record(np.concatenate([full[a:b] for a, b in bounds]))
+    pos = np.concatenate([np.arange(a, b) for a, b in bounds])
+    starts = np.cumsum([0] + [b - a for a, b in bounds[:-1]])
+    return joined, pos, starts, n
+
+
+def _used(keep: np.ndarray, starts: np.ndarray, pos: np.ndarray, min_segment: int) -> list:
+    """The kept runs of the joined record cut at the segments' joints, in record indices."""
+    marks = np.zeros(keep.shape[0] + 1, dtype=np.int64)
+    marks[starts] = 1
+    out = []
+    ident = np.cumsum(marks[:-1])  # which segment each joined sample belongs to
+    for a, b in clean_segments(keep, min_length=1):
+        for s_id in np.unique(ident[a:b]):
+            idx = np.flatnonzero(ident[a:b] == s_id) + a
+            if idx.size >= min_segment:
+                out.append((int(pos[idx[0]]), int(pos[idx[-1]]) + 1))
+    return out
 
 
 def _settling(
@@ -187,6 +247,7 @@ def assess(
     confidence: float = DECISION_CONFIDENCE,
     false_alarm: float = 0.01,
     min_segment: int = 100,
+    segments: Any = None,
 ) -> RecordQuality:
     """Judge one channel's static record and prepare it for the Allan analysis.
 
@@ -200,7 +261,7 @@ def assess(
     Parameters
     ----------
     y : array_like
-        Rate samples of one channel [unit], uniformly spaced, finite (one clean stretch).
+        Rate samples of one channel [unit], uniformly spaced, finite within ``segments``.
     rate : float
         Sample rate [Hz].
     channel, unit : str
@@ -228,6 +289,11 @@ def assess(
         False-alarm probability of each detection on a clean record (default 0.01).
     min_segment : int
         Shortest segment kept after the exclusions [samples] (default 100).
+    segments : sequence of (int, int), optional
+        The record's clean segments (start, stop) (e.g. from ``Recording.segments``, with
+        ``gaps="split"``); the tests run on them joined end to end (a dropped second moves the
+        later windows by that second: negligible for windows of a minute) and report positions
+        in the record's indices; no used segment spans a gap. Default: the whole record.
 
     Returns
     -------
@@ -241,47 +307,38 @@ def assess(
         temperature of another length, removal without a temperature, and the tests' errors.
     """
     rate = validate.rate(rate)
-    arr = as_record(y)
-    n = arr.shape[0]
-    if remove_temperature_effect and temperature is None:
-        raise AnalysisError(
-            "the removal of the temperature effect was asked without a temperature column",
-            "a temperature column (or no removal)",
-            field="temperature",
-        )
-    temp = None if temperature is None else paired_arrays(arr, temperature)[1]
+    arr, pos, joints, n = _joined(y, segments)
+    temp = _temperature_column(temperature, n, pos, remove_temperature_effect)
     # events first: a step is not a transient, and a slow transient or a temperature drift
     # does not disturb the two-window test
     found = detect_events(
-        arr, rate, model=model,
-        start_time=start_time, step_window=step_window, false_alarm=false_alarm,
+        arr, rate, model=model, step_window=step_window, false_alarm=false_alarm
     )  # fmt: skip
     level = levelled(arr, found)
     start, settling, reasons = _settling(
         level, rate, trim, model, settling_window, false_alarm, temp
     )  # fmt: skip
-    events = _after(found, start, rate)
-    effect, samples = None, arr
+    events = _after(found, start, pos, rate, start_time)
+    effect, corrected = None, arr
     if temp is not None:
-        effect, samples, more = _temperature(
+        effect, corrected, more = _temperature(
             arr, level, temp, start, rate, model, remove_temperature_effect,
             {"window": temperature_window, "confidence": confidence,
              "datasheet": datasheet_sensitivity, "unit": unit},
         )  # fmt: skip
         reasons.extend(more)
     reasons.extend(events.reasons)
+    keep = exclusion_mask(arr.shape[0], found) if exclude_events else np.ones(arr.shape, bool)
+    keep[:start] = False
+    used_segments = _used(keep, joints, pos, min_segment)
     if exclude_events and (events.spikes or events.steps):
-        keep = exclusion_mask(n, events)
-        keep[:start] = False
-        segments = clean_segments(keep, min_length=min_segment)
-        reasons.append(
-            ("events_excluded", {"samples": int(n - start - keep.sum()), "segments": len(segments)})
-        )
-    else:
-        segments = [(start, n)]
-    used = sum(b - a for a, b in segments)
+        values = {"samples": int(arr.shape[0] - start - keep.sum()), "segments": len(used_segments)}
+        reasons.append(("events_excluded", values))
+    used = sum(b - a for a, b in used_segments)
     reasons.append(("record_fraction_used", {"fraction": used / n, "used": used, "total": n}))
+    samples = np.array(y, dtype=np.float64)
+    samples[pos] = corrected
     return RecordQuality(
-        channel, rate, n, settling, start, effect, samples is not arr, events, tuple(segments),
-        tuple(reasons), samples,
+        channel, rate, n, settling, int(pos[start]), effect, corrected is not arr, events,
+        tuple(used_segments), tuple(reasons), samples,
     )  # fmt: skip

@@ -165,7 +165,7 @@ def _call(low: float, high: float, limit: float) -> str:
     return "inconclusive"
 
 
-def paired_arrays(y: Any, temperature: Any) -> tuple[np.ndarray, np.ndarray]:
+def _paired(y: Any, temperature: Any) -> tuple[np.ndarray, np.ndarray]:
     """The channel and its temperature as finite arrays of one length."""
     arr = as_record(y)
     temp = as_record(temperature, "temperature")
@@ -238,7 +238,7 @@ def temperature_sensitivity(
     """
     rate = validate.rate(rate)
     c = validate.probability(confidence, "confidence", example="0.9")
-    arr, temp = paired_arrays(y, temperature)
+    arr, temp = _paired(y, temperature)
     n = arr.shape[0]
     m = (
         max(1, n // DEFAULT_TEMPERATURE_WINDOWS)
@@ -309,7 +309,7 @@ def remove_temperature(
     from scipy.ndimage import uniform_filter1d
 
     rate = validate.rate(rate)
-    arr, temp = paired_arrays(y, temperature)
+    arr, temp = _paired(y, temperature)
     size = max(1, min(arr.shape[0], int(round(effect.window * rate))))
     smooth = uniform_filter1d(temp, size=size, mode="nearest")
     return arr - effect.sensitivity * (smooth - effect.reference_temperature)
