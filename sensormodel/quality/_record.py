@@ -51,7 +51,7 @@ class RecordQuality:
         The warm-up detection (None where the record is too short to judge it and no trim
         was asked).
     trim_start : int
-        Samples cut at the start (0 without a trim).
+        Index of the first sample kept after the warm-up (0 without a trim).
     temperature : TemperatureEffect or None
         The temperature regression (on the record after the trim).
     temperature_removed : bool
