@@ -413,5 +413,7 @@ def test_assess_refusals():
         quality.assess(y, SLOW_RATE, remove_temperature_effect=True)
     with pytest.raises(AnalysisError, match="not shorter than the record"):
         quality.assess(y, SLOW_RATE, trim=5000.0)
+    with pytest.raises(AnalysisError, match="temperature is constant"):
+        quality.assess(y, SLOW_RATE, temperature=np.full(y.shape[0], 21.0))
     short = quality.assess(y[:12_000], SLOW_RATE)
     assert short.settling is None and short.reasons[0][0] == "settling_not_judged"

@@ -241,6 +241,8 @@ def detect_settling(
     cov = _difference_covariance(d, k)
     grid = np.geomspace(0.5 * m / rate, 0.5 * duration, 40)
     temps = None if temperature is None else _temperature_means(temperature, arr.shape[0], m)
+    if temps is not None and np.ptp(temps) <= 1e-9 * max(1.0, abs(float(np.mean(temps)))):
+        temps = None  # a constant temperature explains nothing (and would be singular)
     z, amps, coefs, factor = _gls_profile(means, centres, cov, grid, temps)
     best = int(np.argmax(np.abs(z)))
     threshold = bonferroni_threshold(false_alarm, grid.shape[0])
