@@ -346,6 +346,28 @@ def test_reason_codes_become_the_sentences_of_the_reports():
         "density": 2.5e-5,
         "coefficient": 2.5e-4,
         "ratio": 2.9,
+        # the record-quality codes (sensormodel.quality)
+        "statistic": 7.5,
+        "threshold": 3.66,
+        "window": 60.0,
+        "time_constant": 300.0,
+        "criterion": 1.0,
+        "settling_time": 690.8,
+        "seconds": 690.85,
+        "samples": 13817,
+        "sensitivity": 9.7e-8,
+        "confidence": 0.9,
+        "temperature_low": 25.0,
+        "temperature_high": 30.0,
+        "windows": 100,
+        "limit": 4.8e-7,
+        "count": 2,
+        "indices": (50000, 123457),
+        "times": (500.0, 1234.57),
+        "largest": 50.2,
+        "fraction": 0.925,
+        "used": 133219,
+        "total": 144000,
     }
     for code in REASONS:
         text = reason_text(code, values)

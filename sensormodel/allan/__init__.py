@@ -60,8 +60,10 @@ Modules (private; this package exports the public names): ``_samples`` (sample c
 phase, the kernel of the sums, τ grids), ``_engine`` (second-difference sums, the schedule of
 records on worker threads, :func:`overlapping` and its siblings), ``_stream`` (the out-of-core
 path, :func:`release`), ``_noise`` (the noise type at each τ),
-``_curve`` (:class:`AllanCurve` and its JSON/CSV files). The degrees of freedom and intervals
-are :mod:`sensormodel.confidence`'s.
+``_curve`` (:class:`AllanCurve` and its JSON/CSV files), ``_pooled``
+(:func:`overlapping_pooled`: the variance from every cluster wholly inside the clean segments
+of a record with gaps). The degrees of freedom and intervals are
+:mod:`sensormodel.confidence`'s.
 
 Numbers of the trade: ``n_clusters`` in an :class:`AllanCurve` is the number of overlapping
 second differences N − 2m = n + 1 − 2m that enter the sum (``n_independent`` gives the number of
@@ -87,6 +89,7 @@ from ._engine import (
     second_difference_sums,
 )
 from ._noise import NOISE_NAMES, noise_alpha
+from ._pooled import overlapping_pooled
 from ._samples import averaging_factors, tau_grid
 from ._stream import release
 
@@ -94,6 +97,7 @@ __all__ = [
     "AllanCurve",
     "overlapping",
     "overlapping_many",
+    "overlapping_pooled",
     "tau_grid",
     "averaging_factors",
     "noise_alpha",

@@ -158,6 +158,67 @@ REASONS: dict[str, str | Callable[[Mapping[str, Any]], str]] = {
     ),
     # a channel's analysis (pipeline.ChannelAnalysis.reasons; a verdict report's notes)
     "segments_left_out": _segments_left_out,
+    # a record's quality (sensormodel.quality: Settling, TemperatureEffect, Events,
+    # RecordQuality reasons)
+    "settling_detected": (
+        "warm-up: a settling transient (largest |z| = {statistic:.3g} over the threshold "
+        "{threshold:.3g} of {window:.4g} s means), time constant {time_constant:.4g} s, settled "
+        "to {criterion:g} σ of a {window:.4g} s mean after {settling_time:.4g} s"
+    ),
+    "settling_none": (
+        "warm-up: no settling transient (largest |z| = {statistic:.3g}, threshold "
+        "{threshold:.3g}, {window:.4g} s means)"
+    ),
+    "settling_not_exponential": (
+        "warm-up: the transient is not exponential (a departure of {departure:.3g} σ, "
+        "threshold {threshold:.3g}); the settling time is at least the end of the last "
+        "departing window"
+    ),
+    "settling_not_within_record": (
+        "warm-up: the record has not settled in its first half (settling time "
+        "{settling_time:.4g} s of {duration:.4g} s); its long-τ Allan deviation is dominated by "
+        "the transient"
+    ),
+    "settling_not_judged": (
+        "warm-up: not judged, the record ({duration:.4g} s) is shorter than 20 means of "
+        "{window:.4g} s"
+    ),
+    "settling_trimmed": "the first {seconds:.4g} s ({samples} samples) were cut as warm-up",
+    "temperature_sensitivity": (
+        "bias temperature sensitivity {sensitivity:.4g} {unit}/K ({confidence:.0%} interval "
+        "{low:.4g} to {high:.4g}) over temperatures {temperature_low:.4g} to {temperature_high:.4g}"
+    ),
+    "temperature_interval_approximate": (
+        "the sensitivity's interval rests on the noise estimated from the record itself "
+        "({windows} windows), not on a noise model: approximate"
+    ),
+    "temperature_sensitivity_within": (
+        "the temperature sensitivity is within the datasheet's ±{limit:.4g} {unit}/K"
+    ),
+    "temperature_sensitivity_exceeds": (
+        "the temperature sensitivity exceeds the datasheet's ±{limit:.4g} {unit}/K"
+    ),
+    "temperature_sensitivity_inconclusive": (
+        "the temperature sensitivity's interval ({low:.4g} to {high:.4g} {unit}/K) straddles "
+        "the datasheet's ±{limit:.4g} {unit}/K: not decided by this record"
+    ),
+    "temperature_removed": (
+        "the linear temperature effect ({sensitivity:.4g} {unit}/K) was removed before the "
+        "Allan analysis"
+    ),
+    "spikes_found": (
+        "{count} spike(s) at sample(s) {indices} (t = {times} s), largest {largest:.3g} σ "
+        "(threshold {threshold:.3g})"
+    ),
+    "steps_found": (
+        "{count} step(s) at sample(s) {indices} (t = {times} s), largest {largest:.3g} σ of the "
+        "two-window test (threshold {threshold:.3g})"
+    ),
+    "events_excluded": (
+        "spikes and steps excluded as short gaps ({samples} samples); {segments} clean "
+        "segment(s) pooled"
+    ),
+    "record_fraction_used": "{fraction:.1%} of the record used ({used} of {total} samples)",
     "note": "{text}",
 }
 
