@@ -115,15 +115,10 @@ def read_recording(
     constant_run : int
         This many identical consecutive samples are a ``constant`` finding (0: no check).
     saturation_run : int
-        This many consecutive samples at a column's maximum or minimum are ``saturated``
-        (0: no check), where that extreme stands apart from the data
-        (:data:`~sensormodel.recording._timebase.APART_SIGMAS` robust σ from the median: a
-        coarsely quantized channel's extremes do not); a run of one value is ``constant`` only
-        where the value's own frequency makes it improbable
-        (:data:`~sensormodel.recording._timebase.STUCK_PROBABILITY`).
+        This many consecutive samples at an extreme that stands apart from the data are
+        ``saturated`` (0: no check; ``_timebase.APART_SIGMAS``, ``COARSE_STEPS``).
     ranges : mapping, optional
-        {channel id: full scale [SI]} (e.g. the datasheet's ``measurement_range``): a sample
-        at or beyond ± its full scale is ``saturated``.
+        {channel id: full scale [SI]}: a sample at or beyond it is ``saturated``.
     min_segment : int
         With ``gaps="split"``, clean stretches shorter than this (≥ 2) are dropped (and
         reported).
@@ -158,15 +153,8 @@ def read_recording(
     clock = _clock(source, plan, raw)
     time_name = None if plan.time_index is None else source.names[plan.time_index]
     final_rate = resolve_rate(option_rate, source.rate, clock.rate, time_name, src)
-    channels = _channels(
-        source,
-        plan,
-        raw,
-        final_rate,
-        constant_run=constant_run,
-        saturation_run=saturation_run,
-        ranges=ranges or {},
-    )
+    runs = {"constant_run": constant_run, "saturation_run": saturation_run}
+    channels = _channels(source, plan, raw, final_rate, **runs, ranges=ranges or {})
     checked = _Checked(
         source,
         plan,
