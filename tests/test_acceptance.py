@@ -9,6 +9,12 @@ the whole chain (simulate -> Allan deviation -> identify -> verdict) by seeded s
 from __future__ import annotations
 
 import math
+import os
+import pathlib
+import signal
+import subprocess
+import sys
+import time
 from dataclasses import replace
 from types import SimpleNamespace
 
@@ -779,3 +785,49 @@ def test_declared_ranges_from_the_datasheet(write_datasheet) -> None:
     ds = load_datasheet(write_datasheet(_SHEET + 'measurement_range = "450 deg/s"\n'))
     assert acc.declared_ranges(ds) == {"gyro.z": pytest.approx(math.radians(450.0), rel=1e-12)}
     assert acc.declared_ranges(load_datasheet(write_datasheet(_SHEET, name="b.toml"))) == {}
+
+
+_ORPHAN_SCRIPT = """
+import multiprocessing, os, sys, time
+from concurrent.futures import ProcessPoolExecutor
+from sensormodel.acceptance._verify import exit_with_parent
+
+def pid():
+    return os.getpid()
+
+if __name__ == "__main__":
+    context = multiprocessing.get_context("spawn")
+    pool = ProcessPoolExecutor(1, mp_context=context, initializer=exit_with_parent,
+                               initargs=(os.getpid(), 0.1))
+    print(pool.submit(pid).result(), flush=True)
+    time.sleep(120)
+"""
+
+
+def _alive(pid: int) -> bool:
+    try:
+        with open(f"/proc/{pid}/status", encoding="ascii") as fh:
+            return "\nState:\tZ" not in fh.read()  # a zombie has ended
+    except FileNotFoundError:
+        return False
+
+
+@pytest.mark.skipif(not os.path.isdir("/proc"), reason="reads /proc (Linux)")
+@pytest.mark.parametrize("how", [signal.SIGTERM, signal.SIGKILL])
+def test_worker_processes_end_with_their_command(tmp_path, how) -> None:
+    # Stopping verify left its worker processes running under init (~150 MB each): a worker
+    # now ends when its parent is gone, however the parent was stopped.
+    script = tmp_path / "orphan.py"
+    script.write_text(_ORPHAN_SCRIPT, encoding="utf-8")
+    root = pathlib.Path(__file__).resolve().parent.parent
+    env = {**os.environ, "PYTHONPATH": str(root)}
+    proc = subprocess.Popen([sys.executable, str(script)], stdout=subprocess.PIPE, env=env)
+    worker = int(proc.stdout.readline())
+    assert _alive(worker)
+    proc.send_signal(how)
+    proc.wait(timeout=30)
+    proc.stdout.close()
+    deadline = time.monotonic() + 20.0
+    while _alive(worker) and time.monotonic() < deadline:
+        time.sleep(0.1)
+    assert not _alive(worker)

@@ -12,6 +12,9 @@ from __future__ import annotations
 
 import math
 import multiprocessing
+import os
+import threading
+import time
 import zlib
 from collections.abc import Mapping, Sequence
 from concurrent.futures import ProcessPoolExecutor
@@ -606,12 +609,39 @@ def _run_jobs(
             for curve, ax, length, _ in jobs
         ]
     context = multiprocessing.get_context("spawn")
-    with ProcessPoolExecutor(max_workers=n_workers, mp_context=context) as pool:
+    pool = ProcessPoolExecutor(
+        max_workers=n_workers,
+        mp_context=context,
+        initializer=exit_with_parent,
+        initargs=(os.getpid(),),
+    )
+    try:
         futures = [
             pool.submit(_verify_job, curve, ax, length, _channel_seed(seed, ax), options)
             for curve, ax, length, _ in jobs
         ]
-        return [f.result() for f in futures]
+        results = [f.result() for f in futures]
+    except BaseException:  # Ctrl-C, SIGTERM, an error: do not wait for the other channels
+        pool.shutdown(wait=False, cancel_futures=True)
+        raise
+    pool.shutdown()
+    return results
+
+
+def exit_with_parent(parent: int, period: float = 0.5) -> None:
+    """Worker-process initializer: end this process when its parent ``parent`` (pid) is gone.
+
+    A command stopped by Ctrl-C, SIGTERM or SIGKILL would otherwise leave its workers running
+    under init with their memory; each worker polls its parent id every ``period`` s on a daemon
+    thread (a POSIX orphan is re-parented, so its parent id changes).
+    """
+
+    def watch() -> None:
+        while os.getppid() == parent:
+            time.sleep(period)
+        os._exit(1)
+
+    threading.Thread(target=watch, name="exit-with-parent", daemon=True).start()
 
 
 def _worker_count(workers: int | None, n_jobs: int) -> int:
