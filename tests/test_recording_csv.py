@@ -234,3 +234,40 @@ def test_failed_parse_leaves_no_cached_column(
     assert read_error(path, cache=cache).startswith(f"{path}:line 2347: column 'gyro_x'")
     entries = list(cache.iterdir())
     assert len(entries) == 1 and list(entries[0].iterdir()) == []  # no column, no part file
+
+
+def test_cache_is_bounded_and_drops_entries_of_files_gone(tmp_path, monkeypatch) -> None:
+    # The CSV cache grew without bound and kept entries of deleted files: a new entry now
+    # keeps the folder within its bound (least recently used removed first), the entries of
+    # files that are gone are dropped, and `sensormodel cache` shows and clears it.
+    from click.testing import CliRunner
+
+    from sensormodel.cli import cli
+    from sensormodel.recording import cache_entries, prune_cache
+
+    root = tmp_path / "cache"
+    monkeypatch.setenv("SENSORMODEL_CACHE", str(root))
+    files = []
+    for k in range(3):
+        path = tmp_path / f"r{k}.csv"
+        rows = "".join(f"{i / 10},{(i * 7919 + k) % 13 / 10}\n" for i in range(2000))
+        path.write_text("time [s],gyro_x [rad/s]\n" + rows, encoding="utf-8")
+        read_recording(path, cache=True)
+        files.append(path)
+    entries = cache_entries(root)
+    assert len(entries) == 3 and [e[3] for e in entries] == [str(f.resolve()) for f in files]
+    one = entries[0][1]
+    # a bound of two entries: the next new entry removes the least recently used (r0)
+    monkeypatch.setenv("SENSORMODEL_CACHE_MAX", str(2 * one + one // 2))
+    read_recording(files[1], cache=True)  # r1 used again: r2 is now the least recently used
+    new = tmp_path / "r3.csv"
+    new.write_text(files[0].read_text(encoding="utf-8"), encoding="utf-8")
+    read_recording(new, cache=True)
+    assert {pathlib.Path(e[3]).name for e in cache_entries(root)} == {"r1.csv", "r3.csv"}
+    files[1].unlink()
+    removed = prune_cache(root)
+    assert [p.name.split("-")[0] for p in removed] == ["r1.csv"]
+    out = CliRunner().invoke(cli, ["cache"]).output
+    assert "1 entry" in out and "r3.csv" in out
+    out = CliRunner().invoke(cli, ["cache", "--clear"]).output
+    assert "removed 1 entry" in out and cache_entries(root) == []

@@ -19,7 +19,7 @@ from ..errors import AnalysisError
 from ..identify import fit_recording, to_model
 from ..model import NoiseModel
 from ..pipeline import SEGMENT_POLICY, RecordingAnalysis, analyse
-from ..recording import format_of
+from ..recording import cache_entries, cache_folder, cache_limit, format_of, prune_cache
 from ..report import (
     allan_heading,
     allan_table,
@@ -297,4 +297,42 @@ def simulate_command(model_file: str, duration: float, rate: float | None, seed:
                                 seed, flicker))
 
 
-COMMANDS = (allan_command, identify_command, simulate_command)
+@click.command("cache", context_settings=CONTEXT)
+@click.option("--prune", is_flag=True,
+              help="Remove the entries of CSV files that are gone, then the least recently used "
+                   "ones beyond the bound.")
+@click.option("--clear", is_flag=True, help="Remove every entry.")
+@guarded
+def cache_command(prune: bool, clear: bool) -> None:
+    """The binary cache of parsed CSV recordings: where it is, what it holds, its bound.
+
+    A CSV file of 8 MiB or more is parsed once into column files in the cache folder
+    ($SENSORMODEL_CACHE, default ~/.cache/sensormodel/csv; "off" disables it), so reading it
+    again is fast. An entry belongs to one state of one file (size, time of change): an edited
+    file is parsed again. The folder is kept within $SENSORMODEL_CACHE_MAX bytes (default
+    4 GiB) by removing the least recently used entries, and entries of files that are gone are
+    dropped, whenever a new entry is written.
+
+    \b
+    Example:
+      sensormodel cache
+      sensormodel cache --prune
+      sensormodel cache --clear
+    """
+    root = cache_folder()
+    if root is None:
+        click.echo("the CSV cache is off (SENSORMODEL_CACHE=off)")
+        return
+    if clear or prune:
+        removed = prune_cache(root, everything=clear)
+        click.echo(f"removed {counted(len(removed), 'entry', 'entries')}")
+    entries = cache_entries(root)
+    size = sum(e[1] for e in entries)
+    click.echo(f"{root}: {counted(len(entries), 'entry', 'entries')}, {size / 2**20:.1f} MiB of "
+               f"at most {cache_limit() / 2**30:.3g} GiB")
+    for entry, bytes_, _, source in reversed(entries):  # most recently used first
+        gone = "" if not source or pathlib.Path(source).exists() else " (file gone)"
+        click.echo(f"  {bytes_ / 2**20:9.1f} MiB  {source or entry.name}{gone}")
+
+
+COMMANDS = (allan_command, identify_command, simulate_command, cache_command)

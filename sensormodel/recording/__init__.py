@@ -145,7 +145,14 @@ selection, units with a scale, unit plans);
 
 from __future__ import annotations
 
-from ._cache import CACHE_MIN_BYTES, cache_folder
+from ._cache import (
+    CACHE_MAX_BYTES,
+    CACHE_MIN_BYTES,
+    cache_entries,
+    cache_folder,
+    cache_limit,
+    prune_cache,
+)
 from ._columns import CHANNEL_IDS, TIME_COLUMN_NAMES, channel_id_for, parse_channel_map
 from ._formats import RATE_RTOL, SUFFIXES, format_of
 from ._reader import read_recording
@@ -167,6 +174,10 @@ __all__ = [
     "channel_id_for",
     "parse_channel_map",
     "cache_folder",
+    "cache_entries",
+    "cache_limit",
+    "prune_cache",
+    "CACHE_MAX_BYTES",
     "RecordingWriter",
     "open_writer",
     "format_of",

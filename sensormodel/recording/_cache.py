@@ -21,10 +21,25 @@ from typing import Any
 
 import numpy as np
 
-__all__ = ["CACHE_MIN_BYTES", "cache_folder", "entry_folder", "load_cached", "ColumnSinks"]
+__all__ = [
+    "CACHE_MIN_BYTES",
+    "CACHE_MAX_BYTES",
+    "cache_folder",
+    "cache_limit",
+    "cache_entries",
+    "prune_cache",
+    "entry_folder",
+    "load_cached",
+    "ColumnSinks",
+]
 
 #: CSV files at least this large [bytes] are cached as binary columns by default.
 CACHE_MIN_BYTES = 8 * 2**20
+#: Default bound of the cache folder [bytes] (``$SENSORMODEL_CACHE_MAX`` sets another): past it
+#: the least recently used entries are removed.
+CACHE_MAX_BYTES = 4 * 2**30
+#: The file in each entry naming the CSV file it was parsed from.
+_SOURCE_FILE = "source.txt"
 
 _CACHE_VERSION = "1"
 _OFF = ("", "0", "off", "no", "false", "none")
@@ -43,6 +58,56 @@ def cache_folder() -> pathlib.Path | None:
         return pathlib.Path(env).expanduser()
     base = os.environ.get("XDG_CACHE_HOME") or os.path.join(os.path.expanduser("~"), ".cache")
     return pathlib.Path(base) / "sensormodel" / "csv"
+
+
+def cache_limit() -> int:
+    """The cache bound [bytes]: ``$SENSORMODEL_CACHE_MAX`` (a whole number of bytes) or
+    :data:`CACHE_MAX_BYTES`."""
+    text = os.environ.get("SENSORMODEL_CACHE_MAX", "").strip()
+    return int(text) if text.isdigit() else CACHE_MAX_BYTES
+
+
+def cache_entries(root: pathlib.Path | None = None) -> list[tuple[pathlib.Path, int, float, str]]:
+    """The entries of a cache folder (default :func:`cache_folder`): (folder, size [bytes],
+    last use [s since the epoch], source file or "" when unknown), least recently used first."""
+    root = cache_folder() if root is None else pathlib.Path(root)
+    if root is None or not root.is_dir():
+        return []
+    out = []
+    for entry in root.iterdir():
+        if not entry.is_dir():
+            continue
+        size = sum(f.stat().st_size for f in entry.iterdir() if f.is_file())
+        marker = entry / _SOURCE_FILE
+        source = marker.read_text(encoding="utf-8") if marker.is_file() else ""
+        out.append((entry, size, entry.stat().st_mtime, source))
+    return sorted(out, key=lambda e: e[2])
+
+
+def prune_cache(
+    root: pathlib.Path | None = None, *, max_bytes: int | None = None, everything: bool = False
+) -> list[pathlib.Path]:
+    """Remove the entries whose CSV file is gone, then the least recently used ones until the
+    folder holds at most ``max_bytes`` (default :func:`cache_limit`); ``everything`` clears it.
+    Returns the entries removed."""
+    limit = cache_limit() if max_bytes is None else int(max_bytes)
+    entries = cache_entries(root)
+    removed = []
+    kept = []
+    for entry, size, _used, source in entries:
+        if everything or (source and not os.path.exists(source)):
+            shutil.rmtree(entry, ignore_errors=True)
+            removed.append(entry)
+        else:
+            kept.append((entry, size))
+    total = sum(size for _, size in kept)
+    for entry, size in kept:  # least recently used first
+        if total <= limit:
+            break
+        shutil.rmtree(entry, ignore_errors=True)
+        removed.append(entry)
+        total -= size
+    return removed
 
 
 def entry_folder(path: pathlib.Path, cache: Any, *, layout: str) -> pathlib.Path | None:
@@ -87,8 +152,13 @@ def load_cached(
     parse: Parse,
     progress: Callable[[int, int], None] | None,
     total: int,
+    *,
+    source: os.PathLike[str] | str | None = None,
 ) -> list[np.ndarray]:
-    """The wanted columns from the entry ``folder``, parsing the missing ones into it first.
+    """The wanted columns from the entry ``folder``, parsing the missing ones into it first
+    (``source``, the CSV file, is written into a new entry so that :func:`prune_cache` can drop
+    the entries of files that are gone; a new entry then keeps the folder within
+    :func:`cache_limit`).
 
     Raises
     ------
@@ -107,10 +177,20 @@ def load_cached(
             for old in folder.parent.glob(prefix + "*"):  # stale entries of this file
                 shutil.rmtree(old, ignore_errors=True)
             folder.mkdir(exist_ok=True)
+        if source is not None:
+            (folder / _SOURCE_FILE).write_text(str(source), encoding="utf-8")
         parse(missing, folder, progress)
+        # the new entry is the most recently used: the bound is kept without touching it
+        os.utime(folder)
+        prune_cache(folder.parent, max_bytes=max(cache_limit(), _entry_size(folder)))
     elif progress is not None:
         progress(total, total)
+    os.utime(folder)  # its last use, for the least-recently-used bound
     return [np.memmap(files[j], dtype="<f8", mode="r") for j in wanted]
+
+
+def _entry_size(folder: pathlib.Path) -> int:
+    return sum(f.stat().st_size for f in folder.iterdir() if f.is_file())
 
 
 class ColumnSinks:

@@ -179,7 +179,9 @@ class TextSource(Source):
         if folder is not None:
             total = self.data_end - self.data_offset
             try:
-                return load_cached(folder, wanted, self._parse, progress, total)
+                return load_cached(
+                    folder, wanted, self._parse, progress, total, source=self.path.resolve()
+                )
             except OSError:
                 pass  # an unwritable cache only costs speed; parse in memory
         return self._parse(wanted, None, progress)

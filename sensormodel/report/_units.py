@@ -29,9 +29,10 @@ __all__ = [
     "model_display",
 ]
 
-def counted(n: int, noun: str) -> str:
-    """``"1 channel"``, ``"2 channels"``: a count with its noun in the right number."""
-    return f"{n} {noun}{'' if n == 1 else 's'}"
+def counted(n: int, noun: str, plural: str | None = None) -> str:
+    """``"1 channel"``, ``"2 channels"``: a count with its noun in the right number
+    (``plural`` where it is not the noun + s)."""
+    return f"{n} {noun if n == 1 else (plural or noun + 's')}"
 
 
 #: The kinds whose channels are shown in a readable unit (°/h, µg) rather than in SI.
