@@ -574,3 +574,15 @@ def test_identify_notes_say_what_the_record_is():
         "count_step_quantization", {"step": 1e-5, "unit": "rad", "coefficient": 2.9e-6}
     )
     assert "Q = step/√12 = 2.9e-06" in q
+
+
+def test_identify_table_typesets_si_units():
+    # the identify table printed rad/s**0.5 (pint's syntax) for a white density: rad/√s
+    from sensormodel.identify import FittedTerm, Identification
+
+    white = FittedTerm(term="white", parameter="density", estimate=3.5e-6, low=3.4e-6,
+                       high=3.6e-6, confidence=0.9, supported=True)
+    ident = Identification(channel="gyro.x", unit="rad/s", sample_rate=100.0, n_samples=360_000,
+                           confidence=0.9, terms=(white,), slope_readings={})
+    (row,) = identify_rows(ident)
+    assert row[1] == "3.5e-06 rad/√s" and "**" not in identify_table(ident)

@@ -13,7 +13,6 @@ from typing import Any
 from ..errors import AnalysisError
 from ..quantities import (
     DISPLAY_UNITS,
-    KINDS,
     convert_from_si,
     display_scale,
     format_value,
@@ -249,10 +248,7 @@ def identify_rows(ident: Any) -> list[list[str]]:
     for ft in ident.terms:
         rel = TERM_TYPES[ft.term].units[ft.parameter]
         kind = parameter_kind(rel, ident.unit)
-        if kind is not None:
-            si_unit = KINDS[kind].si
-        else:
-            si_unit = rel.replace("u", ident.unit if ident.unit not in ("", "1") else "(rec.)")
+        si_unit = si_label(rel, ident.unit)  # typeset: rad/√s, not rad/s**0.5
 
         def shown(v: float, kind: str | None = kind) -> str:
             if kind is None or kind not in DISPLAY_UNITS:
