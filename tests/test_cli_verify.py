@@ -310,3 +310,12 @@ def test_plan_help_lists_its_own_exit_codes(runner) -> None:
     # plan --help once listed verify's exit codes (pass / fail / inconclusive)
     out = runner.invoke(cli, ["plan", "--help"]).output
     assert "0 the plan was made" in out and "1 a term fails" not in out
+
+
+def test_verify_analysis_errors_name_the_recording(runner, sheet, tmp_path) -> None:
+    # "error: gyro.x: got 2 samples…" named no file: an analysis error names the recording
+    rec = tmp_path / "two.csv"
+    rec.write_text("time [s],gyro_z [deg/s]\n0,0.01\n0.1,0.02\n", encoding="utf-8")
+    result = runner.invoke(cli, ["verify", str(rec), "--spec", str(sheet)])
+    assert result.exit_code == 2
+    assert result.stderr.startswith(f"error: {rec}"), result.stderr

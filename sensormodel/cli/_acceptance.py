@@ -10,6 +10,7 @@ import click
 from .._io import check_writable
 from ..acceptance import declared_ranges, plan, verify
 from ..datasheet import load_datasheet
+from ..errors import AnalysisError
 from ..report import (
     check_verdict_html,
     plan_text,
@@ -87,9 +88,12 @@ def verify_command(recording_file: str, spec_file: str, against: str, confidence
         check_verdict_html(report_file, [ax.channel_id for ax in datasheet.channels()],
                            force=force)
     recording = reading.read(recording_file, ranges=declared_ranges(datasheet))
-    result = verify(recording, datasheet, confidence=confidence, against=against, power=power,
-                    channels=list(only) or None, seed=seed, n_boot=n_boot, workers=2,
-                    progress=lambda channel_id: status(f"analysing {channel_id}"))
+    try:
+        result = verify(recording, datasheet, confidence=confidence, against=against,
+                        power=power, channels=list(only) or None, seed=seed, n_boot=n_boot,
+                        workers=2, progress=lambda channel_id: status(f"analysing {channel_id}"))
+    except AnalysisError as exc:  # an analysis error names the recording it is about
+        raise exc.located(source=recording.source or recording_file) from None
     click.echo(verdict_text(result))
     if json_file:
         write_verdict_json(result, json_file, force=force)

@@ -55,7 +55,10 @@ def _analyse(reading: RecordingOptions, path: str, **kwargs: Any) -> RecordingAn
     rec = reading.read(path)
     echo_findings(rec)
     with StderrBar("Allan deviation") as bar:
-        analysis = analyse(rec, progress=bar, **kwargs)
+        try:
+            analysis = analyse(rec, progress=bar, **kwargs)
+        except AnalysisError as exc:  # "gyro.x: got 2 samples" names the file too
+            raise exc.located(source=rec.source or path) from None
     for ch in analysis:
         for code, numbers in ch.reasons:
             click.echo(f"note: {ch.channel}: {reason_text(code, numbers)} "
