@@ -199,7 +199,7 @@ def test_bad_recording_writes_nothing(runner, tmp_path) -> None:  # type: ignore
         ),
         (
             ["--taus", "1000"],
-            "taus: τ = 1000 s needs 100000 samples per cluster, but 1000 "
+            "{rec}:taus: τ = 1000 s needs 100000 samples per cluster, but 1000 "
             "samples allow at most 499 (two overlapping differences); expected τ ≤ 4.99 s for this "
             "record, or a longer record",
         ),

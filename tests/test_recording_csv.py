@@ -192,7 +192,9 @@ def test_cache(tmp_path: pathlib.Path) -> None:
     first = read_recording(path, cache=cache)
     entries = list(cache.iterdir())
     assert len(entries) == 1
-    assert sorted(f.name for f in entries[0].iterdir()) == [f"f{j}.f64" for j in range(4)]
+    assert sorted(f.name for f in entries[0].iterdir()) == [f"f{j}.f64" for j in range(4)] + [
+        "source.txt"  # the CSV file it was parsed from, for the cache's pruning
+    ]
     second = read_recording(path, cache=cache)
     for k, c in enumerate(CHANNELS):
         assert isinstance(second.data[c], np.memmap)

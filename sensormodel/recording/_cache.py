@@ -15,6 +15,7 @@ import os
 import pathlib
 import re
 import shutil
+import time
 from collections.abc import Callable, Sequence
 from types import TracebackType
 from typing import Any
@@ -80,8 +81,9 @@ def cache_entries(root: pathlib.Path | None = None) -> list[tuple[pathlib.Path, 
         size = sum(f.stat().st_size for f in entry.iterdir() if f.is_file())
         marker = entry / _SOURCE_FILE
         source = marker.read_text(encoding="utf-8") if marker.is_file() else ""
-        out.append((entry, size, entry.stat().st_mtime, source))
-    return sorted(out, key=lambda e: e[2])
+        used_ns = entry.stat().st_mtime_ns
+        out.append((used_ns, (entry, size, used_ns / 1e9, source)))
+    return [e for _, e in sorted(out, key=lambda pair: pair[0])]
 
 
 def prune_cache(
@@ -177,16 +179,23 @@ def load_cached(
             for old in folder.parent.glob(prefix + "*"):  # stale entries of this file
                 shutil.rmtree(old, ignore_errors=True)
             folder.mkdir(exist_ok=True)
-        if source is not None:
-            (folder / _SOURCE_FILE).write_text(str(source), encoding="utf-8")
         parse(missing, folder, progress)
+        if source is not None:  # after a whole parse: a failed one leaves nothing behind
+            (folder / _SOURCE_FILE).write_text(str(source), encoding="utf-8")
         # the new entry is the most recently used: the bound is kept without touching it
-        os.utime(folder)
+        _touch(folder)
         prune_cache(folder.parent, max_bytes=max(cache_limit(), _entry_size(folder)))
     elif progress is not None:
         progress(total, total)
-    os.utime(folder)  # its last use, for the least-recently-used bound
+    _touch(folder)  # its last use, for the least-recently-used bound
     return [np.memmap(files[j], dtype="<f8", mode="r") for j in wanted]
+
+
+def _touch(folder: pathlib.Path) -> None:
+    """Mark an entry used now, to the nanosecond (the kernel's own file times are coarse:
+    entries used within one clock tick would tie)."""
+    now = time.time_ns()
+    os.utime(folder, ns=(now, now))
 
 
 def _entry_size(folder: pathlib.Path) -> int:
