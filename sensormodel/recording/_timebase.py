@@ -43,6 +43,8 @@ APART_SIGMAS = 8.0
 #: holds one count for long stretches while live, and runs of one value are not judged as a
 #: stuck sensor there (the project's own rule; it is said in a note).
 COARSE_STEPS = 3.0
+#: Most samples the robust spread and the lattice of a column are judged on.
+_SPREAD_SAMPLES = 1 << 21
 
 _KIND_ORDER = {k: i for i, k in enumerate(FATAL_KINDS)}
 _SPLIT_HINT = "or --gaps split to analyse the clean segments"
@@ -250,16 +252,21 @@ def data_findings(
 
 
 class _Spread:
-    """The robust centre and spread of one column's finite samples, and the value counts,
-    computed only when a candidate run asks (they cost a pass over the record)."""
+    """The robust centre and spread of one column's finite samples and the lattice of its
+    values, computed only when a candidate run asks, from at most :data:`_SPREAD_SAMPLES`
+    evenly spaced samples (a long record is neither copied nor sorted whole)."""
 
     def __init__(self, x: np.ndarray, fin: np.ndarray) -> None:
         self.x, self.fin = x, fin
         self._centre: tuple[float, float] | None = None
 
+    def _sample(self) -> np.ndarray:
+        step = max(1, len(self.x) // _SPREAD_SAMPLES)
+        return np.asarray(self.x[::step][self.fin[::step]], dtype=float)
+
     def _stats(self) -> tuple[float, float]:
         if self._centre is None:
-            v = self.x[self.fin]
+            v = self._sample()
             med = float(np.median(v))
             sigma = 1.4826 * float(np.median(np.abs(v - med)))
             if sigma == 0.0:  # most samples on one count: the plain standard deviation
@@ -275,7 +282,7 @@ class _Spread:
     def coarse(self) -> bool:
         """Whether the values lie on a lattice whose step is over 1/:data:`COARSE_STEPS` of the
         robust spread (one value alone: not coarse, a constant column)."""
-        levels = np.unique(self.x[self.fin])
+        levels = np.unique(self._sample())
         if len(levels) < 2 or len(levels) > 4096:
             return False
         steps = np.diff(levels)
